@@ -1,0 +1,131 @@
+//! The `f32` front end: samples in, log-mel frames out.
+//!
+//! ```
+//! use stapes_core::float_path::FloatFrontEnd;
+//! # use stapes_core::{presets::TINY16K_10, table::{TableView, Filterbank}};
+//! # fn table() -> TableView<'static, f32> { unimplemented!() }
+//! // A board sizes the buffers exactly: FFT 256, overlap 256 - 160, 10 bands.
+//! type Board = FloatFrontEnd<'static, 256, 96, 10>;
+//! # fn demo(t: TableView<'static, f32>) {
+//! let mut fe = Board::new(TINY16K_10, t).expect("table fits the configuration");
+//! let dma_half_buffer = [0i16; 100];
+//! let mut input = &dma_half_buffer[..];
+//! while let Some(frame) = fe.next_frame(&mut input) {
+//!     // frame.bands: 10 values in dB; frame.index counts from 0.
+//!     let _ = (frame.index, frame.bands);
+//! }
+//! # }
+//! ```
+
+use crate::conditioning::FloatConditioner;
+use crate::config::FrontEndConfig;
+use crate::error::FrontEndError;
+use crate::frame::Frame;
+use crate::framer::Framer;
+use crate::sample::Sample;
+use crate::table::TableView;
+use crate::{log, mel, spectrum_f32, window};
+
+/// Streaming `f32` front end with buffers sized at compile time: `FFT` is the
+/// FFT buffer (≥ `fft_points`), `OVERLAP` the carried samples
+/// (≥ `window_samples - hop_samples`), `BANDS` the output (≥ `bands`).
+/// A host tool may use larger capacities than the configuration needs.
+#[derive(Clone, Debug)]
+pub struct FloatFrontEnd<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize> {
+    config: FrontEndConfig,
+    table: TableView<'t, f32>,
+    conditioner: FloatConditioner,
+    framer: Framer<f32, FFT, OVERLAP>,
+    energies: [f32; BANDS],
+    floor: f32,
+    next_index: u64,
+    non_finite: u64,
+}
+
+impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
+    FloatFrontEnd<'t, FFT, OVERLAP, BANDS>
+{
+    /// A front end for `config` reading `table`.
+    ///
+    /// Checks, with integer work only, that the table fits the configuration,
+    /// that the buffers are large enough and that the FFT size is compiled in.
+    /// It does not re-run [`FrontEndConfig::validate`] (`f64` band placement):
+    /// tables only come from validated configurations.
+    pub fn new(config: FrontEndConfig, table: TableView<'t, f32>) -> Result<Self, FrontEndError> {
+        crate::error::check_shape(&config, FFT, OVERLAP, BANDS)?;
+        if !spectrum_f32::fft_compiled(config.fft_points as usize) {
+            return Err(FrontEndError::FftNotCompiled { fft_points: config.fft_points });
+        }
+        table.check(&config)?;
+        Ok(FloatFrontEnd {
+            config,
+            table,
+            conditioner: FloatConditioner::new(config.dc_removal_pole, config.pre_emphasis),
+            framer: Framer::new(config.window_samples as usize, config.hop_samples as usize),
+            energies: [0.0; BANDS],
+            floor: log::floor_energy(config.floor_db),
+            next_index: 0,
+            non_finite: 0,
+        })
+    }
+
+    /// The configuration in use.
+    pub fn config(&self) -> &FrontEndConfig {
+        &self.config
+    }
+
+    /// Returns to the state of a new front end (no samples, zero filter state).
+    pub fn reset(&mut self) {
+        self.framer.reset();
+        self.conditioner.reset();
+        self.next_index = 0;
+        self.non_finite = 0;
+    }
+
+    /// Non-finite `f32` samples seen since the start (each was taken as 0).
+    pub fn non_finite_samples(&self) -> u64 {
+        self.non_finite
+    }
+
+    /// Consumes samples from the front of `input` until a frame completes, and
+    /// returns it; returns `None` once `input` is empty without a new frame.
+    /// Call it in a loop until `None` to drain a chunk.
+    pub fn next_frame<S: Sample>(&mut self, input: &mut &[S]) -> Option<Frame<'_, f32>> {
+        let conditioner = &mut self.conditioner;
+        let non_finite = &mut self.non_finite;
+        let complete = self.framer.fill_from(input, |s: S| {
+            let x = s.to_unit_f32().unwrap_or_else(|| {
+                *non_finite += 1;
+                0.0
+            });
+            conditioner.step(x)
+        });
+        if !complete {
+            return None;
+        }
+        self.compute_frame();
+        let index = self.next_index;
+        self.next_index += 1;
+        Some(Frame { index, bands: &self.energies[..self.config.bands as usize] })
+    }
+
+    fn compute_frame(&mut self) {
+        let n = self.config.fft_points as usize;
+        let bands = self.config.bands as usize;
+        self.framer.begin_frame();
+        {
+            let buf = &mut self.framer.buffer_mut()[..n];
+            window::apply_f32(buf, self.table.window);
+            // `new` checked that this size is compiled in.
+            spectrum_f32::real_fft_in_place(buf);
+            let spectrum = spectrum_f32::spectrum_in_place(buf, self.config.spectrum);
+            let out = &mut self.energies[..bands];
+            mel::accumulate_f32(&self.table.filterbank, spectrum, out);
+            if let Some(gains) = self.table.band_gains {
+                mel::apply_gains_f32(gains, out);
+            }
+            log::log_f32(self.config.log, self.floor, out);
+        }
+        self.framer.end_frame();
+    }
+}

@@ -1,0 +1,80 @@
+//! Streaming frame assembly.
+//!
+//! Frame `i` covers stream samples `[i·hop, i·hop + window)`. A frame is
+//! emitted only when complete: no padding at the start or the end of the
+//! stream. Samples may arrive in chunks of any size (1 sample, an odd DMA
+//! half-buffer, a whole second); the frames are the same as for the whole
+//! buffer at once.
+//!
+//! The frame is assembled directly in the FFT buffer. When it is complete, the
+//! `window - hop` samples the next frame shares are saved to a small overlap
+//! store, the buffer is transformed in place, and the overlap is put back. RAM
+//! is `FRAME + OVERLAP` elements, not a separate history ring plus FFT buffer.
+
+/// Frame assembly over an FFT-sized buffer of `T`.
+#[derive(Clone, Debug)]
+pub struct Framer<T, const FRAME: usize, const OVERLAP: usize> {
+    frame: [T; FRAME],
+    overlap: [T; OVERLAP],
+    fill: usize,
+    window: usize,
+    hop: usize,
+}
+
+impl<T: Copy + Default, const FRAME: usize, const OVERLAP: usize> Framer<T, FRAME, OVERLAP> {
+    /// A framer for `window` samples per frame and `hop` between frames.
+    /// The caller guarantees `1 <= hop <= window <= FRAME` and
+    /// `window - hop <= OVERLAP` (the front ends check this once).
+    pub fn new(window: usize, hop: usize) -> Self {
+        Framer {
+            frame: [T::default(); FRAME],
+            overlap: [T::default(); OVERLAP],
+            fill: 0,
+            window,
+            hop,
+        }
+    }
+
+    /// Forgets all samples.
+    pub fn reset(&mut self) {
+        self.fill = 0;
+    }
+
+    /// Moves samples from the front of `input` into the frame, converting each
+    /// with `convert`, until the frame is complete or `input` is empty.
+    /// Returns `true` when the frame is complete.
+    #[inline]
+    pub fn fill_from<S: Copy>(&mut self, input: &mut &[S], mut convert: impl FnMut(S) -> T) -> bool {
+        let want = self.window - self.fill;
+        let take = want.min(input.len());
+        let (now, rest) = input.split_at(take);
+        for (slot, &s) in self.frame[self.fill..self.fill + take].iter_mut().zip(now) {
+            *slot = convert(s);
+        }
+        self.fill += take;
+        *input = rest;
+        self.fill == self.window
+    }
+
+    /// The whole buffer, for in-place processing of a complete frame. Call
+    /// [`Framer::begin_frame`] before changing it and [`Framer::end_frame`] after.
+    #[inline]
+    pub fn buffer_mut(&mut self) -> &mut [T; FRAME] {
+        &mut self.frame
+    }
+
+    /// Saves the samples the next frame shares.
+    #[inline]
+    pub fn begin_frame(&mut self) {
+        let keep = self.window - self.hop;
+        self.overlap[..keep].copy_from_slice(&self.frame[self.hop..self.window]);
+    }
+
+    /// Restores the shared samples at the start of the buffer.
+    #[inline]
+    pub fn end_frame(&mut self) {
+        let keep = self.window - self.hop;
+        self.frame[..keep].copy_from_slice(&self.overlap[..keep]);
+        self.fill = keep;
+    }
+}

@@ -1,0 +1,63 @@
+//! `stapes-core`: a `no_std`, allocation-free streaming log-mel front end.
+//!
+//! ```text
+//! samples ─► conditioning ─► framer ─► window ─► real FFT ─► spectrum
+//!         ─► mel (table view) ─► log ─► frame out
+//! ```
+//!
+//! One [`config::FrontEndConfig`] describes a front end. The host generator
+//! turns it into a [`table::TableView`] (Rust source, C header, or a checked
+//! [`blob`]); the front end reads only the table on the per-frame path.
+//!
+//! # Conventions (other tools rely on them)
+//! * **Samples**: `i16` (32768 = 1.0) or `f32` in `[-1, 1]`; non-finite `f32`
+//!   samples are taken as 0 and counted ([`sample`]).
+//! * **Framing**: frame `i` covers samples `[i·hop, i·hop + window)`; a frame is
+//!   emitted only when complete, no padding at the start or the end. The window
+//!   multiplies the `window_samples` frame, which is zero-padded to
+//!   `fft_points`. DC removal and pre-emphasis run on the continuous stream
+//!   with zero initial state ([`conditioning`], [`framer`]).
+//! * **Spectrum**: `X[k]` is the DFT of the windowed frame with no `1/N`
+//!   factor; `P[k] = |X[k]|²` (or `|X[k]|` for a magnitude configuration), for
+//!   `k = 0 ..= N/2` ([`spectrum_f32`]).
+//! * **Mel**: `E[b] = Σ w·P` over band `b`'s bins, times the band gain
+//!   ([`mel`]); band edges are equally spaced in mels and each triangle is
+//!   evaluated at the bin's exact frequency `k·fs/N` ([`scale`]), except where
+//!   a preset follows a standard's own construction.
+//! * **Log**: `10·log10(max(E, floor))` or `ln(max(E, floor))` ([`log`]).
+//!
+//! # Example
+//! ```
+//! use stapes_core::float_path::FloatFrontEnd;
+//! use stapes_core::presets::SPEECH16K_40;
+//! # use stapes_core::table::TableView;
+//! # fn run(table: TableView<'static, f32>) {
+//! // `table` comes from tables/speech16k-40.rs or a parsed blob.
+//! let mut fe = FloatFrontEnd::<512, 352, 40>::new(SPEECH16K_40, table).unwrap();
+//! let chunk = [0i16; 480];
+//! let mut rest = &chunk[..];
+//! while let Some(frame) = fe.next_frame(&mut rest) {
+//!     assert_eq!(frame.bands.len(), 40);
+//! }
+//! # }
+//! ```
+#![no_std]
+#![forbid(unsafe_code)]
+#![deny(missing_docs)]
+
+pub mod blob;
+pub mod conditioning;
+pub mod config;
+pub mod crc32;
+pub mod error;
+pub mod float_path;
+pub mod frame;
+pub mod framer;
+pub mod log;
+pub mod mel;
+pub mod presets;
+pub mod sample;
+pub mod scale;
+pub mod spectrum_f32;
+pub mod table;
+pub mod window;

@@ -1,0 +1,97 @@
+//! `f32` real FFT (microfft) and power or magnitude, in place.
+//!
+//! The DFT has no `1/N` factor: `X[k] = Σ x[n]·e^(-2πikn/N)` of the windowed,
+//! zero-padded, full-scale-normalised frame. The spectrum replaces the first
+//! `N/2 + 1` elements of the FFT buffer, so no separate power array is kept.
+
+use crate::config::SpectrumKind;
+
+/// FFT lengths compiled into this build (cargo features `fft-N`).
+pub const COMPILED_FFT_SIZES: &[usize] = &[
+    #[cfg(feature = "fft-16")]
+    16,
+    #[cfg(feature = "fft-32")]
+    32,
+    #[cfg(feature = "fft-64")]
+    64,
+    #[cfg(feature = "fft-128")]
+    128,
+    #[cfg(feature = "fft-256")]
+    256,
+    #[cfg(feature = "fft-512")]
+    512,
+    #[cfg(feature = "fft-1024")]
+    1024,
+    #[cfg(feature = "fft-2048")]
+    2048,
+    #[cfg(feature = "fft-4096")]
+    4096,
+];
+
+/// Whether an FFT of `n` points is compiled in.
+pub fn fft_compiled(n: usize) -> bool {
+    COMPILED_FFT_SIZES.contains(&n)
+}
+
+macro_rules! dispatch {
+    ($buf:expr, $( $n:literal => $f:ident, $feat:literal ;)*) => {
+        match $buf.len() {
+            $(
+                #[cfg(feature = $feat)]
+                $n => {
+                    if let Ok(a) = <&mut [f32; $n]>::try_from(&mut *$buf) {
+                        let _ = microfft::real::$f(a);
+                        return true;
+                    }
+                    false
+                }
+            )*
+            _ => false,
+        }
+    };
+}
+
+/// Real FFT of `buf` in place (microfft's packed layout: `buf[0]` = DC,
+/// `buf[1]` = Nyquist, then re/im pairs). Returns `false`, leaving `buf`
+/// untouched, when its length is not a compiled FFT size.
+#[inline]
+pub fn real_fft_in_place(buf: &mut [f32]) -> bool {
+    dispatch!(buf,
+        16 => rfft_16, "fft-16";
+        32 => rfft_32, "fft-32";
+        64 => rfft_64, "fft-64";
+        128 => rfft_128, "fft-128";
+        256 => rfft_256, "fft-256";
+        512 => rfft_512, "fft-512";
+        1024 => rfft_1024, "fft-1024";
+        2048 => rfft_2048, "fft-2048";
+        4096 => rfft_4096, "fft-4096";
+    )
+}
+
+/// Turns the packed FFT output in `buf` (length `N`) into `N/2 + 1` spectrum
+/// values at `buf[..=N/2]`: `|X[k]|²` or `|X[k]|`.
+///
+/// In place is safe in increasing `k`: value `k` is written to `buf[k]` after
+/// bins `0..=k/2` (the only ones stored at or below index `k`) were read.
+#[inline]
+pub fn spectrum_in_place(buf: &mut [f32], kind: SpectrumKind) -> &[f32] {
+    let n = buf.len();
+    let half = n / 2;
+    let dc = buf[0];
+    let nyquist = buf[1];
+    for k in 1..half {
+        let re = buf[2 * k];
+        let im = buf[2 * k + 1];
+        buf[k] = re * re + im * im;
+    }
+    buf[0] = dc * dc;
+    buf[half] = nyquist * nyquist;
+    let spectrum = &mut buf[..=half];
+    if kind == SpectrumKind::Magnitude {
+        for p in spectrum.iter_mut() {
+            *p = libm::sqrtf(*p);
+        }
+    }
+    spectrum
+}
