@@ -285,7 +285,10 @@ impl<'a> TableBlob<'a> {
         let sections = le_u16(bytes, 10) as usize;
         let stated = le_u32(bytes, 12) as usize;
         if stated != bytes.len() {
-            return Err(BlobError::LengthMismatch { stated, actual: bytes.len() });
+            return Err(BlobError::LengthMismatch {
+                stated,
+                actual: bytes.len(),
+            });
         }
         let stored = le_u32(bytes, CRC_OFFSET);
         let computed = blob_crc(bytes);
@@ -305,7 +308,9 @@ impl<'a> TableBlob<'a> {
             let len = le_u32(bytes, at + 8) as usize;
             let fits = offset >= dir_end
                 && offset % 4 == 0
-                && offset.checked_add(len).is_some_and(|end| end <= bytes.len());
+                && offset
+                    .checked_add(len)
+                    .is_some_and(|end| end <= bytes.len());
             if !fits {
                 return Err(BlobError::BadDirectory { entry });
             }
@@ -371,7 +376,11 @@ impl<'a> TableBlob<'a> {
                 weights: self.section::<W>(W::COMPACT_WEIGHTS)?,
             },
         };
-        let band_gains = if self.has(W::GAINS) { Some(self.section::<W::Gain>(W::GAINS)?) } else { None };
+        let band_gains = if self.has(W::GAINS) {
+            Some(self.section::<W::Gain>(W::GAINS)?)
+        } else {
+            None
+        };
         let view = TableView {
             fingerprint: self.config.fingerprint(),
             window: self.section::<W>(W::WINDOW)?,

@@ -24,7 +24,11 @@ pub struct FloatConditioner {
 impl FloatConditioner {
     /// A conditioner with zero state.
     pub fn new(dc_pole: Option<f32>, pre_emphasis: Option<f32>) -> Self {
-        FloatConditioner { dc_pole, pre_emphasis, ..Default::default() }
+        FloatConditioner {
+            dc_pole,
+            pre_emphasis,
+            ..Default::default()
+        }
     }
 
     /// Returns to zero state.

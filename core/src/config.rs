@@ -238,11 +238,16 @@ impl ConfigError {
 impl fmt::Display for ConfigError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match *self {
-            ConfigError::NotFinite { field } => write!(
-                f,
-                "`{field}` is not a finite number; give a finite value"
-            ),
-            ConfigError::OutOfRange { field, value, min, max, fix } => write!(
+            ConfigError::NotFinite { field } => {
+                write!(f, "`{field}` is not a finite number; give a finite value")
+            }
+            ConfigError::OutOfRange {
+                field,
+                value,
+                min,
+                max,
+                fix,
+            } => write!(
                 f,
                 "`{field}` = {value} is out of range: allowed {min} to {max}; {fix}"
             ),
@@ -252,23 +257,39 @@ impl fmt::Display for ConfigError {
                 prev_pow2(fft_points),
                 prev_pow2(fft_points).saturating_mul(2)
             ),
-            ConfigError::FftSmallerThanWindow { fft_points, window_samples } => write!(
+            ConfigError::FftSmallerThanWindow {
+                fft_points,
+                window_samples,
+            } => write!(
                 f,
                 "`fft_points` = {fft_points} is smaller than `window_samples` = {window_samples}: \
                  allowed {window_samples} or more; use fft_points = {} or a shorter window",
-                window_samples.checked_next_power_of_two().unwrap_or(u32::MAX)
+                window_samples
+                    .checked_next_power_of_two()
+                    .unwrap_or(u32::MAX)
             ),
-            ConfigError::EdgeAboveNyquist { high_edge_hz, nyquist_hz } => write!(
+            ConfigError::EdgeAboveNyquist {
+                high_edge_hz,
+                nyquist_hz,
+            } => write!(
                 f,
                 "`high_edge_hz` = {high_edge_hz} is above the Nyquist frequency: allowed up to \
                  {nyquist_hz} Hz (half the sample rate); lower it or raise sample_rate_hz"
             ),
-            ConfigError::EdgesOutOfOrder { low_edge_hz, high_edge_hz } => write!(
+            ConfigError::EdgesOutOfOrder {
+                low_edge_hz,
+                high_edge_hz,
+            } => write!(
                 f,
                 "`high_edge_hz` = {high_edge_hz} is not above `low_edge_hz` = {low_edge_hz}: \
                  allowed above {low_edge_hz}; swap or widen the band range"
             ),
-            ConfigError::EmptyBand { band, lower_hz, upper_hz, bin_hz } => write!(
+            ConfigError::EmptyBand {
+                band,
+                lower_hz,
+                upper_hz,
+                bin_hz,
+            } => write!(
                 f,
                 "band {band} ({lower_hz:.1} Hz to {upper_hz:.1} Hz) contains no FFT bin at \
                  {bin_hz:.2} Hz per bin: allowed are band layouts where every band holds a bin; \
@@ -291,14 +312,28 @@ impl fmt::Display for ConfigError {
 }
 
 fn prev_pow2(x: u32) -> u32 {
-    if x == 0 { 1 } else { 1 << (31 - x.leading_zeros()) }
+    if x == 0 {
+        1
+    } else {
+        1 << (31 - x.leading_zeros())
+    }
 }
 
 fn check_finite(field: &'static str, v: f32) -> Result<(), ConfigError> {
-    if v.is_finite() { Ok(()) } else { Err(ConfigError::NotFinite { field }) }
+    if v.is_finite() {
+        Ok(())
+    } else {
+        Err(ConfigError::NotFinite { field })
+    }
 }
 
-fn check_int(field: &'static str, v: u32, min: u32, max: u32, fix: &'static str) -> Result<(), ConfigError> {
+fn check_int(
+    field: &'static str,
+    v: u32,
+    min: u32,
+    max: u32,
+    fix: &'static str,
+) -> Result<(), ConfigError> {
     if v >= min && v <= max {
         Ok(())
     } else {
@@ -312,7 +347,13 @@ fn check_int(field: &'static str, v: u32, min: u32, max: u32, fix: &'static str)
     }
 }
 
-fn check_float(field: &'static str, v: f32, min: f32, max: f32, fix: &'static str) -> Result<(), ConfigError> {
+fn check_float(
+    field: &'static str,
+    v: f32,
+    min: f32,
+    max: f32,
+    fix: &'static str,
+) -> Result<(), ConfigError> {
     check_finite(field, v)?;
     if v >= min && v <= max {
         Ok(())
@@ -370,7 +411,9 @@ impl FrontEndConfig {
             "give the frame length in samples",
         )?;
         if !self.fft_points.is_power_of_two() {
-            return Err(ConfigError::FftNotPowerOfTwo { fft_points: self.fft_points });
+            return Err(ConfigError::FftNotPowerOfTwo {
+                fft_points: self.fft_points,
+            });
         }
         check_int(
             "fft_points",
@@ -410,13 +453,7 @@ impl FrontEndConfig {
                 "use a coefficient such as 0.97, or disable pre-emphasis",
             )?;
         }
-        check_int(
-            "bands",
-            self.bands,
-            1,
-            MAX_BANDS as u32,
-            "use fewer bands",
-        )?;
+        check_int("bands", self.bands, 1, MAX_BANDS as u32, "use fewer bands")?;
         check_finite("low_edge_hz", self.low_edge_hz)?;
         check_finite("high_edge_hz", self.high_edge_hz)?;
         check_finite("floor_db", self.floor_db)?;
@@ -488,7 +525,10 @@ impl FrontEndConfig {
         for i in 1..=self.bands + 1 {
             let bin = scale::rounded_centre_bin(self, i);
             if bin <= previous {
-                return Err(ConfigError::SharedCentreBin { band: i.saturating_sub(1).max(1), bin });
+                return Err(ConfigError::SharedCentreBin {
+                    band: i.saturating_sub(1).max(1),
+                    bin,
+                });
             }
             previous = bin;
         }
@@ -509,7 +549,10 @@ impl FrontEndConfig {
     /// configuration section of a table blob holds.
     pub fn to_bytes(&self) -> [u8; CONFIG_BYTES] {
         let mut out = [0u8; CONFIG_BYTES];
-        let mut w = ByteWriter { buf: &mut out, at: 0 };
+        let mut w = ByteWriter {
+            buf: &mut out,
+            at: 0,
+        };
         w.u32(self.sample_rate_hz);
         w.u32(self.window_samples);
         w.u32(self.fft_points);

@@ -46,7 +46,11 @@ impl fmt::Display for FrontEndError {
         match *self {
             FrontEndError::Config(e) => write!(f, "{e}"),
             FrontEndError::Table(e) => write!(f, "{e}"),
-            FrontEndError::Capacity { buffer, needed, capacity } => write!(
+            FrontEndError::Capacity {
+                buffer,
+                needed,
+                capacity,
+            } => write!(
                 f,
                 "the {buffer} buffer holds {capacity} elements but the configuration needs \
                  {needed}: raise that const parameter of the front-end type"
@@ -69,7 +73,10 @@ pub(crate) fn check_shape(
 ) -> Result<(), FrontEndError> {
     let window = config.window_samples;
     if !config.fft_points.is_power_of_two() || config.fft_points < 16 {
-        return Err(ConfigError::FftNotPowerOfTwo { fft_points: config.fft_points }.into());
+        return Err(ConfigError::FftNotPowerOfTwo {
+            fft_points: config.fft_points,
+        }
+        .into());
     }
     if config.fft_points < window {
         return Err(ConfigError::FftSmallerThanWindow {
@@ -95,7 +102,11 @@ pub(crate) fn check_shape(
     ];
     for (buffer, needed, capacity) in needs {
         if needed > capacity {
-            return Err(FrontEndError::Capacity { buffer, needed, capacity });
+            return Err(FrontEndError::Capacity {
+                buffer,
+                needed,
+                capacity,
+            });
         }
     }
     Ok(())

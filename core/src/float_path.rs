@@ -54,7 +54,9 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
     pub fn new(config: FrontEndConfig, table: TableView<'t, f32>) -> Result<Self, FrontEndError> {
         crate::error::check_shape(&config, FFT, OVERLAP, BANDS)?;
         if !spectrum_f32::fft_compiled(config.fft_points as usize) {
-            return Err(FrontEndError::FftNotCompiled { fft_points: config.fft_points });
+            return Err(FrontEndError::FftNotCompiled {
+                fft_points: config.fft_points,
+            });
         }
         table.check(&config)?;
         Ok(FloatFrontEnd {
@@ -106,7 +108,10 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
         self.compute_frame();
         let index = self.next_index;
         self.next_index += 1;
-        Some(Frame { index, bands: &self.energies[..self.config.bands as usize] })
+        Some(Frame {
+            index,
+            bands: &self.energies[..self.config.bands as usize],
+        })
     }
 
     fn compute_frame(&mut self) {

@@ -44,7 +44,11 @@ impl<T: Copy + Default, const FRAME: usize, const OVERLAP: usize> Framer<T, FRAM
     /// with `convert`, until the frame is complete or `input` is empty.
     /// Returns `true` when the frame is complete.
     #[inline]
-    pub fn fill_from<S: Copy>(&mut self, input: &mut &[S], mut convert: impl FnMut(S) -> T) -> bool {
+    pub fn fill_from<S: Copy>(
+        &mut self,
+        input: &mut &[S],
+        mut convert: impl FnMut(S) -> T,
+    ) -> bool {
         let want = self.window - self.fill;
         let take = want.min(input.len());
         let (now, rest) = input.split_at(take);

@@ -19,7 +19,10 @@ pub fn accumulate_f32(filterbank: &Filterbank<'_, f32>, spectrum: &[f32], out: &
                 offset += count;
             }
         }
-        Filterbank::Compact { segment_starts, weights } => {
+        Filterbank::Compact {
+            segment_starts,
+            weights,
+        } => {
             let base = segment_starts[0] as usize;
             let bands = out.len();
             out.fill(0.0);

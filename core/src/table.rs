@@ -147,7 +147,11 @@ impl fmt::Display for TableError {
                 "table fingerprint {table:#010x} does not match the configuration's \
                  {config:#010x}: regenerate the table with `stapes tables` for this configuration"
             ),
-            TableError::WrongLength { part, found, expected } => write!(
+            TableError::WrongLength {
+                part,
+                found,
+                expected,
+            } => write!(
                 f,
                 "table part `{part}` has {found} elements where the configuration needs \
                  {expected}: regenerate the table"
@@ -177,7 +181,15 @@ impl fmt::Display for TableError {
 }
 
 fn expect_len(part: &'static str, found: usize, expected: usize) -> Result<(), TableError> {
-    if found == expected { Ok(()) } else { Err(TableError::WrongLength { part, found, expected }) }
+    if found == expected {
+        Ok(())
+    } else {
+        Err(TableError::WrongLength {
+            part,
+            found,
+            expected,
+        })
+    }
 }
 
 impl<'a, W: WeightType> TableView<'a, W> {
@@ -186,7 +198,10 @@ impl<'a, W: WeightType> TableView<'a, W> {
     pub fn check(&self, config: &FrontEndConfig) -> Result<(), TableError> {
         let fp = config.fingerprint();
         if self.fingerprint != fp {
-            return Err(TableError::FingerprintMismatch { table: self.fingerprint, config: fp });
+            return Err(TableError::FingerprintMismatch {
+                table: self.fingerprint,
+                config: fp,
+            });
         }
         let bands = config.bands as usize;
         let bins = config.spectrum_bins();
@@ -203,7 +218,10 @@ impl<'a, W: WeightType> TableView<'a, W> {
                 }
                 expect_len("sparse weights", weights.len(), total)?;
             }
-            Filterbank::Compact { segment_starts, weights } => {
+            Filterbank::Compact {
+                segment_starts,
+                weights,
+            } => {
                 if config.triangles != TrianglePlacement::ExactFrequency {
                     return Err(TableError::CompactNotAvailable);
                 }
@@ -225,7 +243,11 @@ impl<'a, W: WeightType> TableView<'a, W> {
         match self.band_gains {
             Some(g) if wants_gains => expect_len("band gains", g.len(), bands)?,
             None if !wants_gains => {}
-            _ => return Err(TableError::GainsMismatch { expected: wants_gains }),
+            _ => {
+                return Err(TableError::GainsMismatch {
+                    expected: wants_gains,
+                });
+            }
         }
         Ok(())
     }

@@ -1,1 +1,38 @@
+//! Host side of stapes: the table generator, the independent `f64` reference,
+//! checks, WAV and `.npy` I/O, the demo clip and figures, and the CLI.
+#![deny(missing_docs)]
 
+/// Prints a line to stdout, ignoring a closed pipe (`stapes check | head`)
+/// instead of panicking.
+#[macro_export]
+macro_rules! say {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        let _ = writeln!(std::io::stdout().lock(), $($arg)*);
+    }};
+}
+
+/// Prints text to stdout without a newline, ignoring a closed pipe.
+#[macro_export]
+macro_rules! say_text {
+    ($text:expr) => {{
+        use std::io::Write as _;
+        let _ = write!(std::io::stdout().lock(), "{}", $text);
+    }};
+}
+
+pub mod check;
+pub mod cli;
+pub mod commands;
+pub mod compare;
+pub mod config_source;
+pub mod design;
+pub mod emit;
+pub mod generate;
+pub mod npy;
+pub mod output;
+pub mod plots;
+pub mod reference;
+pub mod run;
+pub mod synth;
+pub mod wav;

@@ -1,0 +1,112 @@
+//! Command-line interface definitions.
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand, ValueEnum};
+
+use crate::config_source::ConfigArgs;
+use crate::wav::ChannelChoice;
+
+/// stapes: log-mel front-end tables, checks and features for keyword spotting on microcontrollers.
+#[derive(Parser, Debug)]
+#[command(name = "stapes", version, about)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// Subcommands.
+#[derive(Subcommand, Debug)]
+pub enum Command {
+    /// Generate flash tables (Rust source, C header, checked blob) and print their sizes.
+    Tables(TablesArgs),
+    /// Run the core on a WAV (or the demo clip), compare with the f64 reference, exit 1 on failure.
+    Check(CheckArgs),
+    /// Write the core's log-mel frames for a WAV as .npy (float32, frames × bands, dB or ln).
+    Features(FeaturesArgs),
+    /// Synthesise the demo clip, generate tables, run and check the core, and draw the figures.
+    Demo(DemoArgs),
+}
+
+/// Filterbank form used by the core.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum FormChoice {
+    /// Per-band first bin, count, weights.
+    Sparse,
+    /// One weight per bin; adjacent triangles share it.
+    Compact,
+}
+
+/// `stapes tables`.
+#[derive(Args, Debug)]
+pub struct TablesArgs {
+    /// The configuration.
+    #[command(flatten)]
+    pub config: ConfigArgs,
+    /// Regenerate every shipped preset (ignores the configuration options).
+    #[arg(long)]
+    pub all_presets: bool,
+    /// Folder for the generated files.
+    #[arg(long, value_name = "DIR", default_value = "tables")]
+    pub out_dir: PathBuf,
+}
+
+/// Input selection shared by `check` and `features`.
+#[derive(Args, Debug, Clone)]
+pub struct InputArgs {
+    /// Channel of a stereo file.
+    #[arg(long, value_enum)]
+    pub channel: Option<ChannelChoice>,
+    /// Samples handed to the core per call (simulates DMA chunks); 0 = whole file at once.
+    #[arg(long, value_name = "N", default_value_t = 0)]
+    pub chunk_samples: usize,
+    /// Filterbank form the core reads.
+    #[arg(long, value_enum, default_value = "sparse")]
+    pub form: FormChoice,
+    /// Read the tables (and the configuration) from a blob made by `stapes tables`.
+    #[arg(long, value_name = "FILE.bin", conflicts_with_all = ["preset", "config"])]
+    pub table_blob: Option<PathBuf>,
+}
+
+/// `stapes check`.
+#[derive(Args, Debug)]
+pub struct CheckArgs {
+    /// WAV file (16-bit PCM or 32-bit float); the demo clip when absent.
+    #[arg(long, value_name = "FILE.wav")]
+    pub input: Option<PathBuf>,
+    /// The configuration.
+    #[command(flatten)]
+    pub config: ConfigArgs,
+    /// Input handling.
+    #[command(flatten)]
+    pub input_args: InputArgs,
+    /// Print every band's statistics, not only the worst ten.
+    #[arg(long)]
+    pub all_bands: bool,
+}
+
+/// `stapes features`.
+#[derive(Args, Debug)]
+pub struct FeaturesArgs {
+    /// WAV file (16-bit PCM or 32-bit float).
+    #[arg(long, value_name = "FILE.wav")]
+    pub input: PathBuf,
+    /// Output .npy file.
+    #[arg(long, value_name = "FILE.npy")]
+    pub output: PathBuf,
+    /// The configuration.
+    #[command(flatten)]
+    pub config: ConfigArgs,
+    /// Input handling.
+    #[command(flatten)]
+    pub input_args: InputArgs,
+}
+
+/// `stapes demo`.
+#[derive(Args, Debug)]
+pub struct DemoArgs {
+    /// Folder for everything the demo writes.
+    #[arg(long, value_name = "DIR", default_value = "stapes-demo")]
+    pub out_dir: PathBuf,
+}

@@ -1,0 +1,276 @@
+//! Quantised tables ready to emit: the [`Design`] turned into `f32` and Q15
+//! arrays, with a report of what quantisation cost.
+//!
+//! Q15 weights keep each band's designed gain: within each group (a sparse
+//! band, or a compact segment), weights are rounded so that their sum equals
+//! the rounded designed sum, by the largest-remainder rule. A compact band's
+//! sum is then within one LSB of its design (its rising and falling segments
+//! each round once).
+
+use stapes_core::config::{FrontEndConfig, LogKind};
+use stapes_core::table::{BinSpan, Filterbank, FilterbankForm, TableView};
+
+use crate::design::{Design, design};
+
+/// Q15 full scale.
+pub const Q15_ONE: f64 = 32768.0;
+/// Q15 gains are log offsets in 1/256 of the output unit (dB or natural log).
+pub const GAIN_OFFSET_STEPS_PER_UNIT: f64 = 256.0;
+
+/// Every array a front end may need, in both weight types and both forms.
+#[derive(Debug, Clone)]
+pub struct GeneratedTables {
+    /// The configuration.
+    pub config: FrontEndConfig,
+    /// The `f64` design the arrays came from.
+    pub design: Design,
+    /// Window, f32.
+    pub window_f32: Vec<f32>,
+    /// Window, Q15.
+    pub window_q15: Vec<i16>,
+    /// Sparse spans.
+    pub spans: Vec<BinSpan>,
+    /// Sparse weights, f32.
+    pub sparse_f32: Vec<f32>,
+    /// Sparse weights, Q15.
+    pub sparse_q15: Vec<i16>,
+    /// Compact segment starts (empty when the placement has no compact form).
+    pub segment_starts: Vec<u16>,
+    /// Compact weights, f32.
+    pub compact_f32: Vec<f32>,
+    /// Compact weights, Q15.
+    pub compact_q15: Vec<i16>,
+    /// Gains, f32 (linear multipliers).
+    pub gains_f32: Option<Vec<f32>>,
+    /// Gains for Q15 tables: log offsets in 1/256 output units.
+    pub gains_q15: Option<Vec<i16>>,
+    /// What quantisation cost.
+    pub quantisation: QuantisationReport,
+}
+
+/// Worst errors introduced by quantisation.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct QuantisationReport {
+    /// Largest |Q15 weight − designed weight| in the sparse form.
+    pub sparse_q15_weight: f64,
+    /// Largest |band sum − designed sum| / designed sum, sparse Q15.
+    pub sparse_q15_band_gain: f64,
+    /// Largest |Q15 weight − designed weight| in the compact form.
+    pub compact_q15_weight: f64,
+    /// Largest relative band-sum error in the compact Q15 form.
+    pub compact_q15_band_gain: f64,
+    /// Largest |f32 weight − designed weight|, either form.
+    pub f32_weight: f64,
+    /// Largest |Q15 window − designed window|.
+    pub window_q15: f64,
+}
+
+/// Rounds `values · Q15_ONE` to integers in `0 ..= 32767` whose sum is the
+/// rounded designed sum (largest remainder first), as far as the clamp allows.
+pub fn quantise_group(values: &[f64]) -> Vec<i16> {
+    let scaled: Vec<f64> = values.iter().map(|v| v * Q15_ONE).collect();
+    let target = scaled.iter().sum::<f64>().round() as i64;
+    let mut q: Vec<i64> = scaled
+        .iter()
+        .map(|v| (v.floor() as i64).clamp(0, 32767))
+        .collect();
+    let mut order: Vec<usize> = (0..q.len()).collect();
+    let mut diff = target - q.iter().sum::<i64>();
+    // Add to the largest fractional parts; take from the smallest.
+    order.sort_by(|&a, &b| {
+        let fa = scaled[a] - scaled[a].floor();
+        let fb = scaled[b] - scaled[b].floor();
+        fb.total_cmp(&fa).then(a.cmp(&b))
+    });
+    let mut i = 0;
+    while diff > 0 && i < 2 * order.len() {
+        let k = order[i % order.len()];
+        if q[k] < 32767 {
+            q[k] += 1;
+            diff -= 1;
+        }
+        i += 1;
+    }
+    i = 0;
+    while diff < 0 && i < 2 * order.len() {
+        let k = order[order.len() - 1 - i % order.len()];
+        if q[k] > 0 {
+            q[k] -= 1;
+            diff += 1;
+        }
+        i += 1;
+    }
+    q.into_iter().map(|v| v as i16).collect()
+}
+
+fn q15_round(v: f64) -> i16 {
+    (v * Q15_ONE).round().clamp(-32768.0, 32767.0) as i16
+}
+
+fn max_abs_diff(a: impl Iterator<Item = f64>, b: impl Iterator<Item = f64>) -> f64 {
+    a.zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max)
+}
+
+impl GeneratedTables {
+    /// Designs and quantises the tables of a validated configuration.
+    pub fn new(config: &FrontEndConfig) -> GeneratedTables {
+        let design = design(config);
+        let mut report = QuantisationReport::default();
+
+        let window_f32: Vec<f32> = design.window.iter().map(|&w| w as f32).collect();
+        let window_q15: Vec<i16> = design.window.iter().map(|&w| q15_round(w)).collect();
+        report.window_q15 = max_abs_diff(
+            window_q15.iter().map(|&q| q as f64 / Q15_ONE),
+            design.window.iter().copied(),
+        );
+
+        let mut spans = Vec::new();
+        let (mut sparse_f32, mut sparse_q15) = (Vec::new(), Vec::new());
+        for band in &design.bands {
+            spans.push([band.first_bin as u16, band.weights.len() as u16]);
+            let q = quantise_group(&band.weights);
+            report.sparse_q15_weight = report.sparse_q15_weight.max(max_abs_diff(
+                q.iter().map(|&v| v as f64 / Q15_ONE),
+                band.weights.iter().copied(),
+            ));
+            let designed: f64 = band.weights.iter().sum();
+            let got: f64 = q.iter().map(|&v| v as f64).sum::<f64>() / Q15_ONE;
+            report.sparse_q15_band_gain = report
+                .sparse_q15_band_gain
+                .max((got - designed).abs() / designed);
+            sparse_q15.extend(q);
+            sparse_f32.extend(band.weights.iter().map(|&w| w as f32));
+        }
+        report.f32_weight = max_abs_diff(
+            sparse_f32.iter().map(|&w| w as f64),
+            design.bands.iter().flat_map(|b| b.weights.iter().copied()),
+        );
+
+        let (mut segment_starts, mut compact_f32, mut compact_q15) = (vec![], vec![], vec![]);
+        if let Some(compact) = &design.compact {
+            segment_starts = compact.segment_starts.iter().map(|&s| s as u16).collect();
+            let base = compact.segment_starts[0];
+            for pair in compact.segment_starts.windows(2) {
+                compact_q15.extend(quantise_group(
+                    &compact.weights[pair[0] - base..pair[1] - base],
+                ));
+            }
+            compact_f32 = compact.weights.iter().map(|&w| w as f32).collect();
+            report.compact_q15_weight = max_abs_diff(
+                compact_q15.iter().map(|&q| q as f64 / Q15_ONE),
+                compact.weights.iter().copied(),
+            );
+            report.f32_weight = report.f32_weight.max(max_abs_diff(
+                compact_f32.iter().map(|&w| w as f64),
+                compact.weights.iter().copied(),
+            ));
+            report.compact_q15_band_gain = compact_band_gain_error(&design, &compact_q15);
+        }
+
+        let gains_f32 = design
+            .gains
+            .as_ref()
+            .map(|g| g.iter().map(|&v| v as f32).collect());
+        let gains_q15 = design.gains.as_ref().map(|g| {
+            g.iter()
+                .map(|&v| {
+                    let unit = match config.log {
+                        LogKind::Decibel => 10.0 * v.log10(),
+                        LogKind::Natural => v.ln(),
+                    };
+                    (unit * GAIN_OFFSET_STEPS_PER_UNIT)
+                        .round()
+                        .clamp(-32768.0, 32767.0) as i16
+                })
+                .collect()
+        });
+
+        GeneratedTables {
+            config: *config,
+            design,
+            window_f32,
+            window_q15,
+            spans,
+            sparse_f32,
+            sparse_q15,
+            segment_starts,
+            compact_f32,
+            compact_q15,
+            gains_f32,
+            gains_q15,
+            quantisation: report,
+        }
+    }
+
+    /// Whether the compact form exists for this configuration.
+    pub fn has_compact(&self) -> bool {
+        !self.segment_starts.is_empty()
+    }
+
+    /// The forms this configuration has.
+    pub fn forms(&self) -> Vec<FilterbankForm> {
+        let mut forms = vec![FilterbankForm::Sparse];
+        if self.has_compact() {
+            forms.push(FilterbankForm::Compact);
+        }
+        forms
+    }
+
+    /// An `f32` view borrowing these tables.
+    pub fn view_f32(&self, form: FilterbankForm) -> TableView<'_, f32> {
+        TableView {
+            fingerprint: self.config.fingerprint(),
+            window: &self.window_f32,
+            filterbank: match form {
+                FilterbankForm::Sparse => Filterbank::Sparse {
+                    spans: &self.spans,
+                    weights: &self.sparse_f32,
+                },
+                FilterbankForm::Compact => Filterbank::Compact {
+                    segment_starts: &self.segment_starts,
+                    weights: &self.compact_f32,
+                },
+            },
+            band_gains: self.gains_f32.as_deref(),
+        }
+    }
+
+    /// A Q15 view borrowing these tables.
+    pub fn view_q15(&self, form: FilterbankForm) -> TableView<'_, i16> {
+        TableView {
+            fingerprint: self.config.fingerprint(),
+            window: &self.window_q15,
+            filterbank: match form {
+                FilterbankForm::Sparse => Filterbank::Sparse {
+                    spans: &self.spans,
+                    weights: &self.sparse_q15,
+                },
+                FilterbankForm::Compact => Filterbank::Compact {
+                    segment_starts: &self.segment_starts,
+                    weights: &self.compact_q15,
+                },
+            },
+            band_gains: self.gains_q15.as_deref(),
+        }
+    }
+}
+
+/// Per band, rising sum of its own segment plus falling sum of the next.
+fn compact_band_gain_error(design: &Design, q: &[i16]) -> f64 {
+    let compact = design.compact.as_ref().expect("compact design");
+    let starts = &compact.segment_starts;
+    let base = starts[0];
+    let mut worst = 0.0f64;
+    for (b, band) in design.bands.iter().enumerate() {
+        let rising = starts[b] - base..starts[b + 1] - base;
+        let falling = starts[b + 1] - base..starts[b + 2] - base;
+        let got: f64 = q[rising].iter().map(|&v| v as f64 / Q15_ONE).sum::<f64>()
+            + q[falling]
+                .iter()
+                .map(|&v| 1.0 - v as f64 / Q15_ONE)
+                .sum::<f64>();
+        let designed: f64 = band.weights.iter().sum();
+        worst = worst.max((got - designed).abs() / designed);
+    }
+    worst
+}

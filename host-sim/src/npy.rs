@@ -1,0 +1,38 @@
+//! NumPy `.npy` output (C order, little-endian), written atomically.
+
+use std::io::BufWriter;
+use std::path::Path;
+
+use anyhow::Result;
+use npyz::WriterBuilder;
+
+use crate::output::write_atomic_with;
+
+/// Writes a `rows × cols` array of `f32` (`<f4`).
+pub fn write_f32(
+    path: &Path,
+    rows: usize,
+    cols: usize,
+    data: impl IntoIterator<Item = f32>,
+) -> Result<()> {
+    write_atomic_with(path, |file| {
+        let mut w = npyz::WriteOptions::new()
+            .default_dtype()
+            .shape(&[rows as u64, cols as u64])
+            .writer(BufWriter::new(file))
+            .begin_nd()?;
+        w.extend(data)?;
+        w.finish()?;
+        Ok(())
+    })
+}
+
+/// Reads a 2-D `f32` array: `(rows, cols, data)`.
+pub fn read_f32(path: &Path) -> Result<(usize, usize, Vec<f32>)> {
+    let bytes = std::fs::read(path)?;
+    let npy = npyz::NpyFile::new(&bytes[..])?;
+    let shape = npy.shape().to_vec();
+    anyhow::ensure!(shape.len() == 2, "{} is not a 2-D array", path.display());
+    let data = npy.into_vec::<f32>()?;
+    Ok((shape[0] as usize, shape[1] as usize, data))
+}

@@ -1,0 +1,222 @@
+//! PNG figures: log-mel spectrograms (time in s; band index on the left, band
+//! centre in Hz on the right; a colour scale), the error between two runs, and
+//! the filterbank's triangles.
+
+use std::path::Path;
+use std::sync::Once;
+
+use anyhow::{Result, anyhow};
+use plotters::prelude::*;
+use plotters::style::FontStyle;
+
+static FONT: Once = Once::new();
+const FONT_NAME: &str = "stapes-sans";
+
+fn font() -> &'static str {
+    FONT.call_once(|| {
+        // DejaVu Sans (Bitstream Vera licence, see assets/DejaVuSans-LICENSE.txt):
+        // embedded so plots need no system font libraries.
+        let _ = plotters::style::register_font(
+            FONT_NAME,
+            FontStyle::Normal,
+            include_bytes!("../assets/DejaVuSans.ttf"),
+        );
+    });
+    FONT_NAME
+}
+
+/// A perceptually ordered palette (dark blue → teal → yellow), interpolated.
+fn palette(t: f64) -> RGBColor {
+    const STOPS: [(f64, (u8, u8, u8)); 5] = [
+        (0.0, (20, 12, 60)),
+        (0.3, (50, 70, 140)),
+        (0.55, (30, 150, 140)),
+        (0.8, (140, 210, 80)),
+        (1.0, (250, 235, 40)),
+    ];
+    let t = if t.is_finite() {
+        t.clamp(0.0, 1.0)
+    } else {
+        0.0
+    };
+    for pair in STOPS.windows(2) {
+        let ((t0, c0), (t1, c1)) = (pair[0], pair[1]);
+        if t <= t1 {
+            let u = (t - t0) / (t1 - t0);
+            let mix = |a: u8, b: u8| (a as f64 + (b as f64 - a as f64) * u).round() as u8;
+            return RGBColor(mix(c0.0, c1.0), mix(c0.1, c1.1), mix(c0.2, c1.2));
+        }
+    }
+    RGBColor(250, 235, 40)
+}
+
+fn err<E: std::fmt::Display>(path: &Path) -> impl Fn(E) -> anyhow::Error + '_ {
+    move |e| anyhow!("cannot draw {}: {e}", path.display())
+}
+
+/// What a heat map shows.
+pub struct HeatMap<'a> {
+    /// Title line.
+    pub title: &'a str,
+    /// Rows are frames, columns bands; NaN cells are drawn grey.
+    pub values: &'a [Vec<f64>],
+    /// Seconds between frames.
+    pub hop_s: f64,
+    /// Band centre frequencies in Hz, for the right axis.
+    pub centres_hz: &'a [f64],
+    /// Colour scale range.
+    pub range: (f64, f64),
+    /// Colour scale label.
+    pub unit: &'a str,
+}
+
+/// Draws a frames × bands heat map to a PNG, written whole or not at all.
+pub fn heat_map(path: &Path, map: &HeatMap<'_>) -> Result<()> {
+    let f = font();
+    let tmp = tempfile::Builder::new()
+        .suffix(".png")
+        .tempfile_in(path.parent().unwrap_or(Path::new(".")))?;
+    {
+        let root = BitMapBackend::new(tmp.path(), (1100, 520)).into_drawing_area();
+        root.fill(&WHITE).map_err(err(path))?;
+        let (main, bar) = root.split_horizontally(960);
+        let frames = map.values.len();
+        let bands = map.centres_hz.len();
+        let t_max = (frames.max(1) as f64) * map.hop_s;
+        let centres = map.centres_hz.to_vec();
+        let mut chart = ChartBuilder::on(&main)
+            .caption(map.title, (f, 20))
+            .margin(10)
+            .x_label_area_size(40)
+            .y_label_area_size(55)
+            .right_y_label_area_size(65)
+            .build_cartesian_2d(0f64..t_max, 0f64..bands as f64)
+            .map_err(err(path))?
+            .set_secondary_coord(0f64..t_max, 0f64..bands as f64);
+        chart
+            .configure_mesh()
+            .disable_mesh()
+            .x_desc("time (s)")
+            .y_desc("band index")
+            .y_label_formatter(&|b: &f64| format!("{b:.0}"))
+            .label_style((f, 13))
+            .axis_desc_style((f, 14))
+            .draw()
+            .map_err(err(path))?;
+        chart
+            .configure_secondary_axes()
+            .y_desc("band centre (Hz)")
+            .y_labels(8)
+            .y_label_formatter(&|b: &f64| {
+                let i = (b.floor() as usize).min(centres.len().saturating_sub(1));
+                format!("{:.0}", centres.get(i).copied().unwrap_or(0.0))
+            })
+            .label_style((f, 13))
+            .axis_desc_style((f, 14))
+            .draw()
+            .map_err(err(path))?;
+        let (lo, hi) = map.range;
+        let span = (hi - lo).max(1e-12);
+        chart
+            .draw_series(map.values.iter().enumerate().flat_map(|(i, row)| {
+                row.iter().enumerate().map(move |(b, &v)| {
+                    let t0 = i as f64 * map.hop_s;
+                    let colour = if v.is_nan() {
+                        RGBColor(200, 200, 200)
+                    } else {
+                        palette((v - lo) / span)
+                    };
+                    Rectangle::new(
+                        [(t0, b as f64), (t0 + map.hop_s, b as f64 + 1.0)],
+                        colour.filled(),
+                    )
+                })
+            }))
+            .map_err(err(path))?;
+
+        let mut scale = ChartBuilder::on(&bar)
+            .margin_top(40)
+            .margin_bottom(50)
+            .margin_right(10)
+            .y_label_area_size(55)
+            .caption(map.unit, (f, 14))
+            .build_cartesian_2d(0f64..1f64, lo..hi)
+            .map_err(err(path))?;
+        scale
+            .configure_mesh()
+            .disable_mesh()
+            .disable_x_axis()
+            .y_label_formatter(&|v: &f64| {
+                if span < 0.1 {
+                    format!("{v:.1e}")
+                } else {
+                    format!("{v:.0}")
+                }
+            })
+            .label_style((f, 12))
+            .draw()
+            .map_err(err(path))?;
+        let steps = 100;
+        scale
+            .draw_series((0..steps).map(|s| {
+                let v0 = lo + span * s as f64 / steps as f64;
+                let v1 = lo + span * (s + 1) as f64 / steps as f64;
+                Rectangle::new(
+                    [(0.0, v0), (1.0, v1)],
+                    palette(s as f64 / steps as f64).filled(),
+                )
+            }))
+            .map_err(err(path))?;
+        root.present().map_err(err(path))?;
+    }
+    tmp.persist(path)
+        .map_err(|e| anyhow!("cannot write {}: {e}", path.display()))?;
+    Ok(())
+}
+
+/// Draws each band's weights against frequency.
+pub fn filterbank(path: &Path, title: &str, bands: &[Vec<(f64, f64)>], max_hz: f64) -> Result<()> {
+    let f = font();
+    let tmp = tempfile::Builder::new()
+        .suffix(".png")
+        .tempfile_in(path.parent().unwrap_or(Path::new(".")))?;
+    {
+        let root = BitMapBackend::new(tmp.path(), (1100, 420)).into_drawing_area();
+        root.fill(&WHITE).map_err(err(path))?;
+        let peak = bands
+            .iter()
+            .flatten()
+            .map(|p| p.1)
+            .fold(0.0f64, f64::max)
+            .max(1e-12)
+            * 1.05;
+        let mut chart = ChartBuilder::on(&root)
+            .caption(title, (f, 20))
+            .margin(12)
+            .x_label_area_size(40)
+            .y_label_area_size(55)
+            .build_cartesian_2d(0f64..max_hz, 0f64..peak)
+            .map_err(err(path))?;
+        chart
+            .configure_mesh()
+            .x_desc("frequency (Hz)")
+            .y_desc("weight")
+            .label_style((f, 13))
+            .axis_desc_style((f, 14))
+            .draw()
+            .map_err(err(path))?;
+        for (b, points) in bands.iter().enumerate() {
+            let colour = palette(b as f64 / bands.len().max(2) as f64 * 0.85);
+            chart
+                .draw_series(LineSeries::new(
+                    points.iter().copied(),
+                    colour.stroke_width(2),
+                ))
+                .map_err(err(path))?;
+        }
+        root.present().map_err(err(path))?;
+    }
+    tmp.persist(path)
+        .map_err(|e| anyhow!("cannot write {}: {e}", path.display()))?;
+    Ok(())
+}

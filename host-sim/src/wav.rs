@@ -1,0 +1,179 @@
+//! WAV input and output.
+//!
+//! Accepted: 16-bit PCM and 32-bit float, mono; stereo when a channel choice is
+//! given. Anything else, a sample rate other than the configuration's, a
+//! truncated file or a non-finite float sample is an error that says what to
+//! change. Nothing is resampled.
+
+use std::path::Path;
+
+use anyhow::{Result, anyhow, bail};
+use clap::ValueEnum;
+use hound::{SampleFormat, WavReader, WavSpec, WavWriter};
+
+use crate::output::write_atomic_with;
+use crate::run::Samples;
+
+/// Which channel of a stereo file to use.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum ChannelChoice {
+    /// The first channel.
+    Left,
+    /// The second channel.
+    Right,
+    /// The average of both (integer average, rounded towards −∞, for 16-bit).
+    Mix,
+}
+
+/// A decoded file.
+#[derive(Debug, Clone)]
+pub struct WavInput {
+    /// Sample rate in Hz.
+    pub sample_rate_hz: u32,
+    /// The samples.
+    pub samples: Samples,
+}
+
+fn describe_hound(path: &Path, e: hound::Error) -> anyhow::Error {
+    match e {
+        hound::Error::IoError(io) if io.kind() == std::io::ErrorKind::UnexpectedEof => anyhow!(
+            "{} is truncated: its data ends before the length its header states; \
+             re-export or re-copy the recording",
+            path.display()
+        ),
+        hound::Error::IoError(io) => anyhow!("cannot read {}: {io}", path.display()),
+        hound::Error::FormatError(what) => anyhow!(
+            "{} is not a readable WAV file ({what}); give a RIFF/WAVE file with 16-bit PCM \
+             or 32-bit float samples",
+            path.display()
+        ),
+        hound::Error::Unsupported => anyhow!(
+            "{} uses a WAV encoding this tool does not read; convert it to 16-bit PCM or \
+             32-bit float",
+            path.display()
+        ),
+        other => anyhow!("{} is not a usable WAV file: {other}", path.display()),
+    }
+}
+
+/// Reads `path`, picking a channel of a stereo file with `channel`.
+pub fn read_wav(path: &Path, channel: Option<ChannelChoice>) -> Result<WavInput> {
+    let mut reader = WavReader::open(path).map_err(|e| describe_hound(path, e))?;
+    let spec = reader.spec();
+    let channels = spec.channels as usize;
+    let pick = match (channels, channel) {
+        (1, _) => None,
+        (2, Some(c)) => Some(c),
+        (2, None) => bail!(
+            "{} is stereo: choose a channel with --channel left, right or mix",
+            path.display()
+        ),
+        (n, _) => bail!(
+            "{} has {n} channels: give a mono or stereo file",
+            path.display()
+        ),
+    };
+    let samples = match (spec.sample_format, spec.bits_per_sample) {
+        (SampleFormat::Int, 16) => {
+            let raw: Vec<i16> = reader
+                .samples::<i16>()
+                .collect::<Result<_, _>>()
+                .map_err(|e| describe_hound(path, e))?;
+            check_whole_frames(path, raw.len(), channels)?;
+            Samples::I16(match pick {
+                None => raw,
+                Some(ChannelChoice::Left) => raw.chunks_exact(2).map(|p| p[0]).collect(),
+                Some(ChannelChoice::Right) => raw.chunks_exact(2).map(|p| p[1]).collect(),
+                Some(ChannelChoice::Mix) => raw
+                    .chunks_exact(2)
+                    .map(|p| ((p[0] as i32 + p[1] as i32) >> 1) as i16)
+                    .collect(),
+            })
+        }
+        (SampleFormat::Float, 32) => {
+            let raw: Vec<f32> = reader
+                .samples::<f32>()
+                .collect::<Result<_, _>>()
+                .map_err(|e| describe_hound(path, e))?;
+            check_whole_frames(path, raw.len(), channels)?;
+            if let Some(i) = raw.iter().position(|v| !v.is_finite()) {
+                bail!(
+                    "{} holds a non-finite sample ({}) at sample {} (channel-interleaved \
+                     index {i}): repair or re-export the recording",
+                    path.display(),
+                    raw[i],
+                    i / channels
+                );
+            }
+            Samples::F32(match pick {
+                None => raw,
+                Some(ChannelChoice::Left) => raw.chunks_exact(2).map(|p| p[0]).collect(),
+                Some(ChannelChoice::Right) => raw.chunks_exact(2).map(|p| p[1]).collect(),
+                Some(ChannelChoice::Mix) => {
+                    raw.chunks_exact(2).map(|p| (p[0] + p[1]) * 0.5).collect()
+                }
+            })
+        }
+        (format, bits) => bail!(
+            "{} holds {bits}-bit {} samples: give 16-bit PCM or 32-bit float \
+             (convert the file first)",
+            path.display(),
+            if format == SampleFormat::Int {
+                "integer"
+            } else {
+                "float"
+            }
+        ),
+    };
+    Ok(WavInput {
+        sample_rate_hz: spec.sample_rate,
+        samples,
+    })
+}
+
+fn check_whole_frames(path: &Path, len: usize, channels: usize) -> Result<()> {
+    if len % channels != 0 {
+        bail!(
+            "{} is truncated in the middle of a sample frame; re-export it",
+            path.display()
+        );
+    }
+    Ok(())
+}
+
+/// Reads `path` and checks its rate against the configuration's.
+pub fn read_wav_for(
+    path: &Path,
+    channel: Option<ChannelChoice>,
+    sample_rate_hz: u32,
+) -> Result<Samples> {
+    let wav = read_wav(path, channel)?;
+    if wav.sample_rate_hz != sample_rate_hz {
+        bail!(
+            "{} is sampled at {} Hz but the configuration expects {sample_rate_hz} Hz: \
+             resample the file, or choose a configuration for {} Hz (nothing is resampled here)",
+            path.display(),
+            wav.sample_rate_hz,
+            wav.sample_rate_hz
+        );
+    }
+    Ok(wav.samples)
+}
+
+/// Writes mono 16-bit PCM atomically.
+pub fn write_wav_i16(path: &Path, sample_rate_hz: u32, samples: &[i16]) -> Result<()> {
+    let spec = WavSpec {
+        channels: 1,
+        sample_rate: sample_rate_hz,
+        bits_per_sample: 16,
+        sample_format: SampleFormat::Int,
+    };
+    write_atomic_with(path, |file| {
+        let mut w = WavWriter::new(std::io::BufWriter::new(file), spec)?;
+        for &s in samples {
+            w.write_sample(s)?;
+        }
+        w.finalize()?;
+        Ok(())
+    })
+}
