@@ -27,6 +27,14 @@ pub fn write_atomic_with(
         .with_context(|| format!("cannot create a temporary file in {}", dir.display()))?;
     fill(tmp.as_file_mut()).with_context(|| format!("cannot write {}", path.display()))?;
     tmp.as_file_mut().sync_all().ok();
+    // Temporary files are private; finished outputs get ordinary permissions.
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        tmp.as_file()
+            .set_permissions(std::fs::Permissions::from_mode(0o644))
+            .ok();
+    }
     tmp.persist(path)
         .with_context(|| format!("cannot move the finished file to {}", path.display()))?;
     Ok(())

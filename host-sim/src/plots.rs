@@ -25,6 +25,19 @@ fn font() -> &'static str {
     FONT_NAME
 }
 
+fn finish_png(tmp: tempfile::NamedTempFile, path: &Path) -> Result<()> {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        tmp.as_file()
+            .set_permissions(std::fs::Permissions::from_mode(0o644))
+            .ok();
+    }
+    tmp.persist(path)
+        .map_err(|e| anyhow!("cannot write {}: {e}", path.display()))?;
+    Ok(())
+}
+
 /// A perceptually ordered palette (dark blue → teal → yellow), interpolated.
 fn palette(t: f64) -> RGBColor {
     const STOPS: [(f64, (u8, u8, u8)); 5] = [
@@ -169,9 +182,7 @@ pub fn heat_map(path: &Path, map: &HeatMap<'_>) -> Result<()> {
             .map_err(err(path))?;
         root.present().map_err(err(path))?;
     }
-    tmp.persist(path)
-        .map_err(|e| anyhow!("cannot write {}: {e}", path.display()))?;
-    Ok(())
+    finish_png(tmp, path)
 }
 
 /// Draws each band's weights against frequency.
@@ -216,7 +227,5 @@ pub fn filterbank(path: &Path, title: &str, bands: &[Vec<(f64, f64)>], max_hz: f
         }
         root.present().map_err(err(path))?;
     }
-    tmp.persist(path)
-        .map_err(|e| anyhow!("cannot write {}: {e}", path.display()))?;
-    Ok(())
+    finish_png(tmp, path)
 }

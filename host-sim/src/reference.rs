@@ -23,7 +23,8 @@ pub struct Reference {
     fft: Arc<dyn Fft<f64>>,
 }
 
-fn to_mel(scale: MelScale, f: f64) -> f64 {
+/// Hz to mels, written out independently of the core's scale module.
+pub fn to_mel(scale: MelScale, f: f64) -> f64 {
     match scale {
         MelScale::OShaughnessy => 2595.0 * (f / 700.0).ln_1p() / std::f64::consts::LN_10,
         MelScale::Slaney if f < 1000.0 => 3.0 * f / 200.0,
@@ -31,7 +32,8 @@ fn to_mel(scale: MelScale, f: f64) -> f64 {
     }
 }
 
-fn from_mel(scale: MelScale, m: f64) -> f64 {
+/// Mels to Hz, written out independently of the core's scale module.
+pub fn from_mel(scale: MelScale, m: f64) -> f64 {
     match scale {
         MelScale::OShaughnessy => 700.0 * (10f64.powf(m / 2595.0) - 1.0),
         MelScale::Slaney if m < 15.0 => 200.0 * m / 3.0,

@@ -34,6 +34,18 @@ pub struct WavInput {
     pub samples: Samples,
 }
 
+/// A failure while reading samples after a good header: the data is short.
+fn describe_sample_error(path: &Path, e: hound::Error) -> anyhow::Error {
+    match e {
+        hound::Error::IoError(io) => anyhow!(
+            "{} is truncated: its data ends before the length its header states ({io}); \
+             re-export or re-copy the recording",
+            path.display()
+        ),
+        other => describe_hound(path, other),
+    }
+}
+
 fn describe_hound(path: &Path, e: hound::Error) -> anyhow::Error {
     match e {
         hound::Error::IoError(io) if io.kind() == std::io::ErrorKind::UnexpectedEof => anyhow!(
@@ -78,7 +90,7 @@ pub fn read_wav(path: &Path, channel: Option<ChannelChoice>) -> Result<WavInput>
             let raw: Vec<i16> = reader
                 .samples::<i16>()
                 .collect::<Result<_, _>>()
-                .map_err(|e| describe_hound(path, e))?;
+                .map_err(|e| describe_sample_error(path, e))?;
             check_whole_frames(path, raw.len(), channels)?;
             Samples::I16(match pick {
                 None => raw,
@@ -94,7 +106,7 @@ pub fn read_wav(path: &Path, channel: Option<ChannelChoice>) -> Result<WavInput>
             let raw: Vec<f32> = reader
                 .samples::<f32>()
                 .collect::<Result<_, _>>()
-                .map_err(|e| describe_hound(path, e))?;
+                .map_err(|e| describe_sample_error(path, e))?;
             check_whole_frames(path, raw.len(), channels)?;
             if let Some(i) = raw.iter().position(|v| !v.is_finite()) {
                 bail!(

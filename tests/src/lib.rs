@@ -1,1 +1,39 @@
+//! Helpers shared by the integration tests.
 
+use rand::{Rng, SeedableRng};
+use rand_pcg::Pcg64Mcg;
+use stapes_core::config::FrontEndConfig;
+use stapes_core::presets;
+
+/// Every shipped preset.
+pub fn all_presets() -> Vec<(&'static str, FrontEndConfig)> {
+    presets::ALL.to_vec()
+}
+
+/// Deterministic random generator for a test.
+pub fn rng(seed: u64) -> Pcg64Mcg {
+    Pcg64Mcg::seed_from_u64(seed)
+}
+
+/// Uniform noise in [-amplitude, amplitude).
+pub fn noise(rng: &mut Pcg64Mcg, len: usize, amplitude: f64) -> Vec<f64> {
+    (0..len)
+        .map(|_| (rng.random::<f64>() * 2.0 - 1.0) * amplitude)
+        .collect()
+}
+
+/// Noise as 16-bit samples.
+pub fn noise_i16(rng: &mut Pcg64Mcg, len: usize, amplitude: f64) -> Vec<i16> {
+    noise(rng, len, amplitude)
+        .iter()
+        .map(|&v| (v * 32767.0).round() as i16)
+        .collect()
+}
+
+/// The repository root (the tests crate lives one level below it).
+pub fn repo_root() -> std::path::PathBuf {
+    std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .parent()
+        .expect("tests/ has a parent")
+        .to_path_buf()
+}

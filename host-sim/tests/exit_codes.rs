@@ -1,0 +1,63 @@
+//! The `stapes` binary's exit status: 0 on success, 1 when a check exceeds
+//! its tolerance, 2 for unusable input, with the reason on stderr.
+
+use std::process::Command;
+
+use stapes_sim::emit::{BlobContents, blob};
+use stapes_sim::generate::GeneratedTables;
+
+fn stapes(args: &[&str]) -> (i32, String, String) {
+    let out = Command::new(env!("CARGO_BIN_EXE_stapes"))
+        .args(args)
+        .output()
+        .expect("run stapes");
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stdout).into(),
+        String::from_utf8_lossy(&out.stderr).into(),
+    )
+}
+
+#[test]
+fn a_passing_check_exits_zero() {
+    let (code, out, _) = stapes(&["check", "--preset", "tiny16k-10"]);
+    assert_eq!(code, 0, "{out}");
+    assert!(out.contains("PASS"));
+}
+
+#[test]
+fn a_failing_check_exits_one() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut t = GeneratedTables::new(&stapes_core::presets::TINY16K_10);
+    for w in &mut t.sparse_f32[..20] {
+        *w *= 1.5;
+    }
+    let path = dir.path().join("off.bin");
+    std::fs::write(&path, blob(&t, BlobContents::ALL)).unwrap();
+    let (code, out, _) = stapes(&["check", "--table-blob", path.to_str().unwrap()]);
+    assert_eq!(code, 1, "{out}");
+    assert!(out.contains("FAIL"));
+}
+
+#[test]
+fn unusable_input_exits_two_with_the_reason() {
+    let dir = tempfile::tempdir().unwrap();
+    let (code, _, err) = stapes(&["check", "--preset", "nope"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("unknown preset `nope`"), "{err}");
+    let bad = dir.path().join("corrupt.bin");
+    std::fs::write(&bad, b"STAPESTB but nothing else of a blob").unwrap();
+    let (code, _, err) = stapes(&["check", "--table-blob", bad.to_str().unwrap()]);
+    assert_eq!(code, 2);
+    assert!(err.contains("table blob"), "{err}");
+    let (code, _, err) = stapes(&[
+        "features",
+        "--input",
+        "/nonexistent.wav",
+        "--output",
+        dir.path().join("x.npy").to_str().unwrap(),
+    ]);
+    assert_eq!(code, 2);
+    assert!(err.contains("/nonexistent.wav"), "{err}");
+    assert!(!dir.path().join("x.npy").exists());
+}

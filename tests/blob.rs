@@ -1,0 +1,217 @@
+//! Blob round trip and rejection of corrupt blobs.
+
+use stapes_core::blob::{BlobError, SectionKind, TableBlob, blob_crc};
+use stapes_core::crc32::Crc32;
+use stapes_core::float_path::FloatFrontEnd;
+use stapes_core::presets::{SPEECH16K_40, TINY16K_10};
+use stapes_core::table::{FilterbankForm, TableError};
+use stapes_sim::emit::{BlobContents, blob};
+use stapes_sim::generate::GeneratedTables;
+
+/// Blob bytes in 4-byte-aligned storage, as a board's flash would hold them.
+struct Aligned(Vec<u32>, usize);
+
+impl Aligned {
+    fn new(bytes: &[u8]) -> Self {
+        let mut words = vec![0u32; bytes.len().div_ceil(4) + 1];
+        bytemuck::cast_slice_mut::<u32, u8>(&mut words)[..bytes.len()].copy_from_slice(bytes);
+        Aligned(words, bytes.len())
+    }
+    fn bytes(&self) -> &[u8] {
+        &bytemuck::cast_slice::<u32, u8>(&self.0)[..self.1]
+    }
+}
+
+fn patch_crc(b: &mut [u8]) {
+    let crc = blob_crc(b);
+    b[28..32].copy_from_slice(&crc.to_le_bytes());
+}
+
+#[test]
+fn crc32_matches_the_standard_check_value_and_crc32fast() {
+    // CRC-32/ISO-HDLC check value of "123456789" is 0xCBF43926 (the CRC
+    // catalogue's standard check, common practice); crc32fast is a
+    // general-purpose implementation from the registry.
+    let mut c = Crc32::new();
+    c.update(b"123456789");
+    assert_eq!(c.finish(), 0xCBF4_3926);
+    let data: Vec<u8> = (0..10_000u32).map(|i| (i * 7 + i / 13) as u8).collect();
+    let mut c = Crc32::new();
+    c.update(&data[..5000]);
+    c.update(&data[5000..]);
+    assert_eq!(c.finish(), crc32fast::hash(&data));
+}
+
+#[test]
+fn round_trip_every_preset_form_and_weight_type() {
+    for (name, c) in stapes_tests::all_presets() {
+        let t = GeneratedTables::new(&c);
+        let stored = Aligned::new(&blob(&t, BlobContents::ALL));
+        let parsed = TableBlob::parse(stored.bytes()).unwrap_or_else(|e| panic!("{name}: {e}"));
+        assert_eq!(parsed.config(), c, "{name}");
+        for form in t.forms() {
+            assert_eq!(
+                parsed.view::<f32>(form).unwrap(),
+                t.view_f32(form),
+                "{name} {form:?} f32"
+            );
+            assert_eq!(
+                parsed.view::<i16>(form).unwrap(),
+                t.view_q15(form),
+                "{name} {form:?} q15"
+            );
+        }
+        if !t.has_compact() {
+            assert_eq!(
+                parsed.view::<f32>(FilterbankForm::Compact).unwrap_err(),
+                BlobError::MissingSection {
+                    kind: SectionKind::CompactSegments
+                }
+            );
+        }
+    }
+}
+
+#[test]
+fn corrupt_blobs_are_rejected() {
+    let t = GeneratedTables::new(&SPEECH16K_40);
+    let good = blob(&t, BlobContents::ALL);
+
+    let mut b = good.clone();
+    b[0] = b'X';
+    assert_eq!(
+        TableBlob::parse(Aligned::new(&b).bytes()).unwrap_err(),
+        BlobError::BadMagic
+    );
+
+    let mut b = good.clone();
+    b[8] = 9;
+    patch_crc(&mut b);
+    assert_eq!(
+        TableBlob::parse(Aligned::new(&b).bytes()).unwrap_err(),
+        BlobError::UnsupportedVersion { found: 9 }
+    );
+
+    let mut b = good.clone();
+    let last = b.len() - 9;
+    b[last] ^= 0x40;
+    assert!(matches!(
+        TableBlob::parse(Aligned::new(&b).bytes()).unwrap_err(),
+        BlobError::BadCrc { .. }
+    ));
+
+    for cut in [good.len() - 1, good.len() / 2, 40] {
+        let e = TableBlob::parse(Aligned::new(&good[..cut]).bytes()).unwrap_err();
+        assert_eq!(
+            e,
+            BlobError::LengthMismatch {
+                stated: good.len(),
+                actual: cut
+            },
+            "cut at {cut}"
+        );
+    }
+    assert_eq!(
+        TableBlob::parse(Aligned::new(&good[..20]).bytes()).unwrap_err(),
+        BlobError::TooShort { len: 20 }
+    );
+    assert_eq!(
+        TableBlob::parse(b"").unwrap_err(),
+        BlobError::TooShort { len: 0 }
+    );
+
+    // A directory entry pointing past the end (CRC made consistent).
+    let mut b = good.clone();
+    b[32 + 4..32 + 8].copy_from_slice(&(good.len() as u32).to_le_bytes());
+    patch_crc(&mut b);
+    assert_eq!(
+        TableBlob::parse(Aligned::new(&b).bytes()).unwrap_err(),
+        BlobError::BadDirectory { entry: 0 }
+    );
+
+    // One byte off a 4-byte boundary.
+    let mut words = vec![0u32; good.len() / 4 + 2];
+    let bytes: &mut [u8] = bytemuck::cast_slice_mut(&mut words);
+    bytes[1..1 + good.len()].copy_from_slice(&good);
+    assert_eq!(
+        TableBlob::parse(&bytes[1..1 + good.len()]).unwrap_err(),
+        BlobError::Misaligned
+    );
+
+    // Every message says what to do.
+    for e in [
+        BlobError::BadMagic,
+        BlobError::Misaligned,
+        BlobError::BadCrc {
+            stored: 1,
+            computed: 2,
+        },
+        BlobError::LengthMismatch {
+            stated: 9,
+            actual: 4,
+        },
+    ] {
+        let text = e.to_string();
+        assert!(text.contains("table blob"), "{text}");
+    }
+}
+
+#[test]
+fn a_blob_without_q15_sections_says_so() {
+    let t = GeneratedTables::new(&TINY16K_10);
+    let only_f32 = blob(
+        &t,
+        BlobContents {
+            q15: false,
+            ..BlobContents::ALL
+        },
+    );
+    let stored = Aligned::new(&only_f32);
+    let parsed = TableBlob::parse(stored.bytes()).unwrap();
+    assert!(parsed.view::<f32>(FilterbankForm::Compact).is_ok());
+    let e = parsed.view::<i16>(FilterbankForm::Sparse).unwrap_err();
+    assert_eq!(
+        e,
+        BlobError::MissingSection {
+            kind: SectionKind::SparseWeightsQ15
+        }
+    );
+    assert!(e.to_string().contains("no sparse weights q15 section"));
+}
+
+#[test]
+fn a_table_for_another_configuration_is_refused() {
+    let t = GeneratedTables::new(&TINY16K_10);
+    let other = stapes_core::config::FrontEndConfig {
+        bands: 9,
+        ..TINY16K_10
+    };
+    let e =
+        FloatFrontEnd::<256, 256, 16>::new(other, t.view_f32(FilterbankForm::Sparse)).unwrap_err();
+    assert!(
+        matches!(
+            e,
+            stapes_core::error::FrontEndError::Table(TableError::FingerprintMismatch { .. })
+        ),
+        "{e:?}"
+    );
+    assert!(e.to_string().contains("regenerate the table"));
+    // A view whose slices were cut short is refused even with the right fingerprint.
+    let mut v = t.view_f32(FilterbankForm::Sparse);
+    v.window = &v.window[..100];
+    let e = FloatFrontEnd::<256, 256, 16>::new(TINY16K_10, v).unwrap_err();
+    assert!(
+        matches!(
+            e,
+            stapes_core::error::FrontEndError::Table(TableError::WrongLength {
+                part: "window",
+                ..
+            })
+        ),
+        "{e:?}"
+    );
+    // Buffers too small for the configuration.
+    let e = FloatFrontEnd::<128, 256, 16>::new(TINY16K_10, t.view_f32(FilterbankForm::Sparse))
+        .unwrap_err();
+    assert!(e.to_string().contains("FFT buffer holds 128"), "{e}");
+}

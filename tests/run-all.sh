@@ -1,0 +1,43 @@
+#!/usr/bin/env bash
+# Runs every test of stapes. On a fresh machine it first installs what the
+# tests need: the bare-metal Rust targets (rustup) and, for the optional
+# numpy/scipy cross-check, a Python virtual environment (pip).
+set -euo pipefail
+cd "$(dirname "$0")/.."
+
+step() { printf '\n== %s\n' "$*"; }
+
+step "toolchain: bare-metal targets and rustfmt"
+rustup target add thumbv6m-none-eabi thumbv7em-none-eabihf
+rustup component add rustfmt >/dev/null 2>&1 || true
+
+step "formatting"
+cargo fmt --all --check
+
+step "host tests (generator, core, reference, CLI; overflow checks on)"
+cargo test --workspace
+
+step "no_std: stapes-core alone for Cortex-M0 (thumbv6m) and Cortex-M4F (thumbv7em)"
+for target in thumbv6m-none-eabi thumbv7em-none-eabihf; do
+  cargo build -p stapes-core --release --target "$target" --features fft-512
+done
+if cargo tree -p stapes-core -e features,no-proc-macro,no-build,no-dev --target thumbv6m-none-eabi \
+    --features fft-512 | grep 'feature "std"'; then
+  echo "stapes-core pulls a std feature on a bare-metal target" >&2
+  exit 1
+fi
+
+step "firmware example builds for thumbv7em-none-eabihf"
+(cd firmware-example && cargo build --release)
+
+step "numpy/scipy cross-check of the demo's features"
+demo_dir=$(mktemp -d)
+trap 'rm -rf "$demo_dir"' EXIT
+cargo run --release -q -p stapes-sim -- demo --out-dir "$demo_dir" >/dev/null
+if [ ! -x .venv/bin/python ]; then
+  python3 -m venv .venv
+fi
+.venv/bin/python -c 'import numpy, scipy' 2>/dev/null || .venv/bin/pip install -q numpy scipy
+.venv/bin/python tests/python/numpy_cross_check.py "$demo_dir"
+
+step "all tests passed"

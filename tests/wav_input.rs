@@ -1,0 +1,120 @@
+//! WAV input: what is accepted, and the errors for everything else.
+
+use std::path::Path;
+
+use hound::{SampleFormat, WavSpec, WavWriter};
+use stapes_sim::run::Samples;
+use stapes_sim::wav::{ChannelChoice, read_wav, read_wav_for};
+
+fn write(path: &Path, channels: u16, bits: u16, format: SampleFormat, rate: u32, frames: usize) {
+    let spec = WavSpec {
+        channels,
+        sample_rate: rate,
+        bits_per_sample: bits,
+        sample_format: format,
+    };
+    let mut w = WavWriter::create(path, spec).unwrap();
+    for i in 0..frames * channels as usize {
+        match (format, bits) {
+            (SampleFormat::Float, _) => w.write_sample(i as f32 / 1e4).unwrap(),
+            (_, 8) => w.write_sample((i % 100) as i8).unwrap(),
+            (_, 16) => w.write_sample(i as i16).unwrap(),
+            _ => w.write_sample(i as i32).unwrap(),
+        }
+    }
+    w.finalize().unwrap();
+}
+
+fn err_text(r: anyhow::Result<impl std::fmt::Debug>) -> String {
+    format!("{:#}", r.expect_err("should be an error"))
+}
+
+#[test]
+fn mono_pcm16_and_float32_are_read() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("a.wav");
+    write(&p, 1, 16, SampleFormat::Int, 16000, 100);
+    let w = read_wav(&p, None).unwrap();
+    assert_eq!(w.sample_rate_hz, 16000);
+    assert_eq!(w.samples, Samples::I16((0..100).collect()));
+    write(&p, 1, 32, SampleFormat::Float, 8000, 50);
+    let Samples::F32(v) = read_wav_for(&p, None, 8000).unwrap() else {
+        panic!("float expected")
+    };
+    assert_eq!(v.len(), 50);
+}
+
+#[test]
+fn stereo_needs_a_channel_choice() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("s.wav");
+    write(&p, 2, 16, SampleFormat::Int, 16000, 4);
+    assert!(err_text(read_wav(&p, None)).contains("--channel left, right or mix"));
+    // Interleaved samples 0,1 | 2,3 | 4,5 | 6,7.
+    assert_eq!(
+        read_wav(&p, Some(ChannelChoice::Left)).unwrap().samples,
+        Samples::I16(vec![0, 2, 4, 6])
+    );
+    assert_eq!(
+        read_wav(&p, Some(ChannelChoice::Right)).unwrap().samples,
+        Samples::I16(vec![1, 3, 5, 7])
+    );
+    assert_eq!(
+        read_wav(&p, Some(ChannelChoice::Mix)).unwrap().samples,
+        Samples::I16(vec![0, 2, 4, 6])
+    );
+    write(&p, 3, 16, SampleFormat::Int, 16000, 4);
+    assert!(err_text(read_wav(&p, Some(ChannelChoice::Mix))).contains("3 channels"));
+}
+
+#[test]
+fn other_formats_rates_and_broken_files_are_clear_errors() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("x.wav");
+    for bits in [8, 24, 32] {
+        write(&p, 1, bits, SampleFormat::Int, 16000, 10);
+        let e = err_text(read_wav(&p, None));
+        assert!(
+            e.contains(&format!("{bits}-bit integer")) && e.contains("16-bit PCM or 32-bit float"),
+            "{e}"
+        );
+    }
+    write(&p, 1, 16, SampleFormat::Int, 44100, 10);
+    let e = err_text(read_wav_for(&p, None, 16000));
+    assert!(
+        e.contains("44100 Hz") && e.contains("16000 Hz") && e.contains("nothing is resampled"),
+        "{e}"
+    );
+
+    std::fs::write(&p, b"this is not a wave file at all, just text").unwrap();
+    assert!(err_text(read_wav(&p, None)).contains("not a readable WAV file"));
+    std::fs::write(&p, b"").unwrap();
+    assert!(err_text(read_wav(&p, None)).contains("x.wav"));
+    assert!(err_text(read_wav(&dir.path().join("missing.wav"), None)).contains("missing.wav"));
+
+    write(&p, 1, 16, SampleFormat::Int, 16000, 1000);
+    let bytes = std::fs::read(&p).unwrap();
+    std::fs::write(&p, &bytes[..bytes.len() - 501]).unwrap();
+    let e = err_text(read_wav(&p, None));
+    assert!(e.contains("truncated"), "{e}");
+}
+
+#[test]
+fn non_finite_float_samples_are_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("nan.wav");
+    let spec = WavSpec {
+        channels: 1,
+        sample_rate: 16000,
+        bits_per_sample: 32,
+        sample_format: SampleFormat::Float,
+    };
+    let mut w = WavWriter::create(&p, spec).unwrap();
+    for i in 0..100 {
+        w.write_sample(if i == 42 { f32::NAN } else { 0.1 })
+            .unwrap();
+    }
+    w.finalize().unwrap();
+    let e = err_text(read_wav(&p, None));
+    assert!(e.contains("non-finite") && e.contains("sample 42"), "{e}");
+}
