@@ -221,15 +221,20 @@ pub fn size_report(tables: &GeneratedTables, name: &str, blob_bytes: Option<usiz
     if let Some(b) = blob_bytes {
         let _ = writeln!(s, "  {:<34} {:>10}", "blob (all sections, with header)", b);
     }
+    let compact = |v: f64| if tables.has_compact() { format!("{v:.2e}") } else { "n/a".into() };
     let _ = writeln!(
         s,
-        "  worst weight error: q15 sparse {:.2e}, q15 compact {:.2e}, f32 {:.2e}, q15 window {:.2e}",
-        q.sparse_q15_weight, q.compact_q15_weight, q.f32_weight, q.window_q15
+        "  worst weight error: q15 sparse {:.2e}, q15 compact {}, f32 {:.2e}, q15 window {:.2e}",
+        q.sparse_q15_weight,
+        compact(q.compact_q15_weight),
+        q.f32_weight,
+        q.window_q15
     );
     let _ = writeln!(
         s,
-        "  worst band-gain error (relative): q15 sparse {:.2e}, q15 compact {:.2e}",
-        q.sparse_q15_band_gain, q.compact_q15_band_gain
+        "  worst band-gain error (relative): q15 sparse {:.2e}, q15 compact {}",
+        q.sparse_q15_band_gain,
+        compact(q.compact_q15_band_gain)
     );
     s
 }
