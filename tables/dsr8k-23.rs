@@ -2,7 +2,7 @@
 // Include with `include!` in a crate that depends on stapes-core.
 
 /// The configuration these tables were generated for.
-pub const CONFIG: stapes_core::config::FrontEndConfig = stapes_core::config::FrontEndConfig {
+pub const CONFIG: stapes_core::config::FeatureConfig = stapes_core::config::FeatureConfig {
     sample_rate_hz: 8000,
     window_samples: 200,
     fft_points: 256,

@@ -2,7 +2,7 @@
 // Include with `include!` in a crate that depends on stapes-core.
 
 /// The configuration these tables were generated for.
-pub const CONFIG: stapes_core::config::FrontEndConfig = stapes_core::config::FrontEndConfig {
+pub const CONFIG: stapes_core::config::FeatureConfig = stapes_core::config::FeatureConfig {
     sample_rate_hz: 16000,
     window_samples: 256,
     fft_points: 256,

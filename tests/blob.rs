@@ -182,7 +182,7 @@ fn a_blob_without_q15_sections_says_so() {
 #[test]
 fn a_table_for_another_configuration_is_refused() {
     let t = GeneratedTables::new(&TINY16K_10);
-    let other = stapes_core::config::FrontEndConfig {
+    let other = stapes_core::config::FeatureConfig {
         bands: 9,
         ..TINY16K_10
     };

@@ -1,11 +1,11 @@
 //! Every invalid configuration is rejected with an error naming the field,
 //! the value, the allowed range and a fix.
 
-use stapes_core::config::{BandGain, ConfigError, FrontEndConfig, TrianglePlacement};
+use stapes_core::config::{BandGain, ConfigError, FeatureConfig, TrianglePlacement};
 use stapes_core::presets::{DSR8K_23, SPEECH16K_40};
 use stapes_sim::config_source::ConfigArgs;
 
-fn rejected(c: FrontEndConfig) -> (ConfigError, String) {
+fn rejected(c: FeatureConfig) -> (ConfigError, String) {
     let e = c.validate().expect_err("configuration should be rejected");
     let text = e.to_string();
     (e, text)
@@ -22,7 +22,7 @@ fn presets_are_valid() {
     for (name, c) in stapes_tests::all_presets() {
         c.validate().unwrap_or_else(|e| panic!("{name}: {e}"));
         assert_eq!(
-            FrontEndConfig::from_bytes(&c.to_bytes()),
+            FeatureConfig::from_bytes(&c.to_bytes()),
             Some(c),
             "{name}: bytes round trip"
         );
@@ -31,7 +31,7 @@ fn presets_are_valid() {
 
 #[test]
 fn band_edge_above_nyquist() {
-    let (e, t) = rejected(FrontEndConfig {
+    let (e, t) = rejected(FeatureConfig {
         high_edge_hz: 8500.0,
         ..SPEECH16K_40
     });
@@ -41,7 +41,7 @@ fn band_edge_above_nyquist() {
 
 #[test]
 fn fft_smaller_than_window() {
-    let (e, t) = rejected(FrontEndConfig {
+    let (e, t) = rejected(FeatureConfig {
         fft_points: 256,
         ..SPEECH16K_40
     });
@@ -54,7 +54,7 @@ fn fft_smaller_than_window() {
 
 #[test]
 fn fft_not_a_power_of_two() {
-    let (e, t) = rejected(FrontEndConfig {
+    let (e, t) = rejected(FeatureConfig {
         fft_points: 600,
         ..SPEECH16K_40
     });
@@ -65,7 +65,7 @@ fn fft_not_a_power_of_two() {
 #[test]
 fn hop_zero_or_beyond_the_window() {
     for hop in [0, 513] {
-        let (e, t) = rejected(FrontEndConfig {
+        let (e, t) = rejected(FeatureConfig {
             hop_samples: hop,
             ..SPEECH16K_40
         });
@@ -86,7 +86,7 @@ fn hop_zero_or_beyond_the_window() {
 fn a_band_without_a_bin_is_named() {
     // 128 bands over 20 Hz – 8 kHz at 31.25 Hz per bin: the lowest bands are
     // narrower than a bin.
-    let (e, t) = rejected(FrontEndConfig {
+    let (e, t) = rejected(FeatureConfig {
         bands: 128,
         ..SPEECH16K_40
     });
@@ -109,7 +109,7 @@ fn a_band_without_a_bin_is_named() {
 
 #[test]
 fn rounded_bins_that_collide_are_named() {
-    let (e, t) = rejected(FrontEndConfig {
+    let (e, t) = rejected(FeatureConfig {
         bands: 60,
         ..DSR8K_23
     });
@@ -120,19 +120,19 @@ fn rounded_bins_that_collide_are_named() {
 #[test]
 fn non_finite_numbers() {
     for c in [
-        FrontEndConfig {
+        FeatureConfig {
             low_edge_hz: f32::NAN,
             ..SPEECH16K_40
         },
-        FrontEndConfig {
+        FeatureConfig {
             high_edge_hz: f32::INFINITY,
             ..SPEECH16K_40
         },
-        FrontEndConfig {
+        FeatureConfig {
             floor_db: f32::NEG_INFINITY,
             ..SPEECH16K_40
         },
-        FrontEndConfig {
+        FeatureConfig {
             pre_emphasis: Some(f32::NAN),
             ..SPEECH16K_40
         },
@@ -145,9 +145,9 @@ fn non_finite_numbers() {
 
 #[test]
 fn other_ranges() {
-    let cases: [(FrontEndConfig, &str, &str); 8] = [
+    let cases: [(FeatureConfig, &str, &str); 8] = [
         (
-            FrontEndConfig {
+            FeatureConfig {
                 sample_rate_hz: 0,
                 ..SPEECH16K_40
             },
@@ -155,7 +155,7 @@ fn other_ranges() {
             "allowed 1000 to 384000",
         ),
         (
-            FrontEndConfig {
+            FeatureConfig {
                 bands: 0,
                 ..SPEECH16K_40
             },
@@ -163,7 +163,7 @@ fn other_ranges() {
             "allowed 1 to 256",
         ),
         (
-            FrontEndConfig {
+            FeatureConfig {
                 window_samples: 8,
                 ..SPEECH16K_40
             },
@@ -171,7 +171,7 @@ fn other_ranges() {
             "allowed 16 to 4096",
         ),
         (
-            FrontEndConfig {
+            FeatureConfig {
                 fft_points: 8192,
                 window_samples: 8192,
                 hop_samples: 160,
@@ -181,7 +181,7 @@ fn other_ranges() {
             "allowed 16 to 4096",
         ),
         (
-            FrontEndConfig {
+            FeatureConfig {
                 pre_emphasis: Some(1.5),
                 ..SPEECH16K_40
             },
@@ -189,7 +189,7 @@ fn other_ranges() {
             "0.97",
         ),
         (
-            FrontEndConfig {
+            FeatureConfig {
                 dc_removal_pole: Some(-0.1),
                 ..SPEECH16K_40
             },
@@ -197,7 +197,7 @@ fn other_ranges() {
             "0.999",
         ),
         (
-            FrontEndConfig {
+            FeatureConfig {
                 low_edge_hz: -5.0,
                 ..SPEECH16K_40
             },
@@ -205,7 +205,7 @@ fn other_ranges() {
             "allowed 0 to 8000",
         ),
         (
-            FrontEndConfig {
+            FeatureConfig {
                 floor_db: 10.0,
                 ..SPEECH16K_40
             },
@@ -218,14 +218,14 @@ fn other_ranges() {
         assert_eq!(e.field(), field, "{t}");
         assert_mentions(&t, &[field, hint]);
     }
-    let (e, t) = rejected(FrontEndConfig {
+    let (e, t) = rejected(FeatureConfig {
         low_edge_hz: 5000.0,
         high_edge_hz: 300.0,
         ..SPEECH16K_40
     });
     assert_eq!(e.field(), "high_edge_hz");
     assert_mentions(&t, &["5000", "300", "swap"]);
-    let (e, t) = rejected(FrontEndConfig {
+    let (e, t) = rejected(FeatureConfig {
         band_gain: BandGain::EqualArea,
         triangles: TrianglePlacement::RoundedCentreBins,
         ..DSR8K_23

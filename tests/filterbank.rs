@@ -1,21 +1,21 @@
 //! The generated filterbank against the reference's independent dense matrix,
 //! the compact form against the sparse one, and where a tone lands.
 
-use stapes_core::config::{BandGain, FrontEndConfig, MelScale, SpectrumKind};
+use stapes_core::config::{BandGain, FeatureConfig, MelScale, SpectrumKind};
 use stapes_core::presets::{SPEECH16K_40, TINY16K_10};
 use stapes_core::table::FilterbankForm;
 use stapes_sim::generate::GeneratedTables;
 use stapes_sim::reference::reference_matrix;
 use stapes_sim::run::{Samples, run_float};
 
-fn configs() -> Vec<(String, FrontEndConfig)> {
-    let mut v: Vec<(String, FrontEndConfig)> = stapes_tests::all_presets()
+fn configs() -> Vec<(String, FeatureConfig)> {
+    let mut v: Vec<(String, FeatureConfig)> = stapes_tests::all_presets()
         .into_iter()
         .map(|(n, c)| (n.to_string(), c))
         .collect();
     v.push((
         "slaney".into(),
-        FrontEndConfig {
+        FeatureConfig {
             mel_scale: MelScale::Slaney,
             bands: 64,
             fft_points: 1024,
@@ -24,14 +24,14 @@ fn configs() -> Vec<(String, FrontEndConfig)> {
     ));
     v.push((
         "equal-area".into(),
-        FrontEndConfig {
+        FeatureConfig {
             band_gain: BandGain::EqualArea,
             ..SPEECH16K_40
         },
     ));
     v.push((
         "magnitude".into(),
-        FrontEndConfig {
+        FeatureConfig {
             spectrum: SpectrumKind::Magnitude,
             low_edge_hz: 125.0,
             high_edge_hz: 7600.0,

@@ -27,7 +27,7 @@
 
 use core::fmt;
 
-use crate::config::{CONFIG_BYTES, FrontEndConfig};
+use crate::config::{CONFIG_BYTES, FeatureConfig};
 use crate::crc32::Crc32;
 use crate::table::{BinSpan, Filterbank, FilterbankForm, TableError, TableView, WeightType};
 
@@ -47,7 +47,7 @@ pub const CRC_OFFSET: usize = 28;
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[repr(u16)]
 pub enum SectionKind {
-    /// [`FrontEndConfig::to_bytes`].
+    /// [`FeatureConfig::to_bytes`].
     Config = 1,
     /// Window, f32.
     WindowF32 = 2,
@@ -262,7 +262,7 @@ pub fn blob_crc(blob: &[u8]) -> u32 {
 #[derive(Clone, Copy, Debug)]
 pub struct TableBlob<'a> {
     bytes: &'a [u8],
-    config: FrontEndConfig,
+    config: FeatureConfig,
     sections: usize,
 }
 
@@ -322,7 +322,7 @@ impl<'a> TableBlob<'a> {
         };
         let raw = blob.section_bytes(SectionKind::Config)?;
         let raw: &[u8; CONFIG_BYTES] = raw.try_into().map_err(|_| BlobError::BadConfig)?;
-        let config = FrontEndConfig::from_bytes(raw).ok_or(BlobError::BadConfig)?;
+        let config = FeatureConfig::from_bytes(raw).ok_or(BlobError::BadConfig)?;
         if config.fingerprint() != le_u32(bytes, 16) {
             return Err(BlobError::BadConfig);
         }
@@ -331,8 +331,8 @@ impl<'a> TableBlob<'a> {
     }
 
     /// The configuration the blob was generated for (not yet validated: call
-    /// [`FrontEndConfig::validate`] where `f64` work is acceptable).
-    pub fn config(&self) -> FrontEndConfig {
+    /// [`FeatureConfig::validate`] where `f64` work is acceptable).
+    pub fn config(&self) -> FeatureConfig {
         self.config
     }
 

@@ -1,18 +1,18 @@
-//! One type describes a front end: [`FrontEndConfig`].
+//! One type describes a front end: [`FeatureConfig`].
 //!
 //! A configuration is plain data with public fields, so it can be built in a
-//! `const` and kept in flash. [`FrontEndConfig::validate`] checks it once, on
+//! `const` and kept in flash. [`FeatureConfig::validate`] checks it once, on
 //! the host or at start-up; every rejection is a [`ConfigError`] that names the
 //! field, the value, the allowed range and a fix.
 //!
 //! ```
-//! use stapes_core::config::FrontEndConfig;
+//! use stapes_core::config::FeatureConfig;
 //! use stapes_core::presets::SPEECH16K_40;
 //!
-//! const MINE: FrontEndConfig = FrontEndConfig { bands: 32, ..SPEECH16K_40 };
+//! const MINE: FeatureConfig = FeatureConfig { bands: 32, ..SPEECH16K_40 };
 //! assert!(MINE.validate().is_ok());
 //!
-//! let broken = FrontEndConfig { hop_samples: 0, ..SPEECH16K_40 };
+//! let broken = FeatureConfig { hop_samples: 0, ..SPEECH16K_40 };
 //! let err = broken.validate().unwrap_err();
 //! assert_eq!(err.field(), "hop_samples");
 //! ```
@@ -107,7 +107,7 @@ pub enum LogKind {
 /// numeric conventions every field follows.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct FrontEndConfig {
+pub struct FeatureConfig {
     /// Sample rate of the input stream in Hz.
     pub sample_rate_hz: u32,
     /// Samples per analysis frame (the window length).
@@ -387,10 +387,10 @@ impl fmt::Display for Value {
     }
 }
 
-/// Length in bytes of [`FrontEndConfig::to_bytes`].
+/// Length in bytes of [`FeatureConfig::to_bytes`].
 pub const CONFIG_BYTES: usize = 60;
 
-impl FrontEndConfig {
+impl FeatureConfig {
     /// Checks every field and the band layout this configuration implies.
     ///
     /// Uses `f64` arithmetic (through `libm`) to place the bands; call it on the
@@ -575,9 +575,9 @@ impl FrontEndConfig {
         out
     }
 
-    /// Decodes [`FrontEndConfig::to_bytes`]; `None` when an enum tag is unknown
+    /// Decodes [`FeatureConfig::to_bytes`]; `None` when an enum tag is unknown
     /// or a reserved byte is set. The result is not validated.
-    pub fn from_bytes(b: &[u8; CONFIG_BYTES]) -> Option<FrontEndConfig> {
+    pub fn from_bytes(b: &[u8; CONFIG_BYTES]) -> Option<FeatureConfig> {
         let mut r = ByteReader { buf: b, at: 0 };
         let sample_rate_hz = r.u32();
         let window_samples = r.u32();
@@ -627,7 +627,7 @@ impl FrontEndConfig {
         if has_dc > 1 || has_pre > 1 || b[r.at..].iter().any(|&x| x != 0) {
             return None;
         }
-        Some(FrontEndConfig {
+        Some(FeatureConfig {
             sample_rate_hz,
             window_samples,
             fft_points,
@@ -647,7 +647,7 @@ impl FrontEndConfig {
         })
     }
 
-    /// CRC-32 of [`FrontEndConfig::to_bytes`]: ties a table to the configuration
+    /// CRC-32 of [`FeatureConfig::to_bytes`]: ties a table to the configuration
     /// it was generated for.
     pub fn fingerprint(&self) -> u32 {
         let mut crc = Crc32::new();

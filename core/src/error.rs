@@ -2,7 +2,7 @@
 
 use core::fmt;
 
-use crate::config::{ConfigError, FrontEndConfig, Value};
+use crate::config::{ConfigError, FeatureConfig, Value};
 use crate::table::TableError;
 
 /// Why a front end could not be built.
@@ -66,7 +66,7 @@ impl fmt::Display for FrontEndError {
 
 /// Integer-only checks of the sizes a front end relies on, against its buffers.
 pub(crate) fn check_shape(
-    config: &FrontEndConfig,
+    config: &FeatureConfig,
     fft_capacity: usize,
     overlap_capacity: usize,
     band_capacity: usize,

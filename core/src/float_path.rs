@@ -18,7 +18,7 @@
 //! ```
 
 use crate::conditioning::FloatConditioner;
-use crate::config::FrontEndConfig;
+use crate::config::FeatureConfig;
 use crate::error::FrontEndError;
 use crate::frame::Frame;
 use crate::framer::Framer;
@@ -32,7 +32,7 @@ use crate::{log, mel, spectrum_f32, window};
 /// A host tool may use larger capacities than the configuration needs.
 #[derive(Clone, Debug)]
 pub struct FloatFrontEnd<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize> {
-    config: FrontEndConfig,
+    config: FeatureConfig,
     table: TableView<'t, f32>,
     conditioner: FloatConditioner,
     framer: Framer<f32, FFT, OVERLAP>,
@@ -49,9 +49,9 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
     ///
     /// Checks, with integer work only, that the table fits the configuration,
     /// that the buffers are large enough and that the FFT size is compiled in.
-    /// It does not re-run [`FrontEndConfig::validate`] (`f64` band placement):
+    /// It does not re-run [`FeatureConfig::validate`] (`f64` band placement):
     /// tables only come from validated configurations.
-    pub fn new(config: FrontEndConfig, table: TableView<'t, f32>) -> Result<Self, FrontEndError> {
+    pub fn new(config: FeatureConfig, table: TableView<'t, f32>) -> Result<Self, FrontEndError> {
         crate::error::check_shape(&config, FFT, OVERLAP, BANDS)?;
         if !spectrum_f32::fft_compiled(config.fft_points as usize) {
             return Err(FrontEndError::FftNotCompiled {
@@ -72,7 +72,7 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
     }
 
     /// The configuration in use.
-    pub fn config(&self) -> &FrontEndConfig {
+    pub fn config(&self) -> &FeatureConfig {
         &self.config
     }
 

@@ -5,7 +5,7 @@
 //!         ─► mel (table view) ─► log ─► frame out
 //! ```
 //!
-//! One [`config::FrontEndConfig`] describes a front end. The host generator
+//! One [`config::FeatureConfig`] describes a front end. The host generator
 //! turns it into a [`table::TableView`] (Rust source, C header, or a checked
 //! [`blob`]); the front end reads only the table on the per-frame path.
 //!

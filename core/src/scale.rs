@@ -12,7 +12,7 @@
 //! assert!((mel_to_hz(MelScale::OShaughnessy, m) - 1000.0).abs() < 1e-9);
 //! ```
 
-use crate::config::{FrontEndConfig, MelScale};
+use crate::config::{FeatureConfig, MelScale};
 
 /// Hz per mel on the linear part of [`MelScale::Slaney`].
 const SLANEY_HZ_PER_MEL: f64 = 200.0 / 3.0;
@@ -55,7 +55,7 @@ pub fn mel_to_hz(scale: MelScale, mel: f64) -> f64 {
 
 /// Edge `i` (0 ..= bands + 1) of the mel-spaced layout in Hz: band `b` rises
 /// from edge `b`, peaks at edge `b + 1` and falls to edge `b + 2`.
-pub fn band_edge_hz(config: &FrontEndConfig, i: u32) -> f64 {
+pub fn band_edge_hz(config: &FeatureConfig, i: u32) -> f64 {
     let s = config.mel_scale;
     let lo = hz_to_mel(s, config.low_edge_hz as f64);
     let hi = hz_to_mel(s, config.high_edge_hz as f64);
@@ -70,7 +70,7 @@ pub fn band_edge_hz(config: &FrontEndConfig, i: u32) -> f64 {
 
 /// Edge `i` (0 ..= bands + 1) rounded to the nearest FFT bin, as the
 /// ES 201 108 construction places its filters.
-pub fn rounded_centre_bin(config: &FrontEndConfig, i: u32) -> u32 {
+pub fn rounded_centre_bin(config: &FeatureConfig, i: u32) -> u32 {
     let hz = band_edge_hz(config, i);
     libm::round(hz * config.fft_points as f64 / config.sample_rate_hz as f64) as u32
 }

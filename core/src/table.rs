@@ -28,7 +28,7 @@
 
 use core::fmt;
 
-use crate::config::{BandGain, FrontEndConfig, TrianglePlacement};
+use crate::config::{BandGain, FeatureConfig, TrianglePlacement};
 
 /// Element types a table can hold. Implemented for `f32` and `i16` (Q15).
 pub trait WeightType: Copy + bytemuck::Pod + PartialEq + fmt::Debug + 'static {
@@ -94,7 +94,7 @@ impl<W> Filterbank<'_, W> {
 /// A precomputed front end, borrowed.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct TableView<'a, W: WeightType> {
-    /// [`FrontEndConfig::fingerprint`] of the configuration it was made for.
+    /// [`FeatureConfig::fingerprint`] of the configuration it was made for.
     pub fingerprint: u32,
     /// `window_samples` window coefficients.
     pub window: &'a [W],
@@ -195,7 +195,7 @@ fn expect_len(part: &'static str, found: usize, expected: usize) -> Result<(), T
 impl<'a, W: WeightType> TableView<'a, W> {
     /// Checks that this table fits `config` in every index the per-frame path
     /// uses, so that path never reads out of bounds. Integer work only.
-    pub fn check(&self, config: &FrontEndConfig) -> Result<(), TableError> {
+    pub fn check(&self, config: &FeatureConfig) -> Result<(), TableError> {
         let fp = config.fingerprint();
         if self.fingerprint != fp {
             return Err(TableError::FingerprintMismatch {

@@ -3,7 +3,7 @@
 use std::fmt::Write;
 
 use anyhow::{Result, bail};
-use stapes_core::config::FrontEndConfig;
+use stapes_core::config::FeatureConfig;
 use stapes_core::table::TableView;
 
 use crate::compare::{Comparison, Tolerance, compare};
@@ -21,7 +21,7 @@ pub const F32_TOLERANCE: Tolerance = Tolerance {
 #[derive(Debug, Clone)]
 pub struct CheckRun {
     /// The configuration.
-    pub config: FrontEndConfig,
+    pub config: FeatureConfig,
     /// The core's frames (output units).
     pub core: Vec<Vec<f32>>,
     /// The reference's frames.
@@ -41,7 +41,7 @@ impl CheckRun {
 
 /// Runs core and reference over `samples` and compares them.
 pub fn check_f32(
-    config: &FrontEndConfig,
+    config: &FeatureConfig,
     table: TableView<'_, f32>,
     samples: &Samples,
     chunk: usize,

@@ -4,7 +4,7 @@ use std::path::{Path, PathBuf};
 
 use anyhow::{Context, Result, anyhow};
 use stapes_core::blob::TableBlob;
-use stapes_core::config::{FrontEndConfig, LogKind};
+use stapes_core::config::{FeatureConfig, LogKind};
 use stapes_core::presets;
 use stapes_core::table::{FilterbankForm, TableView};
 
@@ -104,7 +104,7 @@ impl LoadedTables {
     }
 
     /// The configuration.
-    pub fn config(&self) -> Result<FrontEndConfig> {
+    pub fn config(&self) -> Result<FeatureConfig> {
         match self {
             LoadedTables::Generated(_, t) => Ok(t.config),
             LoadedTables::Blob(..) => Ok(self.blob()?.expect("blob").config()),
@@ -131,14 +131,14 @@ impl LoadedTables {
     }
 }
 
-fn band_centres(config: &FrontEndConfig) -> Vec<f64> {
+fn band_centres(config: &FeatureConfig) -> Vec<f64> {
     crate::design::design(config).centres_hz
 }
 
 fn load_input(
     input: Option<&Path>,
     input_args: &InputArgs,
-    config: &FrontEndConfig,
+    config: &FeatureConfig,
 ) -> Result<(String, Samples)> {
     match input {
         Some(path) => Ok((
@@ -153,7 +153,7 @@ fn load_input(
 }
 
 fn tables(a: &TablesArgs) -> Result<Outcome> {
-    let configs: Vec<(String, FrontEndConfig, String)> = if a.all_presets {
+    let configs: Vec<(String, FeatureConfig, String)> = if a.all_presets {
         presets::ALL
             .iter()
             .map(|(n, c)| (n.to_string(), *c, format!("stapes tables --preset {n}")))
@@ -205,7 +205,7 @@ fn check(a: &CheckArgs) -> Result<Outcome> {
     })
 }
 
-fn unit(config: &FrontEndConfig) -> &'static str {
+fn unit(config: &FeatureConfig) -> &'static str {
     match config.log {
         LogKind::Decibel => "dB",
         LogKind::Natural => "ln",

@@ -17,7 +17,7 @@ use anyhow::{Context, Result, anyhow, bail};
 use clap::Args;
 use serde::Deserialize;
 use stapes_core::config::{
-    BandGain, FrontEndConfig, LogKind, MelScale, SpectrumKind, TrianglePlacement, WindowShape,
+    BandGain, FeatureConfig, LogKind, MelScale, SpectrumKind, TrianglePlacement, WindowShape,
 };
 use stapes_core::presets;
 
@@ -86,10 +86,10 @@ pub struct NamedConfig {
     /// Preset name, or the config file's stem, with "-custom" when flags changed it.
     pub name: String,
     /// The validated configuration.
-    pub config: FrontEndConfig,
+    pub config: FeatureConfig,
 }
 
-/// The TOML file layout: every field of [`FrontEndConfig`] under its own name.
+/// The TOML file layout: every field of [`FeatureConfig`] under its own name.
 #[derive(Deserialize, Debug, Default)]
 #[serde(deny_unknown_fields)]
 struct ConfigFile {
@@ -112,7 +112,7 @@ struct ConfigFile {
     floor_db: Option<f32>,
 }
 
-fn preset(name: &str) -> Result<FrontEndConfig> {
+fn preset(name: &str) -> Result<FeatureConfig> {
     presets::by_name(name).ok_or_else(|| {
         let names: Vec<&str> = presets::ALL.iter().map(|(n, _)| *n).collect();
         anyhow!(
@@ -170,7 +170,7 @@ fn name_of<T: PartialEq + Copy>(choices: &[(&'static str, T)], v: T) -> &'static
 }
 
 /// The configuration-file spelling of each enum value, for emitters and reports.
-pub fn describe(config: &FrontEndConfig) -> Vec<(&'static str, String)> {
+pub fn describe(config: &FeatureConfig) -> Vec<(&'static str, String)> {
     let opt = |v: Option<f32>| v.map_or("off".to_string(), |x| x.to_string());
     vec![
         ("sample_rate_hz", config.sample_rate_hz.to_string()),
@@ -204,7 +204,7 @@ fn on_off(field: &str, text: &str) -> Result<Option<f32>> {
     })
 }
 
-fn from_file(path: &Path) -> Result<(String, FrontEndConfig)> {
+fn from_file(path: &Path) -> Result<(String, FeatureConfig)> {
     let text = std::fs::read_to_string(path)
         .with_context(|| format!("cannot read configuration file {}", path.display()))?;
     let file: ConfigFile = toml::from_str(&text).map_err(|e| {
@@ -283,7 +283,7 @@ fn from_file(path: &Path) -> Result<(String, FrontEndConfig)> {
 }
 
 fn apply_names(
-    c: &mut FrontEndConfig,
+    c: &mut FeatureConfig,
     window: Option<&str>,
     mel_scale: Option<&str>,
     triangles: Option<&str>,

@@ -4,7 +4,7 @@
 
 use std::f64::consts::PI;
 
-use stapes_core::config::{BandGain, FrontEndConfig, TrianglePlacement, WindowShape};
+use stapes_core::config::{BandGain, FeatureConfig, TrianglePlacement, WindowShape};
 use stapes_core::scale;
 
 /// One band's non-zero weights.
@@ -29,7 +29,7 @@ pub struct CompactShape {
 #[derive(Debug, Clone)]
 pub struct Design {
     /// The configuration designed for.
-    pub config: FrontEndConfig,
+    pub config: FeatureConfig,
     /// Window coefficients.
     pub window: Vec<f64>,
     /// Band centre frequencies in Hz.
@@ -59,7 +59,7 @@ pub fn window(shape: WindowShape, len: usize) -> Vec<f64> {
 }
 
 /// Designs the tables for a validated configuration.
-pub fn design(config: &FrontEndConfig) -> Design {
+pub fn design(config: &FeatureConfig) -> Design {
     let window = window(config.window, config.window_samples as usize);
     match config.triangles {
         TrianglePlacement::ExactFrequency => exact(config, window),
@@ -67,7 +67,7 @@ pub fn design(config: &FrontEndConfig) -> Design {
     }
 }
 
-fn exact(config: &FrontEndConfig, window: Vec<f64>) -> Design {
+fn exact(config: &FeatureConfig, window: Vec<f64>) -> Design {
     let n_bands = config.bands as usize;
     let edges: Vec<f64> = (0..=config.bands + 1)
         .map(|i| scale::band_edge_hz(config, i))
@@ -137,7 +137,7 @@ fn exact(config: &FrontEndConfig, window: Vec<f64>) -> Design {
 /// `cbin_i = round(fc_i · N / fs)`; band `k` takes bins `cbin_{k-1} ..= cbin_k`
 /// with weight `(i - cbin_{k-1} + 1) / (cbin_k - cbin_{k-1} + 1)` and bins
 /// `cbin_k + 1 ..= cbin_{k+1}` with `1 - (i - cbin_k) / (cbin_{k+1} - cbin_k + 1)`.
-fn rounded(config: &FrontEndConfig, window: Vec<f64>) -> Design {
+fn rounded(config: &FeatureConfig, window: Vec<f64>) -> Design {
     let n_bands = config.bands as usize;
     let cbin: Vec<usize> = (0..=config.bands + 1)
         .map(|i| scale::rounded_centre_bin(config, i) as usize)

@@ -7,7 +7,7 @@
 //! sum is then within one LSB of its design (its rising and falling segments
 //! each round once).
 
-use stapes_core::config::{FrontEndConfig, LogKind};
+use stapes_core::config::{FeatureConfig, LogKind};
 use stapes_core::table::{BinSpan, Filterbank, FilterbankForm, TableView};
 
 use crate::design::{Design, design};
@@ -21,7 +21,7 @@ pub const GAIN_OFFSET_STEPS_PER_UNIT: f64 = 256.0;
 #[derive(Debug, Clone)]
 pub struct GeneratedTables {
     /// The configuration.
-    pub config: FrontEndConfig,
+    pub config: FeatureConfig,
     /// The `f64` design the arrays came from.
     pub design: Design,
     /// Window, f32.
@@ -113,7 +113,7 @@ fn max_abs_diff(a: impl Iterator<Item = f64>, b: impl Iterator<Item = f64>) -> f
 
 impl GeneratedTables {
     /// Designs and quantises the tables of a validated configuration.
-    pub fn new(config: &FrontEndConfig) -> GeneratedTables {
+    pub fn new(config: &FeatureConfig) -> GeneratedTables {
         let design = design(config);
         let mut report = QuantisationReport::default();
 

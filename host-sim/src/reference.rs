@@ -11,12 +11,12 @@ use std::sync::Arc;
 use rustfft::num_complex::Complex64;
 use rustfft::{Fft, FftPlanner};
 use stapes_core::config::{
-    BandGain, FrontEndConfig, LogKind, MelScale, SpectrumKind, TrianglePlacement, WindowShape,
+    BandGain, FeatureConfig, LogKind, MelScale, SpectrumKind, TrianglePlacement, WindowShape,
 };
 
 /// A reference front end for one configuration.
 pub struct Reference {
-    config: FrontEndConfig,
+    config: FeatureConfig,
     window: Vec<f64>,
     /// Row-major `bands × bins`.
     matrix: Vec<f64>,
@@ -58,7 +58,7 @@ pub fn reference_window(shape: WindowShape, len: usize) -> Vec<f64> {
 }
 
 /// The dense `bands × bins` filterbank (gains included), row-major.
-pub fn reference_matrix(c: &FrontEndConfig) -> Vec<f64> {
+pub fn reference_matrix(c: &FeatureConfig) -> Vec<f64> {
     let bins = c.fft_points as usize / 2 + 1;
     let n = c.bands as usize;
     let fs = c.sample_rate_hz as f64;
@@ -128,7 +128,7 @@ pub fn reference_matrix(c: &FrontEndConfig) -> Vec<f64> {
 
 impl Reference {
     /// A reference for `config` (validated).
-    pub fn new(config: &FrontEndConfig) -> Reference {
+    pub fn new(config: &FeatureConfig) -> Reference {
         Reference {
             config: *config,
             window: reference_window(config.window, config.window_samples as usize),

@@ -1,7 +1,7 @@
 //! Runs the core front end on the host, over a whole signal or in chunks.
 
 use anyhow::{Result, anyhow};
-use stapes_core::config::FrontEndConfig;
+use stapes_core::config::FeatureConfig;
 use stapes_core::float_path::FloatFrontEnd;
 use stapes_core::sample::Sample;
 use stapes_core::table::TableView;
@@ -42,7 +42,7 @@ impl Samples {
 }
 
 /// Frames the stream yields: `floor((len - window) / hop) + 1`, or 0.
-pub fn frame_count(config: &FrontEndConfig, samples: usize) -> usize {
+pub fn frame_count(config: &FeatureConfig, samples: usize) -> usize {
     let w = config.window_samples as usize;
     if samples < w {
         0
@@ -67,7 +67,7 @@ fn drive<S: Sample>(
 
 /// Runs the `f32` core over `samples`, fed `chunk` samples at a time.
 pub fn run_float(
-    config: &FrontEndConfig,
+    config: &FeatureConfig,
     table: TableView<'_, f32>,
     samples: &Samples,
     chunk: usize,

@@ -2,11 +2,11 @@
 
 use rand::{Rng, SeedableRng};
 use rand_pcg::Pcg64Mcg;
-use stapes_core::config::FrontEndConfig;
+use stapes_core::config::FeatureConfig;
 use stapes_core::presets;
 
 /// Every shipped preset.
-pub fn all_presets() -> Vec<(&'static str, FrontEndConfig)> {
+pub fn all_presets() -> Vec<(&'static str, FeatureConfig)> {
     presets::ALL.to_vec()
 }
 

@@ -221,7 +221,13 @@ pub fn size_report(tables: &GeneratedTables, name: &str, blob_bytes: Option<usiz
     if let Some(b) = blob_bytes {
         let _ = writeln!(s, "  {:<34} {:>10}", "blob (all sections, with header)", b);
     }
-    let compact = |v: f64| if tables.has_compact() { format!("{v:.2e}") } else { "n/a".into() };
+    let compact = |v: f64| {
+        if tables.has_compact() {
+            format!("{v:.2e}")
+        } else {
+            "n/a".into()
+        }
+    };
     let _ = writeln!(
         s,
         "  worst weight error: q15 sparse {:.2e}, q15 compact {}, f32 {:.2e}, q15 window {:.2e}",

@@ -43,7 +43,7 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
     let _ = writeln!(s, "/// The configuration these tables were generated for.");
     let _ = writeln!(
         s,
-        "pub const CONFIG: stapes_core::config::FrontEndConfig = stapes_core::config::FrontEndConfig {{"
+        "pub const CONFIG: stapes_core::config::FeatureConfig = stapes_core::config::FeatureConfig {{"
     );
     let _ = writeln!(s, "    sample_rate_hz: {},", c.sample_rate_hz);
     let _ = writeln!(s, "    window_samples: {},", c.window_samples);
