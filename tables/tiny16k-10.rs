@@ -204,6 +204,49 @@ pub static COMPACT_WEIGHTS_Q15: [i16; 127] = [
     10703, 11864, 13026, 14187, 15348, 16510, 17671, 18832, 19994, 21155, 22316, 23478,
     24639, 25800, 26961, 28123, 29284, 30445, 31607,
 ];
+pub static TWIDDLES_Q15: [i16; 65] = [
+    32767, 32758, 32729, 32679, 32610, 32522, 32413, 32286, 32138, 31972, 31786, 31581,
+    31357, 31114, 30853, 30572, 30274, 29957, 29622, 29269, 28899, 28511, 28106, 27684,
+    27246, 26791, 26320, 25833, 25330, 24812, 24279, 23732, 23170, 22595, 22006, 21403,
+    20788, 20160, 19520, 18868, 18205, 17531, 16846, 16151, 15447, 14733, 14010, 13279,
+    12540, 11793, 11039, 10279, 9512, 8740, 7962, 7180, 6393, 5602, 4808, 4011,
+    3212, 2411, 1608, 804, 0,
+];
+pub static TWIDDLES_Q31: [i32; 65] = [
+    2147483647, 2146836866, 2144896910, 2141664948, 2137142927, 2131333572, 2124240380, 2115867626,
+    2106220352, 2095304370, 2083126254, 2069693342, 2055013723, 2039096241, 2021950484, 2003586779,
+    1984016189, 1963250501, 1941302225, 1918184581, 1893911494, 1868497586, 1841958164, 1814309216,
+    1785567396, 1755750017, 1724875040, 1692961062, 1660027308, 1626093616, 1591180426, 1555308768,
+    1518500250, 1480777044, 1442161874, 1402678000, 1362349204, 1321199781, 1279254516, 1236538675,
+    1193077991, 1148898640, 1104027237, 1058490808, 1012316784, 965532978, 918167572, 870249095,
+    821806413, 772868706, 723465451, 673626408, 623381598, 572761285, 521795963, 470516330,
+    418953276, 367137861, 315101295, 262874923, 210490206, 157978697, 105372028, 52701887,
+    0,
+];
+
+/// Constants of the fixed-point path.
+pub const FIXED_PARAMS: stapes_core::fixed_tables::FixedParams = stapes_core::fixed_tables::FixedParams {
+    dc_pole: stapes_core::fixed::types::I1F15::from_bits(0),
+    pre_emphasis: stapes_core::fixed::types::I1F15::from_bits(0),
+    floor: stapes_core::fixed::types::I8F8::from_bits(-25600),
+    log2_to_output: stapes_core::fixed::types::I16F16::from_bits(197283),
+};
+
+/// Fixed-point tables, sparse filterbank.
+pub static FIXED_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = stapes_core::fixed_tables::FixedTables {
+    table: TABLE_Q15_SPARSE,
+    twiddles_q15: &TWIDDLES_Q15,
+    twiddles_q31: &TWIDDLES_Q31,
+    params: FIXED_PARAMS,
+};
+
+/// Fixed-point tables, compact filterbank.
+pub static FIXED_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = stapes_core::fixed_tables::FixedTables {
+    table: TABLE_Q15_COMPACT,
+    twiddles_q15: &TWIDDLES_Q15,
+    twiddles_q31: &TWIDDLES_Q31,
+    params: FIXED_PARAMS,
+};
 
 /// F32 weights, sparse filterbank.
 pub static TABLE_F32_SPARSE: stapes_core::table::TableView<'static, f32> = stapes_core::table::TableView {

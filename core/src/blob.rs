@@ -29,6 +29,7 @@ use core::fmt;
 
 use crate::config::{CONFIG_BYTES, FeatureConfig};
 use crate::crc32::Crc32;
+use crate::fixed_tables::{FixedParams, FixedTableError, FixedTables};
 use crate::table::{BinSpan, Filterbank, FilterbankForm, TableError, TableView, WeightType};
 
 /// First eight bytes of every blob.
@@ -69,6 +70,12 @@ pub enum SectionKind {
     GainsF32 = 10,
     /// Per-band gains, Q15 tables (log offsets).
     GainsQ15 = 11,
+    /// Quarter-wave cosine twiddles, Q15 (`i16`).
+    TwiddlesQ15 = 12,
+    /// Quarter-wave cosine twiddles, Q31 (`i32`).
+    TwiddlesQ31 = 13,
+    /// Fixed-path constants, [`FixedParams::to_words`](crate::fixed_tables::FixedParams::to_words).
+    FixedParams = 14,
 }
 
 impl SectionKind {
@@ -86,6 +93,9 @@ impl SectionKind {
             SectionKind::CompactWeightsQ15 => "compact weights q15",
             SectionKind::GainsF32 => "band gains f32",
             SectionKind::GainsQ15 => "band gains q15",
+            SectionKind::TwiddlesQ15 => "twiddles q15",
+            SectionKind::TwiddlesQ31 => "twiddles q31",
+            SectionKind::FixedParams => "fixed-point constants",
         }
     }
 }
@@ -389,5 +399,26 @@ impl<'a> TableBlob<'a> {
         };
         view.check(&self.config)?;
         Ok(view)
+    }
+
+    /// Checked tables for the fixed-point path in the given filterbank form.
+    pub fn fixed_tables(&self, form: FilterbankForm) -> Result<FixedTables<'a>, BlobError> {
+        let words = self.section::<i32>(SectionKind::FixedParams)?;
+        let params = FixedParams::from_words(words).ok_or(BlobError::BadSectionLength {
+            kind: SectionKind::FixedParams,
+        })?;
+        let tables = FixedTables {
+            table: self.view::<i16>(form)?,
+            twiddles_q15: self.section::<i16>(SectionKind::TwiddlesQ15)?,
+            twiddles_q31: self.section::<i32>(SectionKind::TwiddlesQ31)?,
+            params,
+        };
+        tables.check(&self.config).map_err(|e| match e {
+            FixedTableError::Table(t) => BlobError::Table(t),
+            FixedTableError::Twiddles { .. } => BlobError::BadSectionLength {
+                kind: SectionKind::TwiddlesQ15,
+            },
+        })?;
+        Ok(tables)
     }
 }

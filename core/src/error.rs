@@ -13,6 +13,8 @@ pub enum FrontEndError {
     Config(ConfigError),
     /// The table does not fit the configuration.
     Table(TableError),
+    /// The fixed-point tables do not fit the configuration.
+    Fixed(crate::fixed_tables::FixedTableError),
     /// A compile-time buffer is too small for the configuration.
     Capacity {
         /// Which buffer.
@@ -46,6 +48,7 @@ impl fmt::Display for FrontEndError {
         match *self {
             FrontEndError::Config(e) => write!(f, "{e}"),
             FrontEndError::Table(e) => write!(f, "{e}"),
+            FrontEndError::Fixed(e) => write!(f, "{e}"),
             FrontEndError::Capacity {
                 buffer,
                 needed,

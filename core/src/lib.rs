@@ -50,9 +50,13 @@ pub mod conditioning;
 pub mod config;
 pub mod crc32;
 pub mod error;
+pub mod fixed_path;
+pub mod fixed_tables;
 pub mod float_path;
 pub mod frame;
 pub mod framer;
+pub mod int_fft;
+pub mod int_log;
 pub mod log;
 pub mod mel;
 pub mod presets;
@@ -61,3 +65,6 @@ pub mod scale;
 pub mod spectrum_f32;
 pub mod table;
 pub mod window;
+
+/// The `fixed` crate, whose types name the fixed path's Q formats.
+pub use fixed;

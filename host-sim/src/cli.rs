@@ -4,6 +4,7 @@ use std::path::PathBuf;
 
 use clap::{Args, Parser, Subcommand, ValueEnum};
 
+use crate::check::Arith;
 use crate::config_source::ConfigArgs;
 use crate::wav::ChannelChoice;
 
@@ -84,6 +85,16 @@ pub struct CheckArgs {
     /// Print every band's statistics, not only the worst ten.
     #[arg(long)]
     pub all_bands: bool,
+    /// Arithmetic of the core: f32, fixed16 or fixed32.
+    #[arg(long, value_enum, default_value = "f32")]
+    pub arith: Arith,
+    /// Run the quantisation sweep instead (tones, white and pink noise, log
+    /// chirps at 0, -20, -40, -60 dBFS) for every arithmetic.
+    #[arg(long, conflicts_with_all = ["input", "arith"])]
+    pub sweep: bool,
+    /// Folder for the sweep's heat maps.
+    #[arg(long, value_name = "DIR", default_value = "stapes-sweep")]
+    pub out_dir: PathBuf,
 }
 
 /// `stapes features`.
@@ -101,6 +112,13 @@ pub struct FeaturesArgs {
     /// Input handling.
     #[command(flatten)]
     pub input_args: InputArgs,
+    /// Arithmetic of the core: f32, fixed16 or fixed32.
+    #[arg(long, value_enum, default_value = "f32")]
+    pub arith: Arith,
+    /// With a fixed arithmetic: write the board's exact int16 values (1/256 dB
+    /// or 1/256 ln per LSB) instead of float32.
+    #[arg(long)]
+    pub raw: bool,
 }
 
 /// `stapes demo`.

@@ -5,10 +5,11 @@ use std::path::{Path, PathBuf};
 use anyhow::{Context, Result, anyhow};
 use stapes_core::blob::TableBlob;
 use stapes_core::config::{FeatureConfig, LogKind};
+use stapes_core::fixed_tables::FixedTables;
 use stapes_core::presets;
 use stapes_core::table::{FilterbankForm, TableView};
 
-use crate::check::{check_f32, report};
+use crate::check::{Arith, CoreTables, check, check_f32, report, run_core};
 use crate::cli::{
     CheckArgs, Cli, Command, DemoArgs, FeaturesArgs, FormChoice, InputArgs, TablesArgs,
 };
@@ -16,7 +17,7 @@ use crate::config_source::{ConfigArgs, NamedConfig};
 use crate::emit::{BlobContents, size_report, write_all};
 use crate::generate::GeneratedTables;
 use crate::plots::{self, HeatMap};
-use crate::run::{Samples, run_float};
+use crate::run::Samples;
 use crate::synth::{DEMO_SEED, demo_clip};
 use crate::wav::{read_wav_for, write_wav_i16};
 
@@ -33,7 +34,7 @@ pub enum Outcome {
 pub fn run(cli: Cli) -> Result<Outcome> {
     match cli.command {
         Command::Tables(a) => tables(&a),
-        Command::Check(a) => check(&a),
+        Command::Check(a) => check_command(&a),
         Command::Features(a) => features(&a),
         Command::Demo(a) => demo(&a),
     }
@@ -131,6 +132,40 @@ impl LoadedTables {
     }
 }
 
+impl LoadedTables {
+    /// Fixed-point tables in `form`.
+    pub fn fixed_tables(&self, form: FilterbankForm) -> Result<FixedTables<'_>> {
+        match self {
+            LoadedTables::Generated(name, t) => {
+                if form == FilterbankForm::Compact && !t.has_compact() {
+                    return Err(anyhow!(
+                        "{name} has no compact filterbank (rounded-centre-bin triangles): use --form sparse"
+                    ));
+                }
+                t.fixed_tables(form).ok_or_else(|| {
+                    anyhow!(
+                        "{name}: the fixed path cannot represent floor_db = {} (its output spans +-128 dB or +-128 ln units); raise floor_db",
+                        t.config.floor_db
+                    )
+                })
+            }
+            LoadedTables::Blob(path, ..) => self
+                .blob()?
+                .expect("blob")
+                .fixed_tables(form)
+                .map_err(|e| anyhow!("{path}: {e}")),
+        }
+    }
+
+    /// The tables `arith` reads, in `form`.
+    pub fn core_tables(&self, arith: Arith, form: FilterbankForm) -> Result<CoreTables<'_>> {
+        Ok(match arith {
+            Arith::F32 => CoreTables::Float(self.view_f32(form)?),
+            Arith::Fixed16 | Arith::Fixed32 => CoreTables::Fixed(self.fixed_tables(form)?),
+        })
+    }
+}
+
 fn band_centres(config: &FeatureConfig) -> Vec<f64> {
     crate::design::design(config).centres_hz
 }
@@ -183,20 +218,30 @@ fn tables(a: &TablesArgs) -> Result<Outcome> {
     Ok(Outcome::Success)
 }
 
-fn check(a: &CheckArgs) -> Result<Outcome> {
+fn check_command(a: &CheckArgs) -> Result<Outcome> {
     let loaded = LoadedTables::load(&a.config, &a.input_args)?;
     let config = loaded.config()?;
+    if a.sweep {
+        return crate::sweep::sweep(&loaded, &config, form(a.input_args.form), &a.out_dir);
+    }
     let (input_name, samples) = load_input(a.input.as_deref(), &a.input_args, &config)?;
-    let view = loaded.view_f32(form(a.input_args.form))?;
+    let tables = loaded.core_tables(a.arith, form(a.input_args.form))?;
     crate::say!(
-        "check: {} (f32 core, {:?} filterbank) on {input_name}: {} samples, {:.2} s at {} Hz",
+        "check: {} ({} core, {:?} filterbank) on {input_name}: {} samples, {:.2} s at {} Hz",
         loaded.name(),
+        a.arith.name(),
         form(a.input_args.form),
         samples.len(),
         samples.len() as f64 / config.sample_rate_hz as f64,
         config.sample_rate_hz
     );
-    let run = check_f32(&config, view, &samples, a.input_args.chunk_samples)?;
+    let run = check(
+        a.arith,
+        &config,
+        tables,
+        &samples,
+        a.input_args.chunk_samples,
+    )?;
     crate::say_text!(report(&run, &band_centres(&config), a.all_bands));
     Ok(if run.passed() {
         Outcome::Success
@@ -216,20 +261,49 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
     let loaded = LoadedTables::load(&a.config, &a.input_args)?;
     let config = loaded.config()?;
     let samples = read_wav_for(&a.input, a.input_args.channel, config.sample_rate_hz)?;
-    let view = loaded.view_f32(form(a.input_args.form))?;
     let chunk = if a.input_args.chunk_samples == 0 {
         samples.len().max(1)
     } else {
         a.input_args.chunk_samples
     };
-    let frames = run_float(&config, view, &samples, chunk)?;
     let bands = config.bands as usize;
-    crate::npy::write_f32(
-        &a.output,
-        frames.len(),
-        bands,
-        frames.iter().flatten().copied(),
-    )?;
+    let tables = loaded.core_tables(a.arith, form(a.input_args.form))?;
+    let (frames, what) = if a.raw {
+        let CoreTables::Fixed(fixed) = tables else {
+            return Err(anyhow!(
+                "--raw writes the fixed path's integers: add --arith fixed16 or --arith fixed32"
+            ));
+        };
+        let x = samples.to_i16();
+        let ints = match a.arith {
+            Arith::Fixed16 => {
+                crate::run::run_fixed::<stapes_core::int_fft::Fixed16>(&config, fixed, &x, chunk)?
+            }
+            _ => crate::run::run_fixed::<stapes_core::int_fft::Fixed32>(&config, fixed, &x, chunk)?,
+        };
+        crate::npy::write_i16(
+            &a.output,
+            ints.len(),
+            bands,
+            ints.iter().flatten().map(|v| v.to_bits()),
+        )?;
+        (
+            crate::run::fixed_to_f32(&ints),
+            format!(
+                "int16 (1/256 {} per LSB, the board's exact values)",
+                unit(&config)
+            ),
+        )
+    } else {
+        let frames = run_core(a.arith, &config, tables, &samples, chunk)?;
+        crate::npy::write_f32(
+            &a.output,
+            frames.len(),
+            bands,
+            frames.iter().flatten().copied(),
+        )?;
+        (frames, format!("float32, {}", unit(&config)))
+    };
     let values: Vec<f32> = frames.iter().flatten().copied().collect();
     let (lo, hi) = values
         .iter()
@@ -238,9 +312,10 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
         });
     let mean = values.iter().map(|&v| v as f64).sum::<f64>() / values.len().max(1) as f64;
     crate::say!(
-        "features: {} with {} (f32 core)",
+        "features: {} with {} ({} core)",
         a.input.display(),
-        loaded.name()
+        loaded.name(),
+        a.arith.name()
     );
     crate::say!(
         "  input:  {} samples, {:.2} s at {} Hz",
@@ -255,11 +330,10 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
         config.hop_samples
     );
     crate::say!(
-        "  output: {} float32 [{} frames x {} bands], {}",
+        "  output: {} [{} frames x {} bands], {what}",
         a.output.display(),
         frames.len(),
-        bands,
-        unit(&config)
+        bands
     );
     if !values.is_empty() {
         crate::say!(
@@ -384,13 +458,13 @@ fn demo(a: &DemoArgs) -> Result<Outcome> {
         },
     )?;
     wrote.push((png, "reference log-mel spectrogram"));
-    let emax = run.comparison.overall.max.max(1e-9);
+    let emax = run.primary().overall.max.max(1e-9);
     let png = dir.join("log-mel-error.png");
     plots::heat_map(
         &png,
         &HeatMap {
             title: "|core - reference| (grey: more than 60 dB below the frame's loudest band)",
-            values: &run.comparison.error_map,
+            values: &run.primary().error_map,
             hop_s,
             centres_hz: &centres,
             range: (0.0, emax),

@@ -8,6 +8,8 @@
 //! each round once).
 
 use stapes_core::config::{FeatureConfig, LogKind};
+use stapes_core::fixed::types::{I1F15, I8F8, I16F16};
+use stapes_core::fixed_tables::{FixedParams, FixedTables};
 use stapes_core::table::{BinSpan, Filterbank, FilterbankForm, TableView};
 
 use crate::design::{Design, design};
@@ -44,6 +46,13 @@ pub struct GeneratedTables {
     pub gains_f32: Option<Vec<f32>>,
     /// Gains for Q15 tables: log offsets in 1/256 output units.
     pub gains_q15: Option<Vec<i16>>,
+    /// Quarter-wave cosine `cos(2πj/N)`, `j = 0 ..= N/4`, Q15.
+    pub twiddles_q15: Vec<i16>,
+    /// The same in Q31.
+    pub twiddles_q31: Vec<i32>,
+    /// Fixed-path constants; `None` when the floor is outside the fixed
+    /// output's range (±128 output units).
+    pub fixed_params: Option<FixedParams>,
     /// What quantisation cost.
     pub quantisation: QuantisationReport,
 }
@@ -185,8 +194,23 @@ impl GeneratedTables {
                 .collect()
         });
 
+        let quarter = config.fft_points as usize / 4;
+        let cosine =
+            |j: usize| (2.0 * std::f64::consts::PI * j as f64 / config.fft_points as f64).cos();
+        let twiddles_q15 = (0..=quarter).map(|j| q15_round(cosine(j))).collect();
+        let twiddles_q31 = (0..=quarter)
+            .map(|j| {
+                (cosine(j) * 2f64.powi(31))
+                    .round()
+                    .clamp(i32::MIN as f64, i32::MAX as f64) as i32
+            })
+            .collect();
+
         GeneratedTables {
             config: *config,
+            twiddles_q15,
+            twiddles_q31,
+            fixed_params: fixed_params(config),
             design,
             window_f32,
             window_q15,
@@ -200,6 +224,16 @@ impl GeneratedTables {
             gains_q15,
             quantisation: report,
         }
+    }
+
+    /// Tables for the fixed path, when it can represent this configuration.
+    pub fn fixed_tables(&self, form: FilterbankForm) -> Option<FixedTables<'_>> {
+        Some(FixedTables {
+            table: self.view_q15(form),
+            twiddles_q15: &self.twiddles_q15,
+            twiddles_q31: &self.twiddles_q31,
+            params: self.fixed_params?,
+        })
     }
 
     /// Whether the compact form exists for this configuration.
@@ -253,6 +287,34 @@ impl GeneratedTables {
             band_gains: self.gains_q15.as_deref(),
         }
     }
+}
+
+/// Output units per dB-or-neper: the fixed path's log unit for `config`.
+pub fn output_units_per_db(log: LogKind) -> f64 {
+    match log {
+        LogKind::Decibel => 1.0,
+        LogKind::Natural => std::f64::consts::LN_10 / 10.0,
+    }
+}
+
+/// The fixed path's constants for `config`, or `None` when its floor cannot
+/// be represented in the `I8F8` output.
+pub fn fixed_params(config: &FeatureConfig) -> Option<FixedParams> {
+    let q15 = |v: Option<f32>| I1F15::from_bits(v.map_or(0, |v| q15_round(v as f64)));
+    let floor = (config.floor_db as f64 * output_units_per_db(config.log) * 256.0).round();
+    if floor < i16::MIN as f64 || floor > i16::MAX as f64 {
+        return None;
+    }
+    let log2_to_output = match config.log {
+        LogKind::Decibel => 10.0 * 2f64.log10(),
+        LogKind::Natural => std::f64::consts::LN_2,
+    };
+    Some(FixedParams {
+        dc_pole: q15(config.dc_removal_pole),
+        pre_emphasis: q15(config.pre_emphasis),
+        floor: I8F8::from_bits(floor as i16),
+        log2_to_output: I16F16::from_bits((log2_to_output * 65536.0).round() as i32),
+    })
 }
 
 /// Per band, rising sum of its own segment plus falling sum of the next.

@@ -34,5 +34,6 @@ pub mod output;
 pub mod plots;
 pub mod reference;
 pub mod run;
+pub mod sweep;
 pub mod synth;
 pub mod wav;

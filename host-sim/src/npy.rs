@@ -27,6 +27,35 @@ pub fn write_f32(
     })
 }
 
+/// Writes a `rows × cols` array of `i16` (`<i2`).
+pub fn write_i16(
+    path: &Path,
+    rows: usize,
+    cols: usize,
+    data: impl IntoIterator<Item = i16>,
+) -> Result<()> {
+    write_atomic_with(path, |file| {
+        let mut w = npyz::WriteOptions::new()
+            .default_dtype()
+            .shape(&[rows as u64, cols as u64])
+            .writer(BufWriter::new(file))
+            .begin_nd()?;
+        w.extend(data)?;
+        w.finish()?;
+        Ok(())
+    })
+}
+
+/// Reads a 2-D `i16` array: `(rows, cols, data)`.
+pub fn read_i16(path: &Path) -> Result<(usize, usize, Vec<i16>)> {
+    let bytes = std::fs::read(path)?;
+    let npy = npyz::NpyFile::new(&bytes[..])?;
+    let shape = npy.shape().to_vec();
+    anyhow::ensure!(shape.len() == 2, "{} is not a 2-D array", path.display());
+    let data = npy.into_vec::<i16>()?;
+    Ok((shape[0] as usize, shape[1] as usize, data))
+}
+
 /// Reads a 2-D `f32` array: `(rows, cols, data)`.
 pub fn read_f32(path: &Path) -> Result<(usize, usize, Vec<f32>)> {
     let bytes = std::fs::read(path)?;

@@ -229,3 +229,107 @@ pub fn filterbank(path: &Path, title: &str, bands: &[Vec<(f64, f64)>], max_hz: f
     }
     finish_png(tmp, path)
 }
+
+/// Draws a band × level heat map of values (rows = levels, columns = bands).
+pub fn band_level_map(
+    path: &Path,
+    title: &str,
+    levels_dbfs: &[f64],
+    values: &[Vec<f64>],
+    centres_hz: &[f64],
+) -> Result<()> {
+    let f = font();
+    let tmp = tempfile::Builder::new()
+        .suffix(".png")
+        .tempfile_in(path.parent().unwrap_or(Path::new(".")))?;
+    {
+        let root = BitMapBackend::new(tmp.path(), (900, 520)).into_drawing_area();
+        root.fill(&WHITE).map_err(err(path))?;
+        let (main, bar) = root.split_horizontally(760);
+        let bands = centres_hz.len();
+        let cols = levels_dbfs.len();
+        let hi = values
+            .iter()
+            .flatten()
+            .copied()
+            .fold(0.0f64, f64::max)
+            .max(1e-9);
+        let levels = levels_dbfs.to_vec();
+        let centres = centres_hz.to_vec();
+        let mut chart = ChartBuilder::on(&main)
+            .caption(title, (f, 16))
+            .margin(10)
+            .x_label_area_size(40)
+            .y_label_area_size(55)
+            .right_y_label_area_size(65)
+            .build_cartesian_2d(0f64..cols as f64, 0f64..bands as f64)
+            .map_err(err(path))?
+            .set_secondary_coord(0f64..cols as f64, 0f64..bands as f64);
+        chart
+            .configure_mesh()
+            .disable_mesh()
+            .x_desc("input level (dBFS, peak)")
+            .y_desc("band index")
+            .x_labels(cols * 2 + 1)
+            .x_label_formatter(&|x: &f64| {
+                let i = x.floor() as usize;
+                if (x - x.floor() - 0.5).abs() < 0.01 && i < levels.len() {
+                    format!("{:.0}", levels[i])
+                } else {
+                    String::new()
+                }
+            })
+            .y_label_formatter(&|b: &f64| format!("{b:.0}"))
+            .label_style((f, 13))
+            .axis_desc_style((f, 14))
+            .draw()
+            .map_err(err(path))?;
+        chart
+            .configure_secondary_axes()
+            .y_desc("band centre (Hz)")
+            .y_labels(8)
+            .y_label_formatter(&|b: &f64| {
+                let i = (b.floor() as usize).min(centres.len().saturating_sub(1));
+                format!("{:.0}", centres.get(i).copied().unwrap_or(0.0))
+            })
+            .label_style((f, 13))
+            .axis_desc_style((f, 14))
+            .draw()
+            .map_err(err(path))?;
+        chart
+            .draw_series(values.iter().enumerate().flat_map(|(c, row)| {
+                row.iter().enumerate().map(move |(b, &v)| {
+                    Rectangle::new(
+                        [(c as f64, b as f64), (c as f64 + 1.0, b as f64 + 1.0)],
+                        palette(v / hi).filled(),
+                    )
+                })
+            }))
+            .map_err(err(path))?;
+        let mut scale = ChartBuilder::on(&bar)
+            .margin_top(40)
+            .margin_bottom(50)
+            .margin_right(10)
+            .y_label_area_size(60)
+            .caption("dB", (f, 14))
+            .build_cartesian_2d(0f64..1f64, 0f64..hi)
+            .map_err(err(path))?;
+        scale
+            .configure_mesh()
+            .disable_mesh()
+            .disable_x_axis()
+            .y_label_formatter(&|v: &f64| format!("{v:.1e}"))
+            .label_style((f, 12))
+            .draw()
+            .map_err(err(path))?;
+        scale
+            .draw_series((0..100).map(|s| {
+                let v0 = hi * s as f64 / 100.0;
+                let v1 = hi * (s + 1) as f64 / 100.0;
+                Rectangle::new([(0.0, v0), (1.0, v1)], palette(s as f64 / 100.0).filled())
+            }))
+            .map_err(err(path))?;
+        root.present().map_err(err(path))?;
+    }
+    finish_png(tmp, path)
+}

@@ -2,6 +2,9 @@
 
 use anyhow::{Result, anyhow};
 use stapes_core::config::FeatureConfig;
+use stapes_core::fixed::types::I8F8;
+use stapes_core::fixed_path::{FixedFrontEnd, FrameData, TwiddlesFor};
+use stapes_core::fixed_tables::FixedTables;
 use stapes_core::float_path::FloatFrontEnd;
 use stapes_core::sample::Sample;
 use stapes_core::table::TableView;
@@ -30,6 +33,19 @@ impl Samples {
     /// Whether there are none.
     pub fn is_empty(&self) -> bool {
         self.len() == 0
+    }
+
+    /// The samples as `i16`, as the fixed path takes them: 16-bit input as it
+    /// is, float input rounded to the nearest 16-bit value (saturating at full
+    /// scale). Compare the fixed path against the reference on these.
+    pub fn to_i16(&self) -> Vec<i16> {
+        match self {
+            Samples::I16(v) => v.clone(),
+            Samples::F32(v) => v
+                .iter()
+                .map(|&s| (s as f64 * 32768.0).round().clamp(-32768.0, 32767.0) as i16)
+                .collect(),
+        }
     }
 
     /// Full-scale-normalised `f64` copies, for the reference.
@@ -79,4 +95,37 @@ pub fn run_float(
         Samples::F32(v) => drive(&mut fe, v, chunk, &mut out),
     }
     Ok(out)
+}
+
+/// Runs the fixed-point core (precision `P`) over 16-bit samples, fed `chunk`
+/// at a time; frames hold the board's exact `I8F8` values.
+pub fn run_fixed<P>(
+    config: &FeatureConfig,
+    tables: FixedTables<'_>,
+    samples: &[i16],
+    chunk: usize,
+) -> Result<Vec<Vec<I8F8>>>
+where
+    P: TwiddlesFor,
+    P::Data: FrameData,
+{
+    let mut fe = Box::new(
+        FixedFrontEnd::<P, 4096, 4096, 256>::new(*config, tables).map_err(|e| anyhow!("{e}"))?,
+    );
+    let mut out = Vec::with_capacity(frame_count(config, samples.len()));
+    for piece in samples.chunks(chunk.max(1)) {
+        let mut rest = piece;
+        while let Some(frame) = fe.next_frame(&mut rest) {
+            out.push(frame.bands.to_vec());
+        }
+    }
+    Ok(out)
+}
+
+/// `I8F8` output units as `f32` (exact: the values are multiples of 1/256).
+pub fn fixed_to_f32(frames: &[Vec<I8F8>]) -> Vec<Vec<f32>> {
+    frames
+        .iter()
+        .map(|r| r.iter().map(|v| v.to_bits() as f32 / 256.0).collect())
+        .collect()
 }

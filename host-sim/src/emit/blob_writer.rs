@@ -43,7 +43,7 @@ macro_rules! le_bytes {
         }
     )*};
 }
-le_bytes!(f32, i16, u16);
+le_bytes!(f32, i16, u16, i32);
 
 impl LeBytes for [u16; 2] {
     fn put_le(&self, out: &mut Vec<u8>) {
@@ -102,6 +102,11 @@ pub fn sections(tables: &GeneratedTables, contents: BlobContents) -> Vec<(Sectio
     }
     if let (true, Some(g)) = (contents.q15, &tables.gains_q15) {
         out.push((SectionKind::GainsQ15, bytes_of(g)));
+    }
+    if let (true, Some(p)) = (contents.q15, &tables.fixed_params) {
+        out.push((SectionKind::TwiddlesQ15, bytes_of(&tables.twiddles_q15)));
+        out.push((SectionKind::TwiddlesQ31, bytes_of(&tables.twiddles_q31)));
+        out.push((SectionKind::FixedParams, bytes_of(&p.to_words())));
     }
     out
 }

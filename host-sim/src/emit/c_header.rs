@@ -164,6 +164,44 @@ pub fn c_header(tables: &GeneratedTables, prefix: &str, command: &str) -> String
             |v| v.to_string(),
         );
     }
+    let _ = writeln!(
+        s,
+        "/* Quarter-wave cosine cos(2*pi*j/N), j = 0..N/4, for the integer FFT. */"
+    );
+    array(
+        &mut s,
+        "int16_t",
+        &format!("{prefix}_twiddles_q15"),
+        &tables.twiddles_q15,
+        12,
+        |v| v.to_string(),
+    );
+    array(
+        &mut s,
+        "int32_t",
+        &format!("{prefix}_twiddles_q31"),
+        &tables.twiddles_q31,
+        8,
+        |v| format!("{v}"),
+    );
+    if let Some(p) = &tables.fixed_params {
+        let _ = writeln!(
+            s,
+            "/* Fixed path: DC pole and pre-emphasis Q15, floor Q8.8 output units, log2-to-output Q16.16. */"
+        );
+        let _ = writeln!(s, "#define {upper}_DC_POLE_Q15 {}", p.dc_pole.to_bits());
+        let _ = writeln!(
+            s,
+            "#define {upper}_PRE_EMPHASIS_Q15 {}",
+            p.pre_emphasis.to_bits()
+        );
+        let _ = writeln!(s, "#define {upper}_FLOOR_Q8 ({})", p.floor.to_bits());
+        let _ = writeln!(
+            s,
+            "#define {upper}_LOG2_TO_OUTPUT_Q16 {}",
+            p.log2_to_output.to_bits()
+        );
+    }
     let _ = writeln!(s);
     let _ = writeln!(s, "#endif /* {upper}_H */");
     s

@@ -94,6 +94,10 @@ pub struct PartSizes {
     pub gains_q15: usize,
     /// The dense f32 matrix a naive implementation would store.
     pub dense_f32: usize,
+    /// Quarter-wave twiddles, Q15 (for the 16-bit integer FFT).
+    pub twiddles_q15: usize,
+    /// Quarter-wave twiddles, Q31 (for the 32-bit integer FFT).
+    pub twiddles_q31: usize,
 }
 
 impl PartSizes {
@@ -112,6 +116,8 @@ impl PartSizes {
             gains_f32: tables.gains_f32.as_ref().map_or(0, |g| g.len() * 4),
             gains_q15: tables.gains_q15.as_ref().map_or(0, |g| g.len() * 2),
             dense_f32: c.bands as usize * c.spectrum_bins() * 4,
+            twiddles_q15: tables.twiddles_q15.len() * 2,
+            twiddles_q31: tables.twiddles_q31.len() * 4,
         }
     }
 
@@ -218,6 +224,22 @@ pub fn size_report(tables: &GeneratedTables, name: &str, blob_bytes: Option<usiz
         format!("dense f32 matrix ({} x {} x 4)", c.bands, c.spectrum_bins()),
         p.dense_f32
     );
+    let _ = writeln!(
+        s,
+        "  {:<34} {:>10} {:>10}",
+        format!(
+            "fixed FFT twiddles ({}: q31 | q15)",
+            tables.twiddles_q15.len()
+        ),
+        p.twiddles_q31,
+        p.twiddles_q15
+    );
+    if tables.fixed_params.is_none() {
+        let _ = writeln!(
+            s,
+            "  fixed path: not available (the floor lies outside the +-128-unit fixed output)"
+        );
+    }
     if let Some(b) = blob_bytes {
         let _ = writeln!(s, "  {:<34} {:>10}", "blob (all sections, with header)", b);
     }

@@ -161,6 +161,73 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
     if let Some(g) = &tables.gains_q15 {
         array(&mut s, "BAND_GAINS_Q15", "i16", g, 12, |v| v.to_string());
     }
+    array(
+        &mut s,
+        "TWIDDLES_Q15",
+        "i16",
+        &tables.twiddles_q15,
+        12,
+        |v| v.to_string(),
+    );
+    array(
+        &mut s,
+        "TWIDDLES_Q31",
+        "i32",
+        &tables.twiddles_q31,
+        8,
+        |v| v.to_string(),
+    );
+    if let Some(p) = &tables.fixed_params {
+        let _ = writeln!(s);
+        let _ = writeln!(s, "/// Constants of the fixed-point path.");
+        let _ = writeln!(
+            s,
+            "pub const FIXED_PARAMS: stapes_core::fixed_tables::FixedParams = stapes_core::fixed_tables::FixedParams {{"
+        );
+        let _ = writeln!(
+            s,
+            "    dc_pole: stapes_core::fixed::types::I1F15::from_bits({}),",
+            p.dc_pole.to_bits()
+        );
+        let _ = writeln!(
+            s,
+            "    pre_emphasis: stapes_core::fixed::types::I1F15::from_bits({}),",
+            p.pre_emphasis.to_bits()
+        );
+        let _ = writeln!(
+            s,
+            "    floor: stapes_core::fixed::types::I8F8::from_bits({}),",
+            p.floor.to_bits()
+        );
+        let _ = writeln!(
+            s,
+            "    log2_to_output: stapes_core::fixed::types::I16F16::from_bits({}),",
+            p.log2_to_output.to_bits()
+        );
+        let _ = writeln!(s, "}};");
+        for form in tables.forms() {
+            let name = if form == FilterbankForm::Sparse {
+                "SPARSE"
+            } else {
+                "COMPACT"
+            };
+            let _ = writeln!(s);
+            let _ = writeln!(
+                s,
+                "/// Fixed-point tables, {} filterbank.",
+                name.to_lowercase()
+            );
+            let _ = writeln!(
+                s,
+                "pub static FIXED_{name}: stapes_core::fixed_tables::FixedTables<'static> = stapes_core::fixed_tables::FixedTables {{"
+            );
+            let _ = writeln!(s, "    table: TABLE_Q15_{name},");
+            let _ = writeln!(s, "    twiddles_q15: &TWIDDLES_Q15,");
+            let _ = writeln!(s, "    twiddles_q31: &TWIDDLES_Q31,");
+            let _ = writeln!(s, "    params: FIXED_PARAMS,");
+            let _ = writeln!(s, "}};");
+        }
+    }
     for (ty, suffix) in [("f32", "F32"), ("i16", "Q15")] {
         for form in tables.forms() {
             let (form_name, filterbank) = match form {

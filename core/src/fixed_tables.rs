@@ -1,0 +1,107 @@
+//! What the fixed-point path reads besides the Q15 table view: the FFT's
+//! twiddle factors and the constants that would otherwise need float work on
+//! the board. The generator computes all of them; the board only reads them.
+
+use core::fmt;
+
+use fixed::types::{I1F15, I8F8, I16F16};
+
+use crate::config::FeatureConfig;
+use crate::table::{TableError, TableView};
+
+/// Constants of the fixed path, each in a visible Q format.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct FixedParams {
+    /// DC removal pole `p` (0 when DC removal is off).
+    pub dc_pole: I1F15,
+    /// Pre-emphasis coefficient `a` (0 when off).
+    pub pre_emphasis: I1F15,
+    /// Output floor in output units (dB or natural log), 1/256 per LSB.
+    pub floor: I8F8,
+    /// Output units per unit of `log2`: `10·log10(2)` for dB, `ln 2` for natural log.
+    pub log2_to_output: I16F16,
+}
+
+impl FixedParams {
+    /// The raw words stored in a blob: `[dc_pole, pre_emphasis, floor, log2_to_output]`.
+    pub fn to_words(&self) -> [i32; 4] {
+        [
+            self.dc_pole.to_bits() as i32,
+            self.pre_emphasis.to_bits() as i32,
+            self.floor.to_bits() as i32,
+            self.log2_to_output.to_bits(),
+        ]
+    }
+
+    /// Decodes [`FixedParams::to_words`]; `None` when a word is out of its format's range.
+    pub fn from_words(w: &[i32]) -> Option<FixedParams> {
+        let [dc, pre, floor, k] = *w else { return None };
+        let q15 = |v: i32| i16::try_from(v).ok().map(I1F15::from_bits);
+        Some(FixedParams {
+            dc_pole: q15(dc)?,
+            pre_emphasis: q15(pre)?,
+            floor: I8F8::from_bits(i16::try_from(floor).ok()?),
+            log2_to_output: I16F16::from_bits(k),
+        })
+    }
+}
+
+/// Everything the fixed path reads.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct FixedTables<'a> {
+    /// Q15 window and filterbank; gains are log offsets in output units (1/256).
+    pub table: TableView<'a, i16>,
+    /// Quarter-wave cosine `cos(2πj/N)`, `j = 0 ..= N/4`, Q15 (1.0 as 32767).
+    pub twiddles_q15: &'a [i16],
+    /// The same in Q31 (1.0 as 2^31 − 1).
+    pub twiddles_q31: &'a [i32],
+    /// Constants.
+    pub params: FixedParams,
+}
+
+/// Why fixed tables do not fit a configuration.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum FixedTableError {
+    /// The Q15 view does not fit.
+    Table(TableError),
+    /// A twiddle table has the wrong length.
+    Twiddles {
+        /// Entries found.
+        found: usize,
+        /// Entries needed (`fft_points / 4 + 1`).
+        expected: usize,
+    },
+}
+
+impl From<TableError> for FixedTableError {
+    fn from(e: TableError) -> Self {
+        FixedTableError::Table(e)
+    }
+}
+
+impl fmt::Display for FixedTableError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match *self {
+            FixedTableError::Table(e) => write!(f, "{e}"),
+            FixedTableError::Twiddles { found, expected } => write!(
+                f,
+                "twiddle table has {found} entries where the FFT needs {expected}: regenerate the table"
+            ),
+        }
+    }
+}
+
+impl FixedTables<'_> {
+    /// Checks the tables against `config` (integer work only).
+    pub fn check(&self, config: &FeatureConfig) -> Result<(), FixedTableError> {
+        self.table.check(config)?;
+        let expected = config.fft_points as usize / 4 + 1;
+        for found in [self.twiddles_q15.len(), self.twiddles_q31.len()] {
+            if found != expected {
+                return Err(FixedTableError::Twiddles { found, expected });
+            }
+        }
+        Ok(())
+    }
+}
