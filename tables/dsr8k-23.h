@@ -180,8 +180,8 @@ static const int32_t stapes_dsr8k_23_twiddles_q31[65] = {
     418953276, 367137861, 315101295, 262874923, 210490206, 157978697, 105372028, 52701887,
     0,
 };
-/* Fixed path: DC pole and pre-emphasis Q15, floor Q8.8 output units, log2-to-output Q16.16. */
-#define STAPES_DSR8K_23_DC_POLE_Q15 32735
+/* Fixed path: DC pole Q31, pre-emphasis Q15, floor Q8.8 output units, log2-to-output Q16.16. */
+#define STAPES_DSR8K_23_DC_POLE_Q31 2145336192
 #define STAPES_DSR8K_23_PRE_EMPHASIS_Q15 31785
 #define STAPES_DSR8K_23_FLOOR_Q8 (-12800)
 #define STAPES_DSR8K_23_LOG2_TO_OUTPUT_Q16 45426

@@ -182,7 +182,7 @@ pub static TWIDDLES_Q31: [i32; 65] = [
 
 /// Constants of the fixed-point path.
 pub const FIXED_PARAMS: stapes_core::fixed_tables::FixedParams = stapes_core::fixed_tables::FixedParams {
-    dc_pole: stapes_core::fixed::types::I1F15::from_bits(32735),
+    dc_pole: stapes_core::fixed::types::I1F31::from_bits(2145336192),
     pre_emphasis: stapes_core::fixed::types::I1F15::from_bits(31785),
     floor: stapes_core::fixed::types::I8F8::from_bits(-12800),
     log2_to_output: stapes_core::fixed::types::I16F16::from_bits(45426),

@@ -405,8 +405,8 @@ static const int32_t stapes_speech16k_40_twiddles_q31[129] = {
     210490206, 184248325, 157978697, 131685278, 105372028, 79042909, 52701887, 26352928,
     0,
 };
-/* Fixed path: DC pole and pre-emphasis Q15, floor Q8.8 output units, log2-to-output Q16.16. */
-#define STAPES_SPEECH16K_40_DC_POLE_Q15 0
+/* Fixed path: DC pole Q31, pre-emphasis Q15, floor Q8.8 output units, log2-to-output Q16.16. */
+#define STAPES_SPEECH16K_40_DC_POLE_Q31 0
 #define STAPES_SPEECH16K_40_PRE_EMPHASIS_Q15 0
 #define STAPES_SPEECH16K_40_FLOOR_Q8 (-25600)
 #define STAPES_SPEECH16K_40_LOG2_TO_OUTPUT_Q16 197283

@@ -225,8 +225,8 @@ static const int32_t stapes_tiny16k_10_twiddles_q31[65] = {
     418953276, 367137861, 315101295, 262874923, 210490206, 157978697, 105372028, 52701887,
     0,
 };
-/* Fixed path: DC pole and pre-emphasis Q15, floor Q8.8 output units, log2-to-output Q16.16. */
-#define STAPES_TINY16K_10_DC_POLE_Q15 0
+/* Fixed path: DC pole Q31, pre-emphasis Q15, floor Q8.8 output units, log2-to-output Q16.16. */
+#define STAPES_TINY16K_10_DC_POLE_Q31 0
 #define STAPES_TINY16K_10_PRE_EMPHASIS_Q15 0
 #define STAPES_TINY16K_10_FLOOR_Q8 (-25600)
 #define STAPES_TINY16K_10_LOG2_TO_OUTPUT_Q16 197283

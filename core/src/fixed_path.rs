@@ -58,20 +58,26 @@ use crate::table::Filterbank;
 const CONDITIONING_FRACTION_BITS: u32 = 12;
 
 /// Integer DC removal and pre-emphasis (see the module docs).
+///
+/// DC removal runs with a Q31 pole and *fraction saving*: the bits the
+/// feedback product drops are carried into the next sample's product, so
+/// truncation neither biases the output nor leaves a limit cycle; in silence
+/// the state settles at exactly 0.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub struct IntConditioner {
     dc_pole: Option<i32>,
     pre_emphasis: Option<i32>,
     last_in: i32,
     dc_last_out: i32,
+    dc_carry: i64,
     pre_last_in: i32,
 }
 
 impl IntConditioner {
-    /// Zero state, coefficients in Q15.
-    pub fn new(dc_pole_q15: Option<i32>, pre_emphasis_q15: Option<i32>) -> Self {
+    /// Zero state; the DC pole in Q31, the pre-emphasis coefficient in Q15.
+    pub fn new(dc_pole_q31: Option<i32>, pre_emphasis_q15: Option<i32>) -> Self {
         IntConditioner {
-            dc_pole: dc_pole_q15,
+            dc_pole: dc_pole_q31,
             pre_emphasis: pre_emphasis_q15,
             ..Default::default()
         }
@@ -88,11 +94,12 @@ impl IntConditioner {
         let x = (raw as i32) << CONDITIONING_FRACTION_BITS;
         let y = match self.dc_pole {
             Some(p) => {
-                // |y| <= 2·max|x| (the filter's impulse response has L1 norm 2).
-                // The feedback is truncated towards zero, so the state decays to
-                // exactly 0 in silence instead of sticking in a rounding dead band.
-                let feedback = ((p as i64 * self.dc_last_out as i64) / (1 << 15)) as i32;
-                let y = x - self.last_in + feedback;
+                // |y| ≤ 2·max|x| (the filter's impulse response has L1 norm 2);
+                // p·y < 2^31 · 2^28 fits i64, and so does the carry (< 2^31).
+                let acc = p as i64 * self.dc_last_out as i64 + self.dc_carry;
+                let feedback = acc >> 31;
+                self.dc_carry = acc - (feedback << 31);
+                let y = x - self.last_in + feedback as i32;
                 self.last_in = x;
                 self.dc_last_out = y;
                 y

@@ -4,7 +4,7 @@
 
 use core::fmt;
 
-use fixed::types::{I1F15, I8F8, I16F16};
+use fixed::types::{I1F15, I1F31, I8F8, I16F16};
 
 use crate::config::FeatureConfig;
 use crate::table::{TableError, TableView};
@@ -12,8 +12,10 @@ use crate::table::{TableError, TableView};
 /// Constants of the fixed path, each in a visible Q format.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct FixedParams {
-    /// DC removal pole `p` (0 when DC removal is off).
-    pub dc_pole: I1F15,
+    /// DC removal pole `p` (0 when DC removal is off), Q31: a recursive
+    /// filter's pole needs the precision (Q15 would shift 0.999 by 1e-5 and
+    /// change its decay by 0.35 dB within half a second).
+    pub dc_pole: I1F31,
     /// Pre-emphasis coefficient `a` (0 when off).
     pub pre_emphasis: I1F15,
     /// Output floor in output units (dB or natural log), 1/256 per LSB.
@@ -26,7 +28,7 @@ impl FixedParams {
     /// The raw words stored in a blob: `[dc_pole, pre_emphasis, floor, log2_to_output]`.
     pub fn to_words(&self) -> [i32; 4] {
         [
-            self.dc_pole.to_bits() as i32,
+            self.dc_pole.to_bits(),
             self.pre_emphasis.to_bits() as i32,
             self.floor.to_bits() as i32,
             self.log2_to_output.to_bits(),
@@ -38,7 +40,7 @@ impl FixedParams {
         let [dc, pre, floor, k] = *w else { return None };
         let q15 = |v: i32| i16::try_from(v).ok().map(I1F15::from_bits);
         Some(FixedParams {
-            dc_pole: q15(dc)?,
+            dc_pole: I1F31::from_bits(dc),
             pre_emphasis: q15(pre)?,
             floor: I8F8::from_bits(i16::try_from(floor).ok()?),
             log2_to_output: I16F16::from_bits(k),

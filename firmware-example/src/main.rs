@@ -1,31 +1,47 @@
-//! stapes on a Cortex-M4F: the reference preset's compiled-in f32 table, fed
-//! a tone in DMA-sized chunks. This is the minimal board binary; running it
-//! under emulation and reporting frames is the firmware example's next step.
+//! stapes on a Cortex-M board: the reference preset's compiled-in tables, fed
+//! a test signal in DMA-sized chunks, in the arithmetic chosen by a cargo
+//! feature (`f32`, `fixed16`, `fixed32`). This is the minimal board binary;
+//! running it under emulation and reporting frames is the firmware example's
+//! next step.
 #![no_std]
 #![no_main]
+
+#[cfg(not(any(feature = "f32", feature = "fixed16", feature = "fixed32")))]
+compile_error!("enable exactly one arithmetic feature: f32, fixed16 or fixed32");
 
 use core::panic::PanicInfo;
 
 use cortex_m_rt::entry;
-use stapes_core::float_path::FloatFrontEnd;
 
 #[allow(dead_code)]
 mod preset {
     include!("../../tables/speech16k-40.rs");
 }
 
-type BoardFrontEnd = FloatFrontEnd<'static, { preset::FFT_POINTS }, { preset::OVERLAP_SAMPLES }, { preset::BANDS }>;
-
 /// One DMA half-buffer of 10 ms at 16 kHz.
 const CHUNK: usize = 160;
 
+#[cfg(feature = "f32")]
+type BoardFrontEnd = stapes_core::float_path::FloatFrontEnd<'static, { preset::FFT_POINTS }, { preset::OVERLAP_SAMPLES }, { preset::BANDS }>;
+#[cfg(all(feature = "fixed16", not(feature = "f32")))]
+type BoardFrontEnd = stapes_core::fixed_path::FixedFrontEnd<'static, stapes_core::int_fft::Fixed16, { preset::FFT_POINTS }, { preset::OVERLAP_SAMPLES }, { preset::BANDS }>;
+#[cfg(all(feature = "fixed32", not(any(feature = "f32", feature = "fixed16"))))]
+type BoardFrontEnd = stapes_core::fixed_path::FixedFrontEnd<'static, stapes_core::int_fft::Fixed32, { preset::FFT_POINTS }, { preset::OVERLAP_SAMPLES }, { preset::BANDS }>;
+
+fn front_end() -> Option<BoardFrontEnd> {
+    #[cfg(feature = "f32")]
+    let made = BoardFrontEnd::new(preset::CONFIG, preset::TABLE_F32_COMPACT);
+    #[cfg(not(feature = "f32"))]
+    let made = BoardFrontEnd::new(preset::CONFIG, preset::FIXED_COMPACT);
+    made.ok()
+}
+
 #[entry]
 fn main() -> ! {
-    let mut fe = match BoardFrontEnd::new(preset::CONFIG, preset::TABLE_F32_COMPACT) {
-        Ok(fe) => fe,
-        Err(_) => loop {
+    let Some(mut fe) = front_end() else {
+        loop {
             cortex_m::asm::bkpt();
-        },
+        }
     };
     let mut chunk = [0i16; CHUNK];
     let mut phase: u32 = 0;
@@ -38,9 +54,8 @@ fn main() -> ! {
         }
         let mut rest = &chunk[..];
         while let Some(frame) = fe.next_frame(&mut rest) {
-            checksum = checksum.wrapping_add(frame.bands[0].to_bits());
+            checksum = checksum.wrapping_add(frame.bands[0].to_bits() as u32);
         }
-        cortex_m::asm::nop();
         core::hint::black_box(checksum);
     }
 }

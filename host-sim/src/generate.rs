@@ -8,7 +8,7 @@
 //! each round once).
 
 use stapes_core::config::{FeatureConfig, LogKind};
-use stapes_core::fixed::types::{I1F15, I8F8, I16F16};
+use stapes_core::fixed::types::{I1F15, I1F31, I8F8, I16F16};
 use stapes_core::fixed_tables::{FixedParams, FixedTables};
 use stapes_core::table::{BinSpan, Filterbank, FilterbankForm, TableView};
 
@@ -309,8 +309,15 @@ pub fn fixed_params(config: &FeatureConfig) -> Option<FixedParams> {
         LogKind::Decibel => 10.0 * 2f64.log10(),
         LogKind::Natural => std::f64::consts::LN_2,
     };
+    let q31 = |v: Option<f32>| {
+        I1F31::from_bits(v.map_or(0, |v| {
+            (v as f64 * 2f64.powi(31))
+                .round()
+                .clamp(i32::MIN as f64, i32::MAX as f64) as i32
+        }))
+    };
     Some(FixedParams {
-        dc_pole: q15(config.dc_removal_pole),
+        dc_pole: q31(config.dc_removal_pole),
         pre_emphasis: q15(config.pre_emphasis),
         floor: I8F8::from_bits(floor as i16),
         log2_to_output: I16F16::from_bits((log2_to_output * 65536.0).round() as i32),

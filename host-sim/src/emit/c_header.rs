@@ -187,9 +187,9 @@ pub fn c_header(tables: &GeneratedTables, prefix: &str, command: &str) -> String
     if let Some(p) = &tables.fixed_params {
         let _ = writeln!(
             s,
-            "/* Fixed path: DC pole and pre-emphasis Q15, floor Q8.8 output units, log2-to-output Q16.16. */"
+            "/* Fixed path: DC pole Q31, pre-emphasis Q15, floor Q8.8 output units, log2-to-output Q16.16. */"
         );
-        let _ = writeln!(s, "#define {upper}_DC_POLE_Q15 {}", p.dc_pole.to_bits());
+        let _ = writeln!(s, "#define {upper}_DC_POLE_Q31 {}", p.dc_pole.to_bits());
         let _ = writeln!(
             s,
             "#define {upper}_PRE_EMPHASIS_Q15 {}",

@@ -186,7 +186,7 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
         );
         let _ = writeln!(
             s,
-            "    dc_pole: stapes_core::fixed::types::I1F15::from_bits({}),",
+            "    dc_pole: stapes_core::fixed::types::I1F31::from_bits({}),",
             p.dc_pole.to_bits()
         );
         let _ = writeln!(

@@ -1,0 +1,470 @@
+//! The fixed-point path against outside references: rustfft (f64) for the
+//! integer FFT, f64 log2 for the integer log, Bennett's quantisation-noise
+//! formula, the f64 design for the Q15 tables, and the f64 reference front end
+//! for saturation cases; plus streaming, blob and CLI behaviour.
+
+use clap::Parser;
+use rand::Rng;
+use rustfft::FftPlanner;
+use rustfft::num_complex::Complex64;
+use stapes_core::blob::TableBlob;
+use stapes_core::config::{BandGain, FeatureConfig};
+use stapes_core::fixed_path::FixedFrontEnd;
+use stapes_core::int_fft::{Fixed16, Fixed32, real_fft};
+use stapes_core::int_log::log2_q16;
+use stapes_core::presets::{SPEECH16K_40, TINY16K_10};
+use stapes_core::table::FilterbankForm;
+use stapes_sim::check::{Arith, CoreTables, check};
+use stapes_sim::emit::{BlobContents, blob};
+use stapes_sim::generate::GeneratedTables;
+use stapes_sim::run::{Samples, run_fixed};
+use stapes_tests::{all_presets, noise_i16, rng};
+
+fn dft(x: &[f64]) -> Vec<Complex64> {
+    let mut b: Vec<Complex64> = x.iter().map(|&v| Complex64::new(v, 0.0)).collect();
+    FftPlanner::new().plan_fft_forward(x.len()).process(&mut b);
+    b
+}
+
+/// SNR in dB of an integer FFT output (packed layout, exponent `e`) against `want`.
+fn snr_db(out: &[f64], e: i32, want: &[Complex64]) -> f64 {
+    let n = out.len();
+    let scale = 2f64.powi(e);
+    let got = |k: usize| match k {
+        0 => Complex64::new(out[0], 0.0),
+        k if k == n / 2 => Complex64::new(out[1], 0.0),
+        k => Complex64::new(out[2 * k], out[2 * k + 1]),
+    } * scale;
+    let (mut sig, mut err) = (0.0, 0.0);
+    for k in 0..=n / 2 {
+        sig += want[k].norm_sqr();
+        err += (got(k) - want[k]).norm_sqr();
+    }
+    10.0 * (sig / err).log10()
+}
+
+/// Stated figures: the 16-bit FFT keeps at least 66 dB SNR and the 32-bit one
+/// at least 160 dB on white noise and a tone, at full scale and at −40 dB once
+/// normalised as the front end does, for every FFT size of the shipped presets.
+#[test]
+fn integer_fft_snr_against_rustfft() {
+    let mut r = rng(50);
+    let mut sizes: Vec<usize> = all_presets()
+        .iter()
+        .map(|(_, c)| c.fft_points as usize)
+        .collect();
+    sizes.sort();
+    sizes.dedup();
+    for n in sizes {
+        let t = GeneratedTables::new(&FeatureConfig {
+            fft_points: n as u32,
+            window_samples: n as u32,
+            ..SPEECH16K_40
+        });
+        for level in [1.0, 0.01] {
+            let signals: Vec<Vec<f64>> = vec![
+                (0..n)
+                    .map(|_| (r.random::<f64>() * 2.0 - 1.0) * level)
+                    .collect(),
+                (0..n)
+                    .map(|i| {
+                        (0.3 + 2.0 * std::f64::consts::PI * 37.3 * i as f64 / n as f64).sin()
+                            * level
+                    })
+                    .collect(),
+            ];
+            for x in signals {
+                // Normalised as the front end does before its FFT: shifted up by
+                // the frame's leading zeros, so quiet input keeps its precision.
+                let peak = x.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+                let x: Vec<f64> = x
+                    .iter()
+                    .map(|v| v * 2f64.powi((1.0 / peak).log2().floor() as i32))
+                    .collect();
+                let x16: Vec<i16> = x.iter().map(|&v| (v * 32767.0).round() as i16).collect();
+                let mut b16 = x16.clone();
+                let e16 = real_fft::<Fixed16>(&mut b16, &t.twiddles_q15);
+                let want16 = dft(&x16.iter().map(|&v| v as f64).collect::<Vec<_>>());
+                let s16 = snr_db(
+                    &b16.iter().map(|&v| v as f64).collect::<Vec<_>>(),
+                    e16,
+                    &want16,
+                );
+                let x32: Vec<i32> = x
+                    .iter()
+                    .map(|&v| (v * 2147483647.0).round() as i32)
+                    .collect();
+                let mut b32 = x32.clone();
+                let e32 = real_fft::<Fixed32>(&mut b32, &t.twiddles_q31);
+                let want32 = dft(&x32.iter().map(|&v| v as f64).collect::<Vec<_>>());
+                let s32 = snr_db(
+                    &b32.iter().map(|&v| v as f64).collect::<Vec<_>>(),
+                    e32,
+                    &want32,
+                );
+                println!(
+                    "N = {n}, level {level}: fixed16 SNR {s16:.1} dB, fixed32 SNR {s32:.1} dB"
+                );
+                assert!(s16 >= 66.0, "N = {n}: fixed16 SNR {s16:.1} dB");
+                assert!(s32 >= 160.0, "N = {n}: fixed32 SNR {s32:.1} dB");
+            }
+        }
+    }
+}
+
+#[test]
+fn integer_log2_against_f64() {
+    // Stated figure: |log2_q16(x)/65536 − log2(x)| ≤ 1e-4 for every u64 tried.
+    let mut r = rng(51);
+    let mut worst = 0.0f64;
+    let mut values: Vec<u64> = (1..5000).collect();
+    values.extend((0..64).flat_map(|b| {
+        [
+            1u64 << b,
+            (1u64 << b).saturating_add(1),
+            (1u64 << b) - 1 + (1u64 << b).min(1 << 62),
+        ]
+    }));
+    values.extend((0..20000).map(|_| r.random::<u64>() >> r.random_range(0..64)));
+    values.push(u64::MAX);
+    for v in values.into_iter().filter(|&v| v > 0) {
+        let got = log2_q16(v).unwrap() as f64 / 65536.0;
+        worst = worst.max((got - (v as f64).log2()).abs());
+    }
+    println!("integer log2: max error {worst:.2e}");
+    assert!(worst <= 1e-4, "max error {worst}");
+    assert_eq!(log2_q16(0), None);
+}
+
+#[test]
+fn bennett_sqnr_of_16_bit_quantisation() {
+    // An ideal N-bit quantiser on a full-scale sine gives SQNR = 6.02·N + 1.76 dB
+    // (Bennett 1948; Widrow & Kollár, Quantization Noise, 2008): 98.08 dB for
+    // N = 16. Checked on the rounding the fixed path's input goes through.
+    let n = 1 << 16;
+    let x: Vec<f32> = (0..n)
+        .map(|i| {
+            ((2.0 * std::f64::consts::PI * 1234.567 * i as f64 / n as f64).sin() * 32767.0
+                / 32768.0) as f32
+        })
+        .collect();
+    let q = Samples::F32(x.clone()).to_i16();
+    let (mut sig, mut noise) = (0.0, 0.0);
+    for (&xi, &qi) in x.iter().zip(&q) {
+        let xi = xi as f64;
+        sig += xi * xi;
+        noise += (qi as f64 / 32768.0 - xi).powi(2);
+    }
+    let sqnr = 10.0 * (sig / noise).log10();
+    println!("16-bit SQNR {sqnr:.2} dB");
+    assert!((sqnr - (6.02 * 16.0 + 1.76)).abs() < 0.3, "SQNR {sqnr}");
+}
+
+#[test]
+fn q15_tables_keep_the_designed_band_gains() {
+    for (name, c) in all_presets().into_iter().chain([(
+        "equal-area",
+        FeatureConfig {
+            band_gain: BandGain::EqualArea,
+            ..SPEECH16K_40
+        },
+    )]) {
+        let t = GeneratedTables::new(&c);
+        // Relative band-sum error within one Q15 LSB of the smallest band's sum.
+        let smallest: f64 = t
+            .design
+            .bands
+            .iter()
+            .map(|b| b.weights.iter().sum::<f64>())
+            .fold(f64::MAX, f64::min);
+        assert!(
+            t.quantisation.sparse_q15_band_gain * smallest <= 1.0 / 32768.0 + 1e-12,
+            "{name} sparse"
+        );
+        assert!(
+            t.quantisation.compact_q15_band_gain * smallest <= 2.0 / 32768.0 + 1e-12,
+            "{name} compact"
+        );
+        if let (Some(q), Some(g)) = (&t.gains_q15, &t.design.gains) {
+            for (&q, &g) in q.iter().zip(g) {
+                assert!(
+                    (q as f64 / 256.0 - 10.0 * g.log10()).abs() <= 0.5 / 256.0 + 1e-12,
+                    "{name}: gain offset"
+                );
+            }
+        }
+    }
+}
+
+fn fixed_frames(
+    arith: Arith,
+    c: &FeatureConfig,
+    t: &GeneratedTables,
+    x: &[i16],
+    chunk: usize,
+) -> Vec<Vec<i16>> {
+    let tables = t.fixed_tables(FilterbankForm::Sparse).unwrap();
+    let frames = match arith {
+        Arith::Fixed16 => run_fixed::<Fixed16>(c, tables, x, chunk).unwrap(),
+        _ => run_fixed::<Fixed32>(c, tables, x, chunk).unwrap(),
+    };
+    frames
+        .into_iter()
+        .map(|r| r.into_iter().map(|v| v.to_bits()).collect())
+        .collect()
+}
+
+#[test]
+fn saturating_inputs_give_defined_output() {
+    // Full-scale square wave, full-scale white noise, full-scale DC (both
+    // signs), a one-sample click and digital silence, with overflow checks on.
+    for (name, c) in all_presets() {
+        let t = GeneratedTables::new(&c);
+        let len = c.sample_rate_hz as usize / 2;
+        let period = (c.sample_rate_hz / 250) as usize;
+        let mut r = rng(52);
+        // (case, samples, whether the stated tolerances apply). They are stated
+        // for tones, noise and chirps; for full-scale DC and a click only
+        // defined output is required (their errors are printed: a DC bin that
+        // no band holds sets fixed16's block exponent, and DC removal leaves a
+        // tail far below −60 dBFS).
+        let cases: Vec<(&str, Vec<i16>, bool)> = vec![
+            (
+                "square",
+                (0..len)
+                    .map(|i| {
+                        if (i / (period / 2)) % 2 == 0 {
+                            i16::MAX
+                        } else {
+                            i16::MIN
+                        }
+                    })
+                    .collect(),
+                true,
+            ),
+            ("noise", (0..len).map(|_| r.random::<i16>()).collect(), true),
+            ("dc+", vec![i16::MAX; len], false),
+            ("dc-", vec![i16::MIN; len], false),
+            (
+                "click",
+                (0..len)
+                    .map(|i| if i == len / 3 { i16::MAX } else { 0 })
+                    .collect(),
+                false,
+            ),
+        ];
+        for arith in [Arith::Fixed16, Arith::Fixed32] {
+            let floor = t.fixed_params.unwrap().floor.to_bits();
+            let silence = fixed_frames(arith, &c, &t, &vec![0i16; len], 77);
+            assert!(
+                silence.iter().flatten().all(|&v| v == floor),
+                "{name} {arith:?}: silence is not exactly the floor"
+            );
+            for (case, x, toleranced) in &cases {
+                let frames = fixed_frames(arith, &c, &t, x, 77);
+                assert!(
+                    frames.iter().flatten().all(|&v| v >= floor),
+                    "{name} {arith:?} {case}: below the floor"
+                );
+                let run = check(
+                    arith,
+                    &c,
+                    CoreTables::Fixed(t.fixed_tables(FilterbankForm::Sparse).unwrap()),
+                    &Samples::I16(x.clone()),
+                    0,
+                )
+                .unwrap();
+                // The tolerances are stated for inputs down to −60 dBFS: compare the
+                // frames whose loudest band is within 60 dB of the signal's loudest
+                // (after a click, DC removal leaves a tail near −110 dBFS).
+                let to_db = if c.log == stapes_core::config::LogKind::Natural {
+                    10.0 / std::f64::consts::LN_10
+                } else {
+                    1.0
+                };
+                let loudest = |row: &Vec<f64>| row.iter().copied().fold(f64::MIN, f64::max) * to_db;
+                let top = run.reference.iter().map(loudest).fold(f64::MIN, f64::max);
+                let keep: Vec<usize> = (0..run.reference.len())
+                    .filter(|&i| loudest(&run.reference[i]) >= top - 60.0)
+                    .collect();
+                let core: Vec<Vec<f32>> = keep.iter().map(|&i| run.core[i].clone()).collect();
+                let reference: Vec<Vec<f64>> =
+                    keep.iter().map(|&i| run.reference[i].clone()).collect();
+                for tol in arith.tolerances() {
+                    let cmp = stapes_sim::compare::compare(&core, &reference, c.log, tol.range_db);
+                    println!(
+                        "{name} {arith:?} {case}: max {:.3} dB within {} dB",
+                        cmp.overall.max, tol.range_db
+                    );
+                    assert!(cmp.overall.max.is_finite());
+                    if !toleranced {
+                        continue;
+                    }
+                    assert!(
+                        cmp.overall.max <= tol.max_error_db,
+                        "{name} {arith:?} {case}: {:.3} dB within {} dB exceeds {} dB",
+                        cmp.overall.max,
+                        tol.range_db,
+                        tol.max_error_db
+                    );
+                }
+            }
+        }
+    }
+}
+
+#[test]
+fn fixed_streaming_is_chunking_independent_and_bit_exact() {
+    let mut r = rng(53);
+    for (name, c) in all_presets() {
+        let t = GeneratedTables::new(&c);
+        let x = noise_i16(&mut r, c.sample_rate_hz as usize, 0.2);
+        for arith in [Arith::Fixed16, Arith::Fixed32] {
+            let whole = fixed_frames(arith, &c, &t, &x, x.len());
+            for chunk in [1, 3, 80, 97, 160, 1000] {
+                assert_eq!(
+                    fixed_frames(arith, &c, &t, &x, chunk),
+                    whole,
+                    "{name} {arith:?} chunk {chunk}"
+                );
+            }
+        }
+    }
+}
+
+#[test]
+fn blob_fixed_tables_round_trip_and_a_front_end_runs_from_them() {
+    for (name, c) in all_presets() {
+        let t = GeneratedTables::new(&c);
+        let bytes = blob(&t, BlobContents::ALL);
+        let mut words = vec![0u32; bytes.len().div_ceil(4)];
+        bytemuck::cast_slice_mut::<u32, u8>(&mut words)[..bytes.len()].copy_from_slice(&bytes);
+        let parsed =
+            TableBlob::parse(&bytemuck::cast_slice::<u32, u8>(&words)[..bytes.len()]).unwrap();
+        for form in t.forms() {
+            assert_eq!(
+                parsed.fixed_tables(form).unwrap(),
+                t.fixed_tables(form).unwrap(),
+                "{name} {form:?}"
+            );
+        }
+    }
+    let t = GeneratedTables::new(&TINY16K_10);
+    let only_f32 = blob(
+        &t,
+        BlobContents {
+            q15: false,
+            ..BlobContents::ALL
+        },
+    );
+    let mut words = vec![0u32; only_f32.len().div_ceil(4)];
+    bytemuck::cast_slice_mut::<u32, u8>(&mut words)[..only_f32.len()].copy_from_slice(&only_f32);
+    let parsed =
+        TableBlob::parse(&bytemuck::cast_slice::<u32, u8>(&words)[..only_f32.len()]).unwrap();
+    assert!(
+        parsed
+            .fixed_tables(FilterbankForm::Sparse)
+            .unwrap_err()
+            .to_string()
+            .contains("fixed-point constants")
+    );
+    // Tables for another configuration are refused.
+    let other = FeatureConfig {
+        bands: 9,
+        ..TINY16K_10
+    };
+    let e = FixedFrontEnd::<Fixed16, 256, 256, 16>::new(
+        other,
+        t.fixed_tables(FilterbankForm::Sparse).unwrap(),
+    )
+    .unwrap_err();
+    assert!(e.to_string().contains("regenerate"), "{e}");
+}
+
+fn stapes(args: &[&str]) -> anyhow::Result<stapes_sim::commands::Outcome> {
+    let mut all = vec!["stapes"];
+    all.extend_from_slice(args);
+    stapes_sim::commands::run(stapes_sim::cli::Cli::try_parse_from(all)?)
+}
+
+#[test]
+fn check_sweep_and_device_exact_features() {
+    use stapes_sim::commands::Outcome;
+    for (name, _) in all_presets() {
+        for arith in ["fixed16", "fixed32"] {
+            assert_eq!(
+                stapes(&["check", "--preset", name, "--arith", arith]).unwrap(),
+                Outcome::Success,
+                "{name} {arith}"
+            );
+        }
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("sweep");
+    assert_eq!(
+        stapes(&["check", "--sweep", "--out-dir", out.to_str().unwrap()]).unwrap(),
+        Outcome::Success
+    );
+    for a in ["f32", "fixed16", "fixed32"] {
+        assert!(out.join(format!("sweep-{a}.png")).is_file());
+    }
+
+    let x = noise_i16(&mut rng(54), 16000, 0.3);
+    let wav = dir.path().join("in.wav");
+    stapes_sim::wav::write_wav_i16(&wav, 16000, &x).unwrap();
+    let (raw, float) = (dir.path().join("raw.npy"), dir.path().join("float.npy"));
+    let w = wav.to_str().unwrap();
+    assert_eq!(
+        stapes(&[
+            "features",
+            "--input",
+            w,
+            "--output",
+            raw.to_str().unwrap(),
+            "--arith",
+            "fixed16",
+            "--raw"
+        ])
+        .unwrap(),
+        Outcome::Success
+    );
+    assert_eq!(
+        stapes(&[
+            "features",
+            "--input",
+            w,
+            "--output",
+            float.to_str().unwrap(),
+            "--arith",
+            "fixed16"
+        ])
+        .unwrap(),
+        Outcome::Success
+    );
+    let (rows, cols, ints) = stapes_sim::npy::read_i16(&raw).unwrap();
+    let (rows2, cols2, floats) = stapes_sim::npy::read_f32(&float).unwrap();
+    assert_eq!((rows, cols), (rows2, cols2));
+    // The float features are the board's integers converted by the documented scale, exactly.
+    assert!(
+        ints.iter()
+            .zip(&floats)
+            .all(|(&i, &f)| i as f32 / 256.0 == f)
+    );
+    let t = GeneratedTables::new(&SPEECH16K_40);
+    assert_eq!(
+        ints,
+        fixed_frames(Arith::Fixed16, &SPEECH16K_40, &t, &x, 160).concat()
+    );
+    assert!(
+        stapes(&[
+            "features",
+            "--input",
+            w,
+            "--output",
+            raw.to_str().unwrap(),
+            "--raw"
+        ])
+        .is_err(),
+        "--raw needs a fixed arithmetic"
+    );
+}
