@@ -210,7 +210,7 @@ pub struct FixedFrontEnd<
     config: FeatureConfig,
     tables: FixedTables<'t>,
     twiddles: &'t [<P::Data as BfpSample>::Twiddle],
-    framer: Framer<P::Data, FFT, OVERLAP>,
+    framer: Framer<P::Data, i16, FFT, OVERLAP>,
     frame_start: IntConditioner,
     out: [I8F8; BANDS],
     fraction_bits: u32,
@@ -358,7 +358,7 @@ where
         let hop = self.config.hop_samples as usize;
         let bands = self.config.bands as usize;
         let floor = self.tables.params.floor;
-        self.framer.begin_frame();
+        self.framer.begin_frame(<P::Data as FrameData>::to_raw);
         let buf = &mut self.framer.buffer_mut()[..n];
 
         // Pass 1: largest conditioned sample, and the filter state at the next frame's start.
@@ -384,7 +384,7 @@ where
         if max == 0 {
             // Digital silence: every band is exactly the floor.
             self.out[..bands].fill(floor);
-            self.framer.end_frame();
+            self.framer.end_frame(<P::Data as FrameData>::from_raw);
             return;
         }
 
@@ -479,6 +479,6 @@ where
                 }
             }
         }
-        self.framer.end_frame();
+        self.framer.end_frame(<P::Data as FrameData>::from_raw);
     }
 }

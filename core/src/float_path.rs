@@ -35,7 +35,7 @@ pub struct FloatFrontEnd<'t, const FFT: usize, const OVERLAP: usize, const BANDS
     config: FeatureConfig,
     table: TableView<'t, f32>,
     conditioner: FloatConditioner,
-    framer: Framer<f32, FFT, OVERLAP>,
+    framer: Framer<f32, f32, FFT, OVERLAP>,
     energies: [f32; BANDS],
     floor: f32,
     next_index: u64,
@@ -117,7 +117,7 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
     fn compute_frame(&mut self) {
         let n = self.config.fft_points as usize;
         let bands = self.config.bands as usize;
-        self.framer.begin_frame();
+        self.framer.begin_frame(|v| v);
         {
             let buf = &mut self.framer.buffer_mut()[..n];
             window::apply_f32(buf, self.table.window);
@@ -131,6 +131,6 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
             }
             log::log_f32(self.config.log, self.floor, out);
         }
-        self.framer.end_frame();
+        self.framer.end_frame(|v| v);
     }
 }

@@ -11,24 +11,28 @@
 //! store, the buffer is transformed in place, and the overlap is put back. RAM
 //! is `FRAME + OVERLAP` elements, not a separate history ring plus FFT buffer.
 
-/// Frame assembly over an FFT-sized buffer of `T`.
+/// Frame assembly over an FFT-sized buffer of `T`, with the shared samples
+/// kept as `O` between frames (the fixed path keeps raw `i16` samples there
+/// even when its FFT works in `i32`).
 #[derive(Clone, Debug)]
-pub struct Framer<T, const FRAME: usize, const OVERLAP: usize> {
+pub struct Framer<T, O, const FRAME: usize, const OVERLAP: usize> {
     frame: [T; FRAME],
-    overlap: [T; OVERLAP],
+    overlap: [O; OVERLAP],
     fill: usize,
     window: usize,
     hop: usize,
 }
 
-impl<T: Copy + Default, const FRAME: usize, const OVERLAP: usize> Framer<T, FRAME, OVERLAP> {
+impl<T: Copy + Default, O: Copy + Default, const FRAME: usize, const OVERLAP: usize>
+    Framer<T, O, FRAME, OVERLAP>
+{
     /// A framer for `window` samples per frame and `hop` between frames.
     /// The caller guarantees `1 <= hop <= window <= FRAME` and
     /// `window - hop <= OVERLAP` (the front ends check this once).
     pub fn new(window: usize, hop: usize) -> Self {
         Framer {
             frame: [T::default(); FRAME],
-            overlap: [T::default(); OVERLAP],
+            overlap: [O::default(); OVERLAP],
             fill: 0,
             window,
             hop,
@@ -67,18 +71,25 @@ impl<T: Copy + Default, const FRAME: usize, const OVERLAP: usize> Framer<T, FRAM
         &mut self.frame
     }
 
-    /// Saves the samples the next frame shares.
+    /// Saves the samples the next frame shares, converted by `store`.
     #[inline]
-    pub fn begin_frame(&mut self) {
+    pub fn begin_frame(&mut self, store: impl Fn(T) -> O) {
         let keep = self.window - self.hop;
-        self.overlap[..keep].copy_from_slice(&self.frame[self.hop..self.window]);
+        for (o, &v) in self.overlap[..keep]
+            .iter_mut()
+            .zip(&self.frame[self.hop..self.window])
+        {
+            *o = store(v);
+        }
     }
 
-    /// Restores the shared samples at the start of the buffer.
+    /// Restores the shared samples at the start of the buffer, converted by `load`.
     #[inline]
-    pub fn end_frame(&mut self) {
+    pub fn end_frame(&mut self, load: impl Fn(O) -> T) {
         let keep = self.window - self.hop;
-        self.frame[..keep].copy_from_slice(&self.overlap[..keep]);
+        for (v, &o) in self.frame[..keep].iter_mut().zip(&self.overlap[..keep]) {
+            *v = load(o);
+        }
         self.fill = keep;
     }
 }
