@@ -11,10 +11,20 @@ step "toolchain: bare-metal targets and rustfmt"
 rustup target add thumbv6m-none-eabi thumbv7em-none-eabihf
 rustup component add rustfmt >/dev/null 2>&1 || true
 
+step "emulator: qemu-system-arm (Debian package) for the firmware tests"
+if ! command -v qemu-system-arm >/dev/null 2>&1; then
+  if [ "$(id -u)" = 0 ]; then
+    apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq qemu-system-arm
+  else
+    sudo apt-get update -qq && sudo DEBIAN_FRONTEND=noninteractive apt-get install -y -qq qemu-system-arm
+  fi
+fi
+qemu-system-arm --version | head -n 1
+
 step "formatting"
 cargo fmt --all --check
 
-step "host tests (generator, core, reference, CLI; overflow checks on)"
+step "tests: generator, core, reference, CLI, float-free proof, firmware under QEMU (overflow checks on)"
 cargo test --workspace
 
 step "no_std: stapes-core alone for Cortex-M0 (thumbv6m) and Cortex-M4F (thumbv7em)"

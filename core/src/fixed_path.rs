@@ -52,6 +52,7 @@ use crate::frame::Frame;
 use crate::framer::Framer;
 use crate::int_fft::{BfpSample, Precision, real_fft};
 use crate::int_log::log2_q16;
+use crate::probe::{Stage, StageProbe};
 use crate::table::Filterbank;
 
 /// Extra fraction bits of the conditioned stream.
@@ -125,6 +126,8 @@ pub trait FrameData: BfpSample {
     fn from_raw(x: i16) -> Self;
     /// The raw sample back.
     fn to_raw(self) -> i16;
+    /// `v` saturated into the type.
+    fn from_i64_saturating(v: i64) -> Self;
     /// `round(self · w / 2^15)` for a Q15 weight, saturated.
     fn mul_q15(self, w: i16) -> Self;
     /// `|re|² + |im|²` as `u64`, shifted right by `shift`.
@@ -140,6 +143,10 @@ impl FrameData for i16 {
     #[inline]
     fn to_raw(self) -> i16 {
         self
+    }
+    #[inline]
+    fn from_i64_saturating(v: i64) -> i16 {
+        v.clamp(i16::MIN as i64, i16::MAX as i64) as i16
     }
     #[inline]
     fn mul_q15(self, w: i16) -> i16 {
@@ -163,6 +170,10 @@ impl FrameData for i32 {
     #[inline]
     fn to_raw(self) -> i16 {
         self.clamp(i16::MIN as i32, i16::MAX as i32) as i16
+    }
+    #[inline]
+    fn from_i64_saturating(v: i64) -> i32 {
+        v.clamp(i32::MIN as i64, i32::MAX as i64) as i32
     }
     #[inline]
     fn mul_q15(self, w: i16) -> i32 {
@@ -337,13 +348,22 @@ where
     /// Consumes samples from the front of `input` until a frame completes and
     /// returns it, or `None` once `input` is empty.
     pub fn next_frame(&mut self, input: &mut &[i16]) -> Option<Frame<'_, I8F8>> {
+        self.next_frame_probed(input, &mut ())
+    }
+
+    /// [`FixedFrontEnd::next_frame`] with a [`StageProbe`] told when each stage ends.
+    pub fn next_frame_probed<Pr: StageProbe>(
+        &mut self,
+        input: &mut &[i16],
+        probe: &mut Pr,
+    ) -> Option<Frame<'_, I8F8>> {
         if !self
             .framer
             .fill_from(input, <P::Data as FrameData>::from_raw)
         {
             return None;
         }
-        self.compute_frame();
+        self.compute_frame(probe);
         let index = self.next_index;
         self.next_index += 1;
         Some(Frame {
@@ -352,12 +372,13 @@ where
         })
     }
 
-    fn compute_frame(&mut self) {
+    fn compute_frame<Pr: StageProbe>(&mut self, probe: &mut Pr) {
         let n = self.config.fft_points as usize;
         let w = self.config.window_samples as usize;
         let hop = self.config.hop_samples as usize;
         let bands = self.config.bands as usize;
         let floor = self.tables.params.floor;
+        probe.start();
         self.framer.begin_frame(<P::Data as FrameData>::to_raw);
         let buf = &mut self.framer.buffer_mut()[..n];
 
@@ -385,6 +406,9 @@ where
             // Digital silence: every band is exactly the floor.
             self.out[..bands].fill(floor);
             self.framer.end_frame(<P::Data as FrameData>::from_raw);
+            for stage in Stage::ALL {
+                probe.mark(stage);
+            }
             return;
         }
 
@@ -399,11 +423,14 @@ where
             } else {
                 (c + (1 << (-norm - 1))) >> -norm
             };
-            *v = <P::Data as BfpSample>::narrow(x, 0).mul_q15(win);
+            *v = <P::Data as FrameData>::from_i64_saturating(x).mul_q15(win);
         }
         buf[w..].fill(P::Data::default());
+        probe.mark(Stage::Window);
 
         let fft_exponent = real_fft::<P>(buf, self.twiddles);
+        probe.mark(Stage::Fft);
+        probe.mark(Stage::Spectrum);
         // True spectrum = X_int · 2^e_x in full-scale units.
         let e_x = fft_exponent - 15 - self.fraction_bits as i32 - norm;
         let shift = self.spectrum_shift;
@@ -479,6 +506,9 @@ where
                 }
             }
         }
+        // Spectrum and log are computed band by band inside the mel loop.
+        probe.mark(Stage::Mel);
         self.framer.end_frame(<P::Data as FrameData>::from_raw);
+        probe.mark(Stage::Log);
     }
 }

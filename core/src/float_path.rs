@@ -22,6 +22,7 @@ use crate::config::FeatureConfig;
 use crate::error::FrontEndError;
 use crate::frame::Frame;
 use crate::framer::Framer;
+use crate::probe::{Stage, StageProbe};
 use crate::sample::Sample;
 use crate::table::TableView;
 use crate::{log, mel, spectrum_f32, window};
@@ -93,6 +94,15 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
     /// returns it; returns `None` once `input` is empty without a new frame.
     /// Call it in a loop until `None` to drain a chunk.
     pub fn next_frame<S: Sample>(&mut self, input: &mut &[S]) -> Option<Frame<'_, f32>> {
+        self.next_frame_probed(input, &mut ())
+    }
+
+    /// [`FloatFrontEnd::next_frame`] with a [`StageProbe`] told when each stage ends.
+    pub fn next_frame_probed<S: Sample, P: StageProbe>(
+        &mut self,
+        input: &mut &[S],
+        probe: &mut P,
+    ) -> Option<Frame<'_, f32>> {
         let conditioner = &mut self.conditioner;
         let non_finite = &mut self.non_finite;
         let complete = self.framer.fill_from(input, |s: S| {
@@ -105,7 +115,7 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
         if !complete {
             return None;
         }
-        self.compute_frame();
+        self.compute_frame(probe);
         let index = self.next_index;
         self.next_index += 1;
         Some(Frame {
@@ -114,23 +124,29 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
         })
     }
 
-    fn compute_frame(&mut self) {
+    fn compute_frame<P: StageProbe>(&mut self, probe: &mut P) {
         let n = self.config.fft_points as usize;
         let bands = self.config.bands as usize;
+        probe.start();
         self.framer.begin_frame(|v| v);
         {
             let buf = &mut self.framer.buffer_mut()[..n];
             window::apply_f32(buf, self.table.window);
+            probe.mark(Stage::Window);
             // `new` checked that this size is compiled in.
             spectrum_f32::real_fft_in_place(buf);
+            probe.mark(Stage::Fft);
             let spectrum = spectrum_f32::spectrum_in_place(buf, self.config.spectrum);
+            probe.mark(Stage::Spectrum);
             let out = &mut self.energies[..bands];
             mel::accumulate_f32(&self.table.filterbank, spectrum, out);
             if let Some(gains) = self.table.band_gains {
                 mel::apply_gains_f32(gains, out);
             }
+            probe.mark(Stage::Mel);
             log::log_f32(self.config.log, self.floor, out);
         }
         self.framer.end_frame(|v| v);
+        probe.mark(Stage::Log);
     }
 }

@@ -34,35 +34,78 @@
 //! assert!(x[2..].chunks(2).all(|c| c == [8192, 0]));
 //! ```
 
+/// The integer type butterflies compute in: `i32` for 16-bit data (single
+/// cycle on every Cortex-M), `i64` for 32-bit data.
+pub trait WideInt:
+    Copy
+    + Ord
+    + core::fmt::Debug
+    + core::ops::Add<Output = Self>
+    + core::ops::Sub<Output = Self>
+    + core::ops::Neg<Output = Self>
+    + core::ops::Shl<u32, Output = Self>
+    + core::ops::Shr<u32, Output = Self>
+{
+    /// 0.
+    const ZERO: Self;
+    /// 1.
+    const ONE: Self;
+    /// `|self|`.
+    fn abs(self) -> Self;
+}
+
+impl WideInt for i32 {
+    const ZERO: i32 = 0;
+    const ONE: i32 = 1;
+    #[inline(always)]
+    fn abs(self) -> i32 {
+        i32::abs(self)
+    }
+}
+
+impl WideInt for i64 {
+    const ZERO: i64 = 0;
+    const ONE: i64 = 1;
+    #[inline(always)]
+    fn abs(self) -> i64 {
+        i64::abs(self)
+    }
+}
+
 /// A data type of the integer FFT.
 pub trait BfpSample: Copy + Default + core::fmt::Debug + 'static {
     /// Twiddle storage: Q15 `i16` or Q31 `i32`.
     type Twiddle: Copy + core::fmt::Debug + 'static;
-    /// Fraction bits of the unrounded butterfly outputs: 15 for `i16`
-    /// (exact), 29 for `i32` (Q31 products lose their two lowest bits, far
-    /// below the data's precision, so that no sum can overflow `i64`).
+    /// The computing type.
+    type Wide: WideInt;
+    /// Fraction bits of unrounded stage outputs: 14 for `i16` (in `i32`),
+    /// 29 for `i32` (in `i64`). Chosen so that `a ± w·b` (at most
+    /// `2.42 · max`) cannot overflow; the twiddle product's dropped bits lie
+    /// far below an output LSB. The split step uses one bit fewer.
     const WIDE_FRAC: u32;
+    /// Fraction bits of the twiddle format (15 or 31).
+    const TWIDDLE_FRAC: u32;
     /// Largest value of the type, widened.
-    const MAX: i64;
+    const MAX: Self::Wide;
     /// Widens.
-    fn wide(self) -> i64;
-    /// `x · t` with `WIDE_FRAC` fraction bits, for `|x| < 2^(bits + 1)`
-    /// (a sum or difference of two values of the type).
-    fn twiddle_product(x: i64, t: Self::Twiddle) -> i64;
+    fn wide(self) -> Self::Wide;
+    /// `round(x · t / 2^drop)` for `|x| < 2^(bits + 1)` (a sum or
+    /// difference of two values of the type).
+    fn twiddle_product(x: Self::Wide, t: Self::Twiddle, drop: u32) -> Self::Wide;
     /// Negates a twiddle.
     fn neg_twiddle(t: Self::Twiddle) -> Self::Twiddle;
+    /// Saturates a wide value into the type.
+    fn saturate(v: Self::Wide) -> Self;
     /// `round(v / 2^shift)`, saturated to the type.
-    #[inline]
-    fn narrow(v: i64, shift: u32) -> Self {
+    #[inline(always)]
+    fn narrow(v: Self::Wide, shift: u32) -> Self {
         let rounded = if shift == 0 {
             v
         } else {
-            (v + (1 << (shift - 1))) >> shift
+            (v + (Self::Wide::ONE << (shift - 1))) >> shift
         };
         Self::saturate(rounded)
     }
-    /// Saturates a wide value into the type.
-    fn saturate(v: i64) -> Self;
 }
 
 /// 16-bit data, Q15 twiddles: fast.
@@ -92,48 +135,51 @@ impl Precision for Fixed32 {
 
 impl BfpSample for i16 {
     type Twiddle = i16;
-    const WIDE_FRAC: u32 = 15;
-    const MAX: i64 = i16::MAX as i64;
+    type Wide = i32;
+    const WIDE_FRAC: u32 = 14;
+    const TWIDDLE_FRAC: u32 = 15;
+    const MAX: i32 = i16::MAX as i32;
 
-    #[inline]
-    fn wide(self) -> i64 {
-        self as i64
+    #[inline(always)]
+    fn wide(self) -> i32 {
+        self as i32
     }
-    #[inline]
-    fn twiddle_product(x: i64, t: i16) -> i64 {
-        // |x| ≤ 65535 and |t| ≤ 32767: the product is exact in i32 (a
-        // single-cycle multiply on Cortex-M).
-        (x as i32 * t as i32) as i64
+    #[inline(always)]
+    fn twiddle_product(x: i32, t: i16, drop: u32) -> i32 {
+        // |x| ≤ 65535 and |t| ≤ 32767: the product is exact in i32.
+        (x * t as i32 + (1 << (drop - 1))) >> drop
     }
-    #[inline]
+    #[inline(always)]
     fn neg_twiddle(t: i16) -> i16 {
         -t
     }
-    #[inline]
-    fn saturate(v: i64) -> i16 {
-        v.clamp(i16::MIN as i64, i16::MAX as i64) as i16
+    #[inline(always)]
+    fn saturate(v: i32) -> i16 {
+        v.clamp(i16::MIN as i32, i16::MAX as i32) as i16
     }
 }
 
 impl BfpSample for i32 {
     type Twiddle = i32;
+    type Wide = i64;
     const WIDE_FRAC: u32 = 29;
+    const TWIDDLE_FRAC: u32 = 31;
     const MAX: i64 = i32::MAX as i64;
 
-    #[inline]
+    #[inline(always)]
     fn wide(self) -> i64 {
         self as i64
     }
-    #[inline]
-    fn twiddle_product(x: i64, t: i32) -> i64 {
-        // |x| < 2^32 and |t| < 2^31: the product fits i64; keep 29 fraction bits.
-        (x * t as i64 + 2) >> 2
+    #[inline(always)]
+    fn twiddle_product(x: i64, t: i32, drop: u32) -> i64 {
+        // |x| < 2^32 and |t| < 2^31: the product fits i64.
+        (x * t as i64 + (1 << (drop - 1))) >> drop
     }
-    #[inline]
+    #[inline(always)]
     fn neg_twiddle(t: i32) -> i32 {
         -t
     }
-    #[inline]
+    #[inline(always)]
     fn saturate(v: i64) -> i32 {
         v.clamp(i32::MIN as i64, i32::MAX as i64) as i32
     }
@@ -152,9 +198,9 @@ fn twiddle<T: BfpSample>(quarter: &[T::Twiddle], k: usize) -> (T::Twiddle, T::Tw
 
 /// The fewest right shifts that bring `peak / 2^base`, rounded, into range.
 #[inline]
-fn exact_shift<T: BfpSample>(peak: i64, base: u32) -> u32 {
+fn exact_shift<T: BfpSample>(peak: T::Wide, base: u32) -> u32 {
     let mut shift = 0;
-    while ((peak + (1 << (base + shift - 1))) >> (base + shift)) > T::MAX {
+    while ((peak + (T::Wide::ONE << (base + shift - 1))) >> (base + shift)) > T::MAX {
         shift += 1;
     }
     shift
@@ -204,48 +250,58 @@ fn butterfly_wide<T: BfpSample>(
     ia: usize,
     ib: usize,
     w: Option<(T::Twiddle, T::Twiddle)>,
-) -> [i64; 4] {
+) -> [T::Wide; 4] {
     let frac = T::WIDE_FRAC;
+    let drop = T::TWIDDLE_FRAC - frac;
     let (ar, ai) = (buf[ia].wide() << frac, buf[ia + 1].wide() << frac);
     let (br, bi) = (buf[ib].wide(), buf[ib + 1].wide());
     let (tr, ti) = match w {
         // w·b = (c·br + s·bi) + i(c·bi − s·br); |w·b| ≤ √2·max, so every sum
-        // here stays below 2.42·2^(bits − 1 + WIDE_FRAC) < 2^63.
+        // here stays below 2.42·2^(bits − 1 + WIDE_FRAC), inside the wide type.
         Some((c, s)) => (
-            T::twiddle_product(br, c) + T::twiddle_product(bi, s),
-            T::twiddle_product(bi, c) - T::twiddle_product(br, s),
+            T::twiddle_product(br, c, drop) + T::twiddle_product(bi, s, drop),
+            T::twiddle_product(bi, c, drop) - T::twiddle_product(br, s, drop),
         ),
         None => (buf[ib].wide() << frac, buf[ib + 1].wide() << frac),
     };
     [ar + tr, ai + ti, ar - tr, ai - ti]
 }
 
-/// One radix-2 stage over groups of `len` complex points; returns its shift.
-fn stage<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle], len: usize) -> i32 {
+/// Calls `f(buf, ia, ib, outputs)` for every butterfly of the stage with
+/// groups of `len` complex points, in place order.
+#[inline(always)]
+fn for_each_butterfly<T: BfpSample, F: FnMut(&mut [T], usize, usize, [T::Wide; 4])>(
+    buf: &mut [T],
+    quarter: &[T::Twiddle],
+    len: usize,
+    mut f: F,
+) {
     let half = buf.len() / 2;
     let stride = buf.len() / len; // twiddle index step in the N-point table
-    let each = |buf: &mut [T], f: &mut dyn FnMut(&mut [T], usize, usize, [i64; 4])| {
-        let mut start = 0;
-        while start < half {
-            for j in 0..len / 2 {
-                let ia = 2 * (start + j);
-                let ib = 2 * (start + j + len / 2);
-                let w = (j != 0).then(|| twiddle::<T>(quarter, j * stride));
-                let out = butterfly_wide(buf, ia, ib, w);
-                f(buf, ia, ib, out);
-            }
-            start += len;
+    let mut start = 0;
+    while start < half {
+        for j in 0..len / 2 {
+            let ia = 2 * (start + j);
+            let ib = 2 * (start + j + len / 2);
+            let w = (j != 0).then(|| twiddle::<T>(quarter, j * stride));
+            let out = butterfly_wide(buf, ia, ib, w);
+            f(buf, ia, ib, out);
         }
-    };
-    let mut peak = 0i64;
-    each(buf, &mut |_, _, _, out| {
+        start += len;
+    }
+}
+
+/// One radix-2 stage over groups of `len` complex points; returns its shift.
+fn stage<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle], len: usize) -> i32 {
+    let mut peak = T::Wide::ZERO;
+    for_each_butterfly(buf, quarter, len, |_, _, _, out| {
         for v in out {
             peak = peak.max(v.abs());
         }
     });
     let frac = T::WIDE_FRAC;
     let shift = exact_shift::<T>(peak, frac);
-    each(buf, &mut |buf, ia, ib, out| {
+    for_each_butterfly(buf, quarter, len, |buf, ia, ib, out| {
         buf[ia] = T::narrow(out[0], frac + shift);
         buf[ia + 1] = T::narrow(out[1], frac + shift);
         buf[ib] = T::narrow(out[2], frac + shift);
@@ -257,15 +313,17 @@ fn stage<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle], len: usize) -> i32
 /// Split step: from `Z = FFT(x[2n] + i·x[2n+1])` to the real spectrum `X`.
 /// With `E = (Z[k] + Z*[N/2−k])/2`, `O = (Z[k] − Z*[N/2−k])/2` and
 /// `T = i·W^k·O`: `X[k] = E − T`, `X[N/2−k] = conj(E + T)`. Outputs before
-/// rounding carry `WIDE_FRAC + 1` fraction bits (the `/2` is exact).
+/// rounding carry `WIDE_FRAC` fraction bits: `WIDE_FRAC − 1` for the
+/// products, one more for the exact `/2`.
 /// Returns the shift.
 fn split<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle]) -> i32 {
     let half = buf.len() / 2;
     let q = half / 2;
-    let frac = T::WIDE_FRAC;
+    let frac = T::WIDE_FRAC - 1;
+    let drop = T::TWIDDLE_FRAC - frac;
     let base = frac + 1;
     // Outputs for pair k (1 ≤ k < N/4): [Xk.re, Xk.im, Xm.re, Xm.im], m = N/2 − k.
-    let pair = |buf: &[T], k: usize| -> [i64; 4] {
+    let pair = |buf: &[T], k: usize| -> [T::Wide; 4] {
         let m = half - k;
         let (ar, ai) = (buf[2 * k].wide(), buf[2 * k + 1].wide());
         let (br, bi) = (buf[2 * m].wide(), -buf[2 * m + 1].wide()); // conj(Z[m])
@@ -273,8 +331,8 @@ fn split<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle]) -> i32 {
         let (or2, oi2) = (ar - br, ai - bi);
         let (c, s) = twiddle::<T>(quarter, k);
         // 2T = (s·2Or − c·2Oi) + i(c·2Or + s·2Oi); |2T| ≤ |2O| ≤ √2·2^bits.
-        let tr2 = T::twiddle_product(or2, s) - T::twiddle_product(oi2, c);
-        let ti2 = T::twiddle_product(or2, c) + T::twiddle_product(oi2, s);
+        let tr2 = T::twiddle_product(or2, s, drop) - T::twiddle_product(oi2, c, drop);
+        let ti2 = T::twiddle_product(or2, c, drop) + T::twiddle_product(oi2, s, drop);
         [er2 - tr2, ei2 - ti2, er2 + tr2, -(ei2 + ti2)]
     };
     let (z0r, z0i) = (buf[0].wide(), buf[1].wide());
@@ -284,7 +342,7 @@ fn split<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle]) -> i32 {
         buf[2 * q].wide() << base,
         -buf[2 * q + 1].wide() << base,
     ];
-    let mut peak = ends.iter().fold(0i64, |p, v| p.max(v.abs()));
+    let mut peak = ends.iter().fold(T::Wide::ZERO, |p, &v| p.max(v.abs()));
     for k in 1..q {
         for v in pair(buf, k) {
             peak = peak.max(v.abs());

@@ -60,6 +60,7 @@ pub mod int_log;
 pub mod log;
 pub mod mel;
 pub mod presets;
+pub mod probe;
 pub mod sample;
 pub mod scale;
 pub mod spectrum_f32;

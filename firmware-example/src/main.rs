@@ -1,68 +1,288 @@
-//! stapes on a Cortex-M board: the reference preset's compiled-in tables, fed
-//! a test signal in DMA-sized chunks, in the arithmetic chosen by a cargo
-//! feature (`f32`, `fixed16`, `fixed32`). This is the minimal board binary;
-//! running it under emulation and reporting frames is the firmware example's
-//! next step.
+//! stapes on a Cortex-M board, run under QEMU by the tests.
+//!
+//! Streams the test clip stored in flash through the front end in DMA-sized
+//! blocks, raises a busy pin while each frame is computed, and reports over
+//! semihosting: one line per frame with the exact bits of every band, then
+//! the instruction clock's figures per stage and the stack high-water mark.
+//! Cargo features pick the arithmetic (`f32`, `fixed16`, `fixed32`) and the
+//! preset (`preset-speech16k-40`, `preset-dsr8k-23`, `preset-tiny16k-10`).
 #![no_std]
 #![no_main]
 
 #[cfg(not(any(feature = "f32", feature = "fixed16", feature = "fixed32")))]
 compile_error!("enable exactly one arithmetic feature: f32, fixed16 or fixed32");
+#[cfg(not(any(
+    feature = "preset-speech16k-40",
+    feature = "preset-dsr8k-23",
+    feature = "preset-tiny16k-10"
+)))]
+compile_error!("enable exactly one preset feature");
 
+mod board;
+mod emulator;
+
+use core::fmt::Write;
 use core::panic::PanicInfo;
 
 use cortex_m_rt::entry;
+use stapes_core::probe::{Stage, StageProbe};
 
+use crate::board::SampleSource;
+use crate::emulator::{Console, FlashClip, NoPin, Ticks};
+
+#[cfg(feature = "preset-speech16k-40")]
 #[allow(dead_code)]
 mod preset {
+    pub const NAME: &str = "speech16k-40";
     include!("../../tables/speech16k-40.rs");
 }
+#[cfg(all(feature = "preset-dsr8k-23", not(feature = "preset-speech16k-40")))]
+#[allow(dead_code)]
+mod preset {
+    pub const NAME: &str = "dsr8k-23";
+    include!("../../tables/dsr8k-23.rs");
+}
+#[cfg(all(
+    feature = "preset-tiny16k-10",
+    not(any(feature = "preset-speech16k-40", feature = "preset-dsr8k-23"))
+))]
+#[allow(dead_code)]
+mod preset {
+    pub const NAME: &str = "tiny16k-10";
+    include!("../../tables/tiny16k-10.rs");
+}
 
-/// One DMA half-buffer of 10 ms at 16 kHz.
-const CHUNK: usize = 160;
+/// Samples per DMA half-buffer (deliberately not a multiple of the hop).
+const BLOCK: usize = 128;
 
-#[cfg(feature = "f32")]
-type BoardFrontEnd = stapes_core::float_path::FloatFrontEnd<'static, { preset::FFT_POINTS }, { preset::OVERLAP_SAMPLES }, { preset::BANDS }>;
-#[cfg(all(feature = "fixed16", not(feature = "f32")))]
-type BoardFrontEnd = stapes_core::fixed_path::FixedFrontEnd<'static, stapes_core::int_fft::Fixed16, { preset::FFT_POINTS }, { preset::OVERLAP_SAMPLES }, { preset::BANDS }>;
-#[cfg(all(feature = "fixed32", not(any(feature = "f32", feature = "fixed16"))))]
-type BoardFrontEnd = stapes_core::fixed_path::FixedFrontEnd<'static, stapes_core::int_fft::Fixed32, { preset::FFT_POINTS }, { preset::OVERLAP_SAMPLES }, { preset::BANDS }>;
+/// The core this build is for (set by build.rs from the target).
+const CORE: &str = env!("STAPES_CORE");
 
-fn front_end() -> Option<BoardFrontEnd> {
-    #[cfg(feature = "f32")]
-    let made = BoardFrontEnd::new(preset::CONFIG, preset::TABLE_F32_COMPACT);
-    #[cfg(not(feature = "f32"))]
-    let made = BoardFrontEnd::new(preset::CONFIG, preset::FIXED_COMPACT);
-    made.ok()
+/// A front end as the board loop drives it.
+trait UnderTest {
+    const ARITH: &'static str;
+    /// Hex digits per band in the report.
+    const HEX_DIGITS: usize;
+    type Band: Copy;
+    fn bits(b: Self::Band) -> u32;
+    fn step<P: StageProbe>(
+        &mut self,
+        input: &mut &[i16],
+        probe: &mut P,
+    ) -> Option<(u64, &[Self::Band])>;
+}
+
+#[cfg(feature = "harness-only")]
+mod under_test {
+    use super::*;
+    /// Drops every sample: no front end is linked.
+    pub struct FrontEnd;
+    pub fn make() -> Option<FrontEnd> {
+        Some(FrontEnd)
+    }
+    impl UnderTest for FrontEnd {
+        const ARITH: &'static str = "none";
+        const HEX_DIGITS: usize = 4;
+        type Band = u16;
+        fn bits(b: u16) -> u32 {
+            b as u32
+        }
+        fn step<P: StageProbe>(
+            &mut self,
+            input: &mut &[i16],
+            probe: &mut P,
+        ) -> Option<(u64, &[u16])> {
+            // Read every sample, as a front end would, so the clip stays linked.
+            let sum: i32 = input.iter().map(|&v| v as i32).sum();
+            core::hint::black_box(sum);
+            *input = &[];
+            probe.start();
+            None
+        }
+    }
+}
+
+#[cfg(all(feature = "f32", not(feature = "harness-only")))]
+mod under_test {
+    use super::*;
+    pub type FrontEnd = stapes_core::float_path::FloatFrontEnd<
+        'static,
+        { preset::FFT_POINTS },
+        { preset::OVERLAP_SAMPLES },
+        { preset::BANDS },
+    >;
+    pub fn make() -> Option<FrontEnd> {
+        FrontEnd::new(preset::CONFIG, preset::TABLE_F32_SPARSE).ok()
+    }
+    impl UnderTest for FrontEnd {
+        const ARITH: &'static str = "f32";
+        const HEX_DIGITS: usize = 8;
+        type Band = f32;
+        fn bits(b: f32) -> u32 {
+            b.to_bits()
+        }
+        fn step<P: StageProbe>(
+            &mut self,
+            input: &mut &[i16],
+            probe: &mut P,
+        ) -> Option<(u64, &[f32])> {
+            self.next_frame_probed(input, probe)
+                .map(|f| (f.index, f.bands))
+        }
+    }
+}
+
+#[cfg(all(
+    any(feature = "fixed16", feature = "fixed32"),
+    not(feature = "f32"),
+    not(feature = "harness-only")
+))]
+mod under_test {
+    use super::*;
+    use stapes_core::fixed::types::I8F8;
+    #[cfg(feature = "fixed16")]
+    type Precision = stapes_core::int_fft::Fixed16;
+    #[cfg(not(feature = "fixed16"))]
+    type Precision = stapes_core::int_fft::Fixed32;
+    pub type FrontEnd = stapes_core::fixed_path::FixedFrontEnd<
+        'static,
+        Precision,
+        { preset::FFT_POINTS },
+        { preset::OVERLAP_SAMPLES },
+        { preset::BANDS },
+    >;
+    pub fn make() -> Option<FrontEnd> {
+        FrontEnd::new(preset::CONFIG, preset::FIXED_SPARSE).ok()
+    }
+    impl UnderTest for FrontEnd {
+        const ARITH: &'static str = if cfg!(feature = "fixed16") {
+            "fixed16"
+        } else {
+            "fixed32"
+        };
+        const HEX_DIGITS: usize = 4;
+        type Band = I8F8;
+        fn bits(b: I8F8) -> u32 {
+            b.to_bits() as u16 as u32
+        }
+        fn step<P: StageProbe>(
+            &mut self,
+            input: &mut &[i16],
+            probe: &mut P,
+        ) -> Option<(u64, &[I8F8])> {
+            self.next_frame_probed(input, probe)
+                .map(|f| (f.index, f.bands))
+        }
+    }
+}
+
+/// Adds the ticks of each stage of each frame.
+struct StageClock<'a> {
+    ticks: &'a Ticks,
+    last: u32,
+    sums: [u64; 5],
+}
+
+impl StageProbe for StageClock<'_> {
+    #[inline(always)]
+    fn start(&mut self) {
+        self.last = self.ticks.now();
+    }
+    #[inline(always)]
+    fn mark(&mut self, done: Stage) {
+        let now = self.ticks.now();
+        self.sums[done as usize] += Ticks::elapsed(self.last, now) as u64;
+        self.last = now;
+    }
 }
 
 #[entry]
 fn main() -> ! {
-    let Some(mut fe) = front_end() else {
-        loop {
-            cortex_m::asm::bkpt();
-        }
+    let Some(peripherals) = cortex_m::Peripherals::take() else {
+        emulator::fail()
     };
-    let mut chunk = [0i16; CHUNK];
-    let mut phase: u32 = 0;
-    let mut checksum = 0u32;
+    let ticks = Ticks::start(peripherals.SYST);
+    let mut console = Console::open();
+    let Some(mut fe) = under_test::make() else {
+        let _ = writeln!(
+            console,
+            "STAPES-ERROR the table does not fit the configuration"
+        );
+        emulator::fail()
+    };
+    run(&mut fe, &ticks, &mut console)
+}
+
+fn run<F: UnderTest>(fe: &mut F, ticks: &Ticks, console: &mut Console) -> ! {
+    let _ = writeln!(
+        console,
+        "STAPES-BEGIN preset={} arith={} core={} block={} bands={}",
+        preset::NAME,
+        F::ARITH,
+        CORE,
+        BLOCK,
+        preset::BANDS
+    );
+    let mut source = FlashClip::new(emulator::CLIP);
+    let mut pin = NoPin;
+    let mut block = [0i16; BLOCK];
+    let mut clock = StageClock {
+        ticks,
+        last: 0,
+        sums: [0; 5],
+    };
+    let (mut frames, mut call_ticks, mut stack) = (0u64, 0u64, 0usize);
     loop {
-        // A 1 kHz square-ish tone from integer phase (no float work for input).
-        for s in chunk.iter_mut() {
-            phase = phase.wrapping_add(1 << 28);
-            *s = if phase < (1 << 31) { 8000 } else { -8000 };
+        let n = source.read(&mut block);
+        if n == 0 {
+            break;
         }
-        let mut rest = &chunk[..];
-        while let Some(frame) = fe.next_frame(&mut rest) {
-            checksum = checksum.wrapping_add(frame.bands[0].to_bits() as u32);
+        let mut rest = &block[..n];
+        loop {
+            let painted = emulator::paint_stack();
+            let t0 = ticks.now();
+            let frame = board::while_high(&mut pin, || fe.step(&mut rest, &mut clock));
+            call_ticks += Ticks::elapsed(t0, ticks.now()) as u64;
+            stack = stack.max(emulator::stack_used(painted));
+            let Some((index, bands)) = frame else { break };
+            frames += 1;
+            let mut line: heapless::String<600> = heapless::String::new();
+            let _ = write!(line, "F {index} ");
+            for &b in bands {
+                let _ = write!(line, "{:0width$x}", F::bits(b), width = F::HEX_DIGITS);
+            }
+            let _ = writeln!(console, "{line}");
         }
-        core::hint::black_box(checksum);
     }
+    let s = clock.sums;
+    let stages: u64 = s.iter().sum();
+    let _ = writeln!(
+        console,
+        "STAPES-TICKS frames={frames} total={call_ticks} intake={} window={} fft={} spectrum={} mel={} log={}",
+        call_ticks.saturating_sub(stages),
+        s[0],
+        s[1],
+        s[2],
+        s[3],
+        s[4]
+    );
+    let _ = writeln!(
+        console,
+        "STAPES-CAL instructions_per_kilotick={}",
+        ticks.instructions_per_kilotick()
+    );
+    let _ = writeln!(
+        console,
+        "STAPES-RAM state={} stack={stack}",
+        core::mem::size_of::<F>()
+    );
+    let _ = writeln!(console, "STAPES-END");
+    emulator::succeed()
 }
 
 #[panic_handler]
-fn panic(_: &PanicInfo) -> ! {
-    loop {
-        cortex_m::asm::bkpt();
-    }
+fn panic(info: &PanicInfo) -> ! {
+    let mut c = Console::open();
+    let _ = writeln!(c, "STAPES-PANIC {info}");
+    emulator::fail()
 }

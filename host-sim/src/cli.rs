@@ -28,6 +28,25 @@ pub enum Command {
     Features(FeaturesArgs),
     /// Synthesise the demo clip, generate tables, run and check the core, and draw the figures.
     Demo(DemoArgs),
+    /// Predict a front end's flash and RAM on a board before building anything.
+    Budget(BudgetArgs),
+}
+
+/// `stapes budget`.
+#[derive(Args, Debug)]
+pub struct BudgetArgs {
+    /// The configuration.
+    #[command(flatten)]
+    pub config: ConfigArgs,
+    /// Arithmetic of the core.
+    #[arg(long, value_enum, default_value = "f32")]
+    pub arith: Arith,
+    /// The board's core.
+    #[arg(long, value_enum, default_value = "cortex-m4f")]
+    pub core: crate::budget::Core,
+    /// Filterbank form the board reads.
+    #[arg(long, value_enum, default_value = "sparse")]
+    pub form: FormChoice,
 }
 
 /// Filterbank form used by the core.

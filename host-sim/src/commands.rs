@@ -37,6 +37,17 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Check(a) => check_command(&a),
         Command::Features(a) => features(&a),
         Command::Demo(a) => demo(&a),
+        Command::Budget(a) => {
+            let named = a.config.resolve()?;
+            crate::say_text!(crate::budget::report(
+                &named.name,
+                &named.config,
+                a.arith,
+                a.core,
+                form(a.form)
+            )?);
+            Ok(Outcome::Success)
+        }
     }
 }
 

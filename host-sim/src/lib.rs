@@ -21,6 +21,7 @@ macro_rules! say_text {
     }};
 }
 
+pub mod budget;
 pub mod check;
 pub mod cli;
 pub mod commands;

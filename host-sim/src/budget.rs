@@ -1,0 +1,174 @@
+//! Predicts a front end's flash and RAM on a board before anything is built.
+//!
+//! * **Tables**: the exact bytes of the parts the arithmetic reads (window,
+//!   sparse or compact filterbank, gains; for the fixed path its twiddles and
+//!   constants), from the generator.
+//! * **Code**: the front end's code for the arithmetic and core, measured once
+//!   from the reference preset's firmware (the full build minus the
+//!   harness-only build; `cargo test -p stapes-tests --test firmware_qemu`),
+//!   plus, for `f32`, microfft's tables and unrolled code for the FFT size.
+//!   The firmware test checks every preset's prediction against its build
+//!   and fails beyond 10 %, so a compiler change that moves code size shows.
+//! * **RAM**: the front end's state (FFT buffer, overlap store, band outputs,
+//!   exactly from the configuration, plus the fixed overhead of the struct on a
+//!   32-bit target) and the per-frame stack.
+
+use std::fmt::Write;
+
+use stapes_core::config::FeatureConfig;
+use stapes_core::table::FilterbankForm;
+
+use crate::check::Arith;
+use crate::emit::PartSizes;
+use crate::generate::GeneratedTables;
+
+/// The cores the firmware example runs on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum Core {
+    /// Cortex-M0/M0+ (thumbv6m), no FPU.
+    CortexM0,
+    /// Cortex-M4F (thumbv7em, hard float).
+    CortexM4F,
+}
+
+/// A prediction, in bytes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Budget {
+    /// Tables the arithmetic reads.
+    pub tables: usize,
+    /// Estimated code (and, for f32, microfft's own tables).
+    pub code: usize,
+    /// Front-end state.
+    pub state: usize,
+    /// Per-frame stack.
+    pub stack: usize,
+}
+
+impl Budget {
+    /// Flash: tables and code.
+    pub fn flash_total(&self) -> usize {
+        self.tables + self.code
+    }
+    /// RAM: state and stack.
+    pub fn ram_total(&self) -> usize {
+        self.state + self.stack
+    }
+}
+
+/// Code of the front end for (core, arithmetic), without the FFT-size part;
+/// measured from the speech16k-40 firmware (rustc 1.95, opt-level 3, LTO):
+/// the full build's flash minus the harness-only build's, minus the tables.
+/// `None` for the f32 path on Cortex-M0, which has no FPU.
+fn code_bytes(core: Core, arith: Arith) -> Option<usize> {
+    match (core, arith) {
+        // 36 788 − 4 176 tables − 512 · 29.8 (microfft for 512 points).
+        (Core::CortexM4F, Arith::F32) => Some(17_354),
+        // 17 152 − 2 442 tables.
+        (Core::CortexM4F, Arith::Fixed16) => Some(14_710),
+        // 18 972 − 2 700 tables.
+        (Core::CortexM4F, Arith::Fixed32) => Some(16_272),
+        // 17 140 − 2 442 tables.
+        (Core::CortexM0, Arith::Fixed16) => Some(14_698),
+        // 18 628 − 2 700 tables.
+        (Core::CortexM0, Arith::Fixed32) => Some(15_928),
+        (Core::CortexM0, Arith::F32) => None,
+    }
+}
+
+/// microfft's bytes that grow with the FFT size (sine table and unrolled
+/// stages), per FFT point: (32 612 − 24 988) / (512 − 256), the code of the
+/// speech16k-40 and tiny16k-10 f32 builds.
+const MICROFFT_BYTES_PER_POINT_X10: usize = 298;
+
+/// Struct overhead beyond the buffers on a 32-bit target (measured with
+/// `size_of` in the firmware: 160 B for f32, 200 B for the fixed path).
+const STATE_OVERHEAD_F32: usize = 160;
+const STATE_OVERHEAD_FIXED: usize = 200;
+
+/// Per-frame stack measured by stack painting in the speech16k-40 firmware.
+fn stack_bytes(core: Core, arith: Arith) -> usize {
+    match (core, arith) {
+        (Core::CortexM4F, Arith::F32) => 128,
+        (Core::CortexM4F, Arith::Fixed16) => 40,
+        (Core::CortexM4F, Arith::Fixed32) => 112,
+        (Core::CortexM0, Arith::Fixed16) => 64,
+        (Core::CortexM0, _) => 148,
+    }
+}
+
+/// The tables `arith` reads in `form`.
+pub fn table_bytes(tables: &GeneratedTables, arith: Arith, form: FilterbankForm) -> usize {
+    let p = PartSizes::of(tables);
+    let compact = form == FilterbankForm::Compact;
+    match arith {
+        Arith::F32 => p.window_f32 + p.filterbank(false, compact),
+        Arith::Fixed16 => p.window_q15 + p.filterbank(true, compact) + p.twiddles_q15 + 16,
+        Arith::Fixed32 => p.window_q15 + p.filterbank(true, compact) + p.twiddles_q31 + 16,
+    }
+}
+
+/// Predicts flash and RAM for `config` in `arith` on `core`; `None` for the
+/// f32 path on a core without an FPU.
+pub fn predict(
+    config: &FeatureConfig,
+    arith: Arith,
+    core: Core,
+    form: FilterbankForm,
+) -> Option<Budget> {
+    let tables = GeneratedTables::new(config);
+    let n = config.fft_points as usize;
+    let overlap = config.overlap_samples();
+    let bands = config.bands as usize;
+    let (state, fft_code) = match arith {
+        Arith::F32 => (
+            4 * (n + overlap + bands) + STATE_OVERHEAD_F32,
+            MICROFFT_BYTES_PER_POINT_X10 * n / 10,
+        ),
+        Arith::Fixed16 => (2 * (n + overlap + bands) + STATE_OVERHEAD_FIXED, 0),
+        Arith::Fixed32 => (4 * n + 2 * overlap + 2 * bands + STATE_OVERHEAD_FIXED, 0),
+    };
+    Some(Budget {
+        tables: table_bytes(&tables, arith, form),
+        code: code_bytes(core, arith)? + fft_code,
+        state,
+        stack: stack_bytes(core, arith),
+    })
+}
+
+/// The printed budget.
+pub fn report(
+    name: &str,
+    config: &FeatureConfig,
+    arith: Arith,
+    core: Core,
+    form: FilterbankForm,
+) -> anyhow::Result<String> {
+    let b = predict(config, arith, core, form).ok_or_else(|| {
+        anyhow::anyhow!("the f32 path needs an FPU: on Cortex-M0 use --arith fixed16 or fixed32")
+    })?;
+    let mut s = String::new();
+    let _ = writeln!(
+        s,
+        "budget: {name}, {} on {core:?}, {form:?} filterbank (predicted before building)",
+        arith.name()
+    );
+    let _ = writeln!(
+        s,
+        "  flash  {:>7} B = tables {} + code {} (estimate)",
+        b.flash_total(),
+        b.tables,
+        b.code
+    );
+    let _ = writeln!(
+        s,
+        "  RAM    {:>7} B = front-end state {} + per-frame stack {}",
+        b.ram_total(),
+        b.state,
+        b.stack
+    );
+    let _ = writeln!(
+        s,
+        "  (code and stack are calibrated from the reference preset's firmware; the firmware test keeps every preset within 10 %)"
+    );
+    Ok(s)
+}

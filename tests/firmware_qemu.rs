@@ -1,0 +1,389 @@
+//! The firmware example on emulated Cortex-M4F (QEMU `mps2-an386`: f32,
+//! fixed16, fixed32) and Cortex-M0 (QEMU `microbit`: fixed16, fixed32), for
+//! every shipped preset: the frames it sends back must equal the host's run
+//! of the same core on the same samples (identical bytes for the fixed paths;
+//! for f32 identical or within 1 ulp, and the count of differing values is
+//! reported). Also collects the figures: flash, RAM, instructions per frame
+//! per stage. Installs QEMU with apt-get when it is missing and fails, never
+//! skips, when it still cannot run it.
+
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use object::{Object, ObjectSection};
+use stapes_core::config::FeatureConfig;
+use stapes_core::table::FilterbankForm;
+use stapes_sim::generate::GeneratedTables;
+use stapes_sim::run::{Samples, run_fixed, run_float};
+use stapes_tests::repo_root;
+
+const STAGES: [&str; 6] = ["intake", "window", "fft", "spectrum", "mel", "log"];
+
+fn ensure_qemu() -> PathBuf {
+    let find = || {
+        Command::new("sh")
+            .args(["-c", "command -v qemu-system-arm"])
+            .output()
+            .ok()
+            .filter(|o| o.status.success())
+            .map(|o| PathBuf::from(String::from_utf8_lossy(&o.stdout).trim().to_string()))
+    };
+    if let Some(p) = find() {
+        return p;
+    }
+    eprintln!("qemu-system-arm is missing: installing it with apt-get");
+    let _ = Command::new("apt-get").args(["update", "-qq"]).status();
+    let _ = Command::new("apt-get")
+        .args(["install", "-y", "-qq", "qemu-system-arm"])
+        .env("DEBIAN_FRONTEND", "noninteractive")
+        .status();
+    find().expect("qemu-system-arm is not installed and apt-get could not install it: install qemu-system-arm (Debian package) and rerun")
+}
+
+struct Board {
+    target: &'static str,
+    machine: &'static str,
+    cpu: Option<&'static str>,
+    arithmetics: &'static [&'static str],
+}
+
+const BOARDS: [Board; 2] = [
+    Board {
+        target: "thumbv7em-none-eabihf",
+        machine: "mps2-an386",
+        cpu: Some("cortex-m4"),
+        arithmetics: &["f32", "fixed16", "fixed32"],
+    },
+    Board {
+        target: "thumbv6m-none-eabi",
+        machine: "microbit",
+        cpu: None,
+        arithmetics: &["fixed16", "fixed32"],
+    },
+];
+
+/// The clip every build streams: the first second of the demo clip at 16 kHz.
+fn clip(dir: &Path) -> (PathBuf, Vec<i16>) {
+    let c = stapes_sim::synth::demo_clip(16_000, stapes_sim::synth::DEMO_SEED);
+    let samples: Vec<i16> = c.samples[..16_000].to_vec();
+    let path = dir.join("clip.raw");
+    std::fs::write(
+        &path,
+        samples
+            .iter()
+            .flat_map(|s| s.to_le_bytes())
+            .collect::<Vec<u8>>(),
+    )
+    .unwrap();
+    (path, samples)
+}
+
+fn build(board: &Board, features: &str, clip: &Path) -> PathBuf {
+    let dir = repo_root().join("firmware-example");
+    let status = Command::new(std::env::var("CARGO").unwrap_or_else(|_| "cargo".into()))
+        .current_dir(&dir)
+        .env("STAPES_CLIP", clip)
+        .args([
+            "build",
+            "--release",
+            "--target",
+            board.target,
+            "--no-default-features",
+            "--features",
+        ])
+        .arg(features)
+        .status()
+        .expect("run cargo for the firmware example");
+    assert!(
+        status.success(),
+        "firmware build failed: {} {features}",
+        board.target
+    );
+    dir.join("target")
+        .join(board.target)
+        .join("release/stapes-firmware-example")
+}
+
+struct Run {
+    /// Each frame's bands as the firmware printed them (hex).
+    frames: Vec<String>,
+    ticks: Vec<(String, u64)>,
+    frames_reported: u64,
+    per_kilotick: u64,
+    state: u64,
+    stack: u64,
+}
+
+fn run_qemu(qemu: &Path, board: &Board, elf: &Path) -> Run {
+    let mut cmd = Command::new("timeout");
+    cmd.arg("300").arg(qemu).args(["-machine", board.machine]);
+    if let Some(cpu) = board.cpu {
+        cmd.args(["-cpu", cpu]);
+    }
+    let out = cmd
+        .args(["-display", "none", "-monitor", "none", "-serial", "none"])
+        .args([
+            "-semihosting-config",
+            "enable=on,target=native",
+            "-icount",
+            "shift=0",
+            "-kernel",
+        ])
+        .arg(elf)
+        .stdin(std::process::Stdio::null())
+        .output()
+        .expect("run qemu-system-arm");
+    let text = String::from_utf8_lossy(&out.stdout).to_string();
+    assert!(
+        out.status.success(),
+        "{} under {} exited with {:?}:\n{}\n{}",
+        elf.display(),
+        board.machine,
+        out.status.code(),
+        text,
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(
+        text.contains("STAPES-END"),
+        "no end marker from the firmware:\n{text}"
+    );
+    let mut run = Run {
+        frames: Vec::new(),
+        ticks: Vec::new(),
+        frames_reported: 0,
+        per_kilotick: 0,
+        state: 0,
+        stack: 0,
+    };
+    let field = |line: &str, key: &str| -> u64 {
+        line.split_whitespace()
+            .find_map(|kv| kv.strip_prefix(&format!("{key}=")))
+            .and_then(|v| v.parse().ok())
+            .unwrap_or_else(|| panic!("no {key} in {line}"))
+    };
+    for line in text.lines() {
+        if let Some(rest) = line.strip_prefix("F ") {
+            let (index, hex) = rest.split_once(' ').expect("frame line");
+            assert_eq!(
+                index.parse::<usize>().unwrap(),
+                run.frames.len(),
+                "frame order"
+            );
+            run.frames.push(hex.to_string());
+        } else if line.starts_with("STAPES-TICKS") {
+            run.frames_reported = field(line, "frames");
+            for s in STAGES {
+                run.ticks.push((s.to_string(), field(line, s)));
+            }
+            run.ticks.push(("total".into(), field(line, "total")));
+        } else if line.starts_with("STAPES-CAL") {
+            run.per_kilotick = field(line, "instructions_per_kilotick");
+        } else if line.starts_with("STAPES-RAM") {
+            run.state = field(line, "state");
+            run.stack = field(line, "stack");
+        }
+    }
+    run
+}
+
+/// Splits a frame's hex into values of `width` digits (4 for the fixed
+/// paths' i16 bits, 8 for f32 bits).
+fn regroup(hex: &str, width: usize) -> Vec<u32> {
+    hex.as_bytes()
+        .chunks(width)
+        .map(|c| u32::from_str_radix(std::str::from_utf8(c).unwrap(), 16).expect("hex"))
+        .collect()
+}
+
+fn section_sizes(elf: &Path) -> (u64, u64) {
+    let data = std::fs::read(elf).unwrap();
+    let file = object::File::parse(&*data).unwrap();
+    let size = |name: &str| file.section_by_name(name).map_or(0, |s| s.size());
+    let flash = size(".vector_table") + size(".text") + size(".rodata") + size(".data");
+    let ram = size(".data") + size(".bss") + size(".uninit");
+    (flash, ram)
+}
+
+fn host_frames(arith: &str, config: &FeatureConfig, samples: &[i16]) -> Vec<Vec<u32>> {
+    let t = GeneratedTables::new(config);
+    match arith {
+        "f32" => run_float(
+            config,
+            t.view_f32(FilterbankForm::Sparse),
+            &Samples::I16(samples.to_vec()),
+            128,
+        )
+        .unwrap()
+        .into_iter()
+        .map(|r| r.into_iter().map(f32::to_bits).collect())
+        .collect(),
+        a => {
+            let tables = t.fixed_tables(FilterbankForm::Sparse).unwrap();
+            let frames = if a == "fixed16" {
+                run_fixed::<stapes_core::int_fft::Fixed16>(config, tables, samples, 128).unwrap()
+            } else {
+                run_fixed::<stapes_core::int_fft::Fixed32>(config, tables, samples, 128).unwrap()
+            };
+            frames
+                .into_iter()
+                .map(|r| r.into_iter().map(|v| v.to_bits() as u16 as u32).collect())
+                .collect()
+        }
+    }
+}
+
+#[test]
+fn firmware_frames_equal_the_host_and_figures_are_collected() {
+    let qemu = ensure_qemu();
+    let dir = tempfile::tempdir().unwrap();
+    let (clip_path, samples) = clip(dir.path());
+    let mut table = String::new();
+    let mut figures = Vec::new();
+    let _ = writeln!(
+        table,
+        "| preset | arithmetic | core | flash B | RAM B (static + state + stack) | instructions per frame: intake / window / FFT / spectrum / mel / log | total | total ÷ FFT | frames vs host |"
+    );
+    let _ = writeln!(table, "|---|---|---|---|---|---|---|---|---|");
+    for board in &BOARDS {
+        for &arith in board.arithmetics {
+            for (preset, config) in stapes_tests::all_presets() {
+                // The harness alone first: the front end's flash and static RAM
+                // are the full build's minus this one.
+                let baseline = build(
+                    board,
+                    &format!("{arith},preset-{preset},harness-only"),
+                    &clip_path,
+                );
+                let (base_flash, base_ram) = section_sizes(&baseline);
+                let elf = build(board, &format!("{arith},preset-{preset}"), &clip_path);
+                let run = run_qemu(&qemu, board, &elf);
+                let width = if arith == "f32" { 8 } else { 4 };
+                let got: Vec<Vec<u32>> = run.frames.iter().map(|nib| regroup(nib, width)).collect();
+                let want = host_frames(arith, &config, &samples);
+                assert!(
+                    !got.is_empty(),
+                    "{preset} {arith} {}: no frames",
+                    board.machine
+                );
+                assert_eq!(
+                    got.len(),
+                    want.len(),
+                    "{preset} {arith} {}: frame count",
+                    board.machine
+                );
+                assert_eq!(run.frames_reported as usize, want.len());
+                let mut differing = 0;
+                for (i, (g, w)) in got.iter().zip(&want).enumerate() {
+                    assert_eq!(g.len(), config.bands as usize, "frame {i} width");
+                    for (b, (&gv, &wv)) in g.iter().zip(w).enumerate() {
+                        if gv != wv {
+                            differing += 1;
+                            let ulps = (gv as i64 - wv as i64).abs();
+                            assert!(
+                                arith == "f32" && ulps <= 1,
+                                "{preset} {arith} {}: frame {i} band {b}: board {gv:#x}, host {wv:#x}",
+                                board.machine
+                            );
+                        }
+                    }
+                }
+                let (full_flash, full_ram) = section_sizes(&elf);
+                let (flash, static_ram) = (full_flash - base_flash, full_ram - base_ram);
+                figures.push(Figure {
+                    preset: preset.to_string(),
+                    arith: arith.to_string(),
+                    core: board.target.to_string(),
+                    flash,
+                    ram: static_ram + run.state + run.stack,
+                });
+                let per = |ticks: u64| ticks * run.per_kilotick / 1000 / run.frames_reported.max(1);
+                let stage_instr: Vec<u64> =
+                    run.ticks.iter().take(6).map(|(_, t)| per(*t)).collect();
+                let total = per(run.ticks[6].1);
+                let fft = stage_instr[2].max(1);
+                let exact = if differing == 0 {
+                    "identical".to_string()
+                } else {
+                    format!("{differing} values 1 ulp apart")
+                };
+                let _ = writeln!(
+                    table,
+                    "| {preset} | {arith} | {} | {flash} | {} ({static_ram} + {} + {}) | {} | {total} | {:.2} | {exact} |",
+                    board.machine,
+                    static_ram + run.state + run.stack,
+                    run.state,
+                    run.stack,
+                    stage_instr
+                        .iter()
+                        .map(u64::to_string)
+                        .collect::<Vec<_>>()
+                        .join(" / "),
+                    total as f64 / fft as f64
+                );
+            }
+        }
+    }
+    println!("{table}");
+    let out = repo_root().join("target");
+    std::fs::create_dir_all(&out).unwrap();
+    std::fs::write(out.join("firmware-figures.md"), &table).unwrap();
+    check_budget(&figures);
+}
+
+/// A measured front end: flash and RAM of the front end alone.
+struct Figure {
+    preset: String,
+    arith: String,
+    core: String,
+    flash: u64,
+    ram: u64,
+}
+
+/// `stapes budget` predicts flash and RAM before anything is built; the
+/// prediction must be within 10 % of the measured firmware.
+fn check_budget(figures: &[Figure]) {
+    let mut report = String::new();
+    for f in figures {
+        let config = stapes_core::presets::by_name(&f.preset).unwrap();
+        let arith = match f.arith.as_str() {
+            "f32" => stapes_sim::check::Arith::F32,
+            "fixed16" => stapes_sim::check::Arith::Fixed16,
+            _ => stapes_sim::check::Arith::Fixed32,
+        };
+        let core = if f.core.starts_with("thumbv6m") {
+            stapes_sim::budget::Core::CortexM0
+        } else {
+            stapes_sim::budget::Core::CortexM4F
+        };
+        let b = stapes_sim::budget::predict(&config, arith, core, FilterbankForm::Sparse)
+            .expect("a supported combination");
+        let flash_err = (b.flash_total() as f64 - f.flash as f64).abs() / f.flash as f64;
+        let ram_err = (b.ram_total() as f64 - f.ram as f64).abs() / f.ram as f64;
+        let _ = writeln!(
+            report,
+            "{} {} {}: flash predicted {} measured {} ({:.1} %), RAM predicted {} measured {} ({:.1} %)",
+            f.preset,
+            f.arith,
+            f.core,
+            b.flash_total(),
+            f.flash,
+            100.0 * flash_err,
+            b.ram_total(),
+            f.ram,
+            100.0 * ram_err
+        );
+    }
+    println!("{report}");
+    for line in report.lines() {
+        let pct: Vec<f64> = line
+            .split('(')
+            .skip(1)
+            .map(|p| p.split(' ').next().unwrap().parse().unwrap())
+            .collect();
+        assert!(
+            pct.iter().all(|&p| p <= 10.0),
+            "budget off by more than 10 %: {line}"
+        );
+    }
+}
