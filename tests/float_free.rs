@@ -40,8 +40,8 @@ fn build_for_cortex_m0(feature: &str) -> Vec<String> {
             "thumbv6m-none-eabi",
             "--no-default-features",
             "--features",
-            feature,
         ])
+        .arg(format!("{feature},preset-speech16k-40"))
         .status()
         .expect("run cargo for the firmware example");
     assert!(
