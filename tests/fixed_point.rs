@@ -468,3 +468,20 @@ fn check_sweep_and_device_exact_features() {
         "--raw needs a fixed arithmetic"
     );
 }
+
+#[test]
+fn integer_square_root_is_the_floor_of_the_real_one() {
+    // floor(√v) is the unique r with r² ≤ v < (r + 1)², checked exactly in u128.
+    let mut r = rng(55);
+    let mut values: Vec<u64> = (0..3000).collect();
+    values.extend((0..64).map(|b| 1u64 << b));
+    values.extend((0..20000).map(|_| r.random::<u64>() >> r.random_range(0..64)));
+    values.push(u64::MAX);
+    for v in values {
+        let root = stapes_core::fixed_path::isqrt_u64(v) as u128;
+        assert!(
+            root * root <= v as u128 && (root + 1) * (root + 1) > v as u128,
+            "isqrt({v}) = {root}"
+        );
+    }
+}

@@ -128,6 +128,11 @@ pub trait FrameData: BfpSample {
     fn to_raw(self) -> i16;
     /// `v` saturated into the type.
     fn from_i64_saturating(v: i64) -> Self;
+    /// Stores an unsigned value of up to the type's width as its raw bits
+    /// (magnitudes fit: `< 2^16` for 16-bit data, `< 2^32` for 32-bit).
+    fn from_bits_u32(v: u32) -> Self;
+    /// The raw bits back.
+    fn to_bits_u32(self) -> u32;
     /// `round(self · w / 2^15)` for a Q15 weight, saturated.
     fn mul_q15(self, w: i16) -> Self;
     /// `|re|² + |im|²` as `u64`, shifted right by `shift`.
@@ -147,6 +152,14 @@ impl FrameData for i16 {
     #[inline]
     fn from_i64_saturating(v: i64) -> i16 {
         v.clamp(i16::MIN as i64, i16::MAX as i64) as i16
+    }
+    #[inline]
+    fn from_bits_u32(v: u32) -> i16 {
+        v.min(u16::MAX as u32) as u16 as i16
+    }
+    #[inline]
+    fn to_bits_u32(self) -> u32 {
+        self as u16 as u32
     }
     #[inline]
     fn mul_q15(self, w: i16) -> i16 {
@@ -176,6 +189,14 @@ impl FrameData for i32 {
         v.clamp(i32::MIN as i64, i32::MAX as i64) as i32
     }
     #[inline]
+    fn from_bits_u32(v: u32) -> i32 {
+        v as i32
+    }
+    #[inline]
+    fn to_bits_u32(self) -> u32 {
+        self as u32
+    }
+    #[inline]
     fn mul_q15(self, w: i16) -> i32 {
         ((self as i64 * w as i64 + (1 << 14)) >> 15).clamp(i32::MIN as i64, i32::MAX as i64) as i32
     }
@@ -190,19 +211,25 @@ impl FrameData for i32 {
 /// Integer square root (floor) of a `u64`.
 #[inline]
 pub fn isqrt_u64(v: u64) -> u64 {
+    // Digit by digit, two bits of `v` per step, starting at its leading pair:
+    // shifts, adds and compares only (no division, which is a library call on
+    // Cortex-M for 64 bits).
     if v == 0 {
         return 0;
     }
-    // Newton's method from an over-estimate converges downward monotonically.
-    let bits = 64 - v.leading_zeros();
-    let mut x = 1u64 << bits.div_ceil(2);
-    loop {
-        let y = (x + v / x) >> 1;
-        if y >= x {
-            return x;
+    let mut rem = v;
+    let mut root = 0u64;
+    let mut bit = 1u64 << ((63 - v.leading_zeros()) & !1);
+    while bit != 0 {
+        if rem >= root + bit {
+            rem -= root + bit;
+            root = (root >> 1) + bit;
+        } else {
+            root >>= 1;
         }
-        x = y;
+        bit >>= 2;
     }
+    root
 }
 
 /// Streaming fixed-point front end. `P` is [`Fixed16`](crate::int_fft::Fixed16)
@@ -436,16 +463,39 @@ where
         let shift = self.spectrum_shift;
         let half = n / 2;
         let magnitude = self.config.spectrum == SpectrumKind::Magnitude;
-        let value = |k: usize| -> u64 {
-            let (re, im) = if k == 0 {
-                (buf[0], P::Data::default())
+        // Bin k sits at buf[2k], buf[2k + 1]; X[0] and X[N/2] (real) at buf[0], buf[1].
+        let slot = |k: usize| {
+            if k == 0 {
+                0
             } else if k == half {
-                (buf[1], P::Data::default())
+                1
+            } else {
+                2 * k
+            }
+        };
+        if magnitude {
+            // Once per bin, in place: |X[k]| replaces the real part, as raw bits.
+            for k in 0..=half {
+                let (re, im) = if k == 0 || k == half {
+                    (buf[slot(k)], P::Data::default())
+                } else {
+                    (buf[2 * k], buf[2 * k + 1])
+                };
+                let m = isqrt_u64(<P::Data as FrameData>::power(re, im, 0)) >> shift;
+                buf[slot(k)] = <P::Data as FrameData>::from_bits_u32(m as u32);
+            }
+        }
+        let buf = &*buf;
+        let value = |k: usize| -> u64 {
+            if magnitude {
+                return buf[slot(k)].to_bits_u32() as u64;
+            }
+            let (re, im) = if k == 0 || k == half {
+                (buf[slot(k)], P::Data::default())
             } else {
                 (buf[2 * k], buf[2 * k + 1])
             };
-            let p = <P::Data as FrameData>::power(re, im, if magnitude { 0 } else { shift });
-            if magnitude { isqrt_u64(p) >> shift } else { p }
+            <P::Data as FrameData>::power(re, im, shift)
         };
         // Energy = acc · 2^energy_exponent (weights are Q15).
         let energy_exponent = if magnitude { e_x } else { 2 * e_x } + shift as i32 - 15;
