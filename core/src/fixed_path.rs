@@ -444,13 +444,14 @@ where
         let norm = <P::Data as FrameData>::SAMPLE_BITS as i32 - bits as i32;
         let mut cond = start;
         for (v, &win) in buf[..w].iter_mut().zip(self.tables.table.window) {
-            let c = conditioned(&mut cond, v.to_raw(), self.fraction_bits) as i64;
+            let c = conditioned(&mut cond, v.to_raw(), self.fraction_bits);
+            // |c| ≤ max < 2^bits, so c << norm < 2^SAMPLE_BITS fits i32.
             let x = if norm >= 0 {
                 c << norm
             } else {
                 (c + (1 << (-norm - 1))) >> -norm
             };
-            *v = <P::Data as FrameData>::from_i64_saturating(x).mul_q15(win);
+            *v = <P::Data as FrameData>::from_i64_saturating(x as i64).mul_q15(win);
         }
         buf[w..].fill(P::Data::default());
         probe.mark(Stage::Window);

@@ -242,71 +242,60 @@ fn bit_reverse_pairs<T: BfpSample>(buf: &mut [T], half: usize) {
     }
 }
 
-/// Butterfly outputs `a ± w·b` before rounding, scaled by `2^WIDE_FRAC`:
-/// `[re(a + wb), im(a + wb), re(a − wb), im(a − wb)]`, with `w = c − i·s`.
-#[inline]
-fn butterfly_wide<T: BfpSample>(
-    buf: &[T],
-    ia: usize,
-    ib: usize,
-    w: Option<(T::Twiddle, T::Twiddle)>,
-) -> [T::Wide; 4] {
-    let frac = T::WIDE_FRAC;
-    let drop = T::TWIDDLE_FRAC - frac;
-    let (ar, ai) = (buf[ia].wide() << frac, buf[ia + 1].wide() << frac);
-    let (br, bi) = (buf[ib].wide(), buf[ib + 1].wide());
-    let (tr, ti) = match w {
-        // w·b = (c·br + s·bi) + i(c·bi − s·br); |w·b| ≤ √2·max, so every sum
-        // here stays below 2.42·2^(bits − 1 + WIDE_FRAC), inside the wide type.
-        Some((c, s)) => (
-            T::twiddle_product(br, c, drop) + T::twiddle_product(bi, s, drop),
-            T::twiddle_product(bi, c, drop) - T::twiddle_product(br, s, drop),
-        ),
-        None => (buf[ib].wide() << frac, buf[ib + 1].wide() << frac),
-    };
-    [ar + tr, ai + ti, ar - tr, ai - ti]
-}
-
-/// Calls `f(buf, ia, ib, outputs)` for every butterfly of the stage with
-/// groups of `len` complex points, in place order.
+/// One pass over a stage with groups of `len` complex points. With `WRITE`
+/// false it returns the largest output before rounding (for a butterfly,
+/// `max(|a + t|, |a − t|) = |a| + |t|` per component); with `WRITE` true it
+/// writes every output `a ± w·b`, rounded once after a right shift of
+/// `total_shift` bits, and returns 0.
+///
+/// The twiddle of each butterfly column `j` is read once per stage, and the
+/// groups are walked as disjoint slices, so the inner loop has no branch on
+/// the twiddle and no repeated table lookups.
 #[inline(always)]
-fn for_each_butterfly<T: BfpSample, F: FnMut(&mut [T], usize, usize, [T::Wide; 4])>(
+fn stage_pass<T: BfpSample, const WRITE: bool>(
     buf: &mut [T],
     quarter: &[T::Twiddle],
     len: usize,
-    mut f: F,
-) {
-    let half = buf.len() / 2;
+    total_shift: u32,
+) -> T::Wide {
+    let frac = T::WIDE_FRAC;
+    let drop = T::TWIDDLE_FRAC - frac;
     let stride = buf.len() / len; // twiddle index step in the N-point table
-    let mut start = 0;
-    while start < half {
-        for j in 0..len / 2 {
-            let ia = 2 * (start + j);
-            let ib = 2 * (start + j + len / 2);
-            let w = (j != 0).then(|| twiddle::<T>(quarter, j * stride));
-            let out = butterfly_wide(buf, ia, ib, w);
-            f(buf, ia, ib, out);
+    let mut peak = T::Wide::ZERO;
+    for j in 0..len / 2 {
+        let w = (j != 0).then(|| twiddle::<T>(quarter, j * stride));
+        for group in buf.chunks_exact_mut(2 * len) {
+            let (lo, hi) = group.split_at_mut(len);
+            let (a, b) = (&mut lo[2 * j..2 * j + 2], &mut hi[2 * j..2 * j + 2]);
+            let (ar, ai) = (a[0].wide() << frac, a[1].wide() << frac);
+            let (br, bi) = (b[0].wide(), b[1].wide());
+            // w·b = (c·br + s·bi) + i(c·bi − s·br); |w·b| ≤ √2·max, so every
+            // sum stays below 2.42·2^(bits − 1 + WIDE_FRAC), inside the wide type.
+            let (tr, ti) = match w {
+                Some((c, s)) => (
+                    T::twiddle_product(br, c, drop) + T::twiddle_product(bi, s, drop),
+                    T::twiddle_product(bi, c, drop) - T::twiddle_product(br, s, drop),
+                ),
+                None => (br << frac, bi << frac),
+            };
+            if WRITE {
+                a[0] = T::narrow(ar + tr, total_shift);
+                a[1] = T::narrow(ai + ti, total_shift);
+                b[0] = T::narrow(ar - tr, total_shift);
+                b[1] = T::narrow(ai - ti, total_shift);
+            } else {
+                peak = peak.max(ar.abs() + tr.abs()).max(ai.abs() + ti.abs());
+            }
         }
-        start += len;
     }
+    peak
 }
 
 /// One radix-2 stage over groups of `len` complex points; returns its shift.
 fn stage<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle], len: usize) -> i32 {
-    let mut peak = T::Wide::ZERO;
-    for_each_butterfly(buf, quarter, len, |_, _, _, out| {
-        for v in out {
-            peak = peak.max(v.abs());
-        }
-    });
-    let frac = T::WIDE_FRAC;
-    let shift = exact_shift::<T>(peak, frac);
-    for_each_butterfly(buf, quarter, len, |buf, ia, ib, out| {
-        buf[ia] = T::narrow(out[0], frac + shift);
-        buf[ia + 1] = T::narrow(out[1], frac + shift);
-        buf[ib] = T::narrow(out[2], frac + shift);
-        buf[ib + 1] = T::narrow(out[3], frac + shift);
-    });
+    let peak = stage_pass::<T, false>(buf, quarter, len, 0);
+    let shift = exact_shift::<T>(peak, T::WIDE_FRAC);
+    stage_pass::<T, true>(buf, quarter, len, T::WIDE_FRAC + shift);
     shift as i32
 }
 
