@@ -8,19 +8,7 @@ use stapes_core::table::{FilterbankForm, TableError};
 use stapes_sim::emit::{BlobContents, blob};
 use stapes_sim::generate::GeneratedTables;
 
-/// Blob bytes in 4-byte-aligned storage, as a board's flash would hold them.
-struct Aligned(Vec<u32>, usize);
-
-impl Aligned {
-    fn new(bytes: &[u8]) -> Self {
-        let mut words = vec![0u32; bytes.len().div_ceil(4) + 1];
-        bytemuck::cast_slice_mut::<u32, u8>(&mut words)[..bytes.len()].copy_from_slice(bytes);
-        Aligned(words, bytes.len())
-    }
-    fn bytes(&self) -> &[u8] {
-        &bytemuck::cast_slice::<u32, u8>(&self.0)[..self.1]
-    }
-}
+use stapes_tests::AlignedBytes as Aligned;
 
 fn patch_crc(b: &mut [u8]) {
     let crc = blob_crc(b);

@@ -336,11 +336,8 @@ fn fixed_streaming_is_chunking_independent_and_bit_exact() {
 fn blob_fixed_tables_round_trip_and_a_front_end_runs_from_them() {
     for (name, c) in all_presets() {
         let t = GeneratedTables::new(&c);
-        let bytes = blob(&t, BlobContents::ALL);
-        let mut words = vec![0u32; bytes.len().div_ceil(4)];
-        bytemuck::cast_slice_mut::<u32, u8>(&mut words)[..bytes.len()].copy_from_slice(&bytes);
-        let parsed =
-            TableBlob::parse(&bytemuck::cast_slice::<u32, u8>(&words)[..bytes.len()]).unwrap();
+        let stored = stapes_tests::AlignedBytes::new(&blob(&t, BlobContents::ALL));
+        let parsed = TableBlob::parse(stored.bytes()).unwrap();
         for form in t.forms() {
             assert_eq!(
                 parsed.fixed_tables(form).unwrap(),
@@ -357,10 +354,8 @@ fn blob_fixed_tables_round_trip_and_a_front_end_runs_from_them() {
             ..BlobContents::ALL
         },
     );
-    let mut words = vec![0u32; only_f32.len().div_ceil(4)];
-    bytemuck::cast_slice_mut::<u32, u8>(&mut words)[..only_f32.len()].copy_from_slice(&only_f32);
-    let parsed =
-        TableBlob::parse(&bytemuck::cast_slice::<u32, u8>(&words)[..only_f32.len()]).unwrap();
+    let stored = stapes_tests::AlignedBytes::new(&only_f32);
+    let parsed = TableBlob::parse(stored.bytes()).unwrap();
     assert!(
         parsed
             .fixed_tables(FilterbankForm::Sparse)

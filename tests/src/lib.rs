@@ -37,3 +37,26 @@ pub fn repo_root() -> std::path::PathBuf {
         .expect("tests/ has a parent")
         .to_path_buf()
 }
+
+/// Blob bytes copied into 4-byte-aligned storage, as a board's flash holds them.
+pub struct AlignedBytes {
+    words: Vec<u32>,
+    len: usize,
+}
+
+impl AlignedBytes {
+    /// Copies `bytes`.
+    pub fn new(bytes: &[u8]) -> Self {
+        let mut words = vec![0u32; bytes.len().div_ceil(4) + 1];
+        bytemuck::cast_slice_mut::<u32, u8>(&mut words)[..bytes.len()].copy_from_slice(bytes);
+        AlignedBytes {
+            words,
+            len: bytes.len(),
+        }
+    }
+
+    /// The bytes, 4-byte aligned.
+    pub fn bytes(&self) -> &[u8] {
+        &bytemuck::cast_slice::<u32, u8>(&self.words)[..self.len]
+    }
+}
