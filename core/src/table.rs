@@ -61,6 +61,16 @@ pub enum FilterbankForm {
     Compact,
 }
 
+impl FilterbankForm {
+    /// Lower-case name ("sparse", "compact").
+    pub fn name(self) -> &'static str {
+        match self {
+            FilterbankForm::Sparse => "sparse",
+            FilterbankForm::Compact => "compact",
+        }
+    }
+}
+
 /// The filterbank in one of its two forms (see the module docs).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum Filterbank<'a, W> {

@@ -31,6 +31,16 @@ pub enum Core {
     CortexM4F,
 }
 
+impl Core {
+    /// Name as the command line spells it.
+    pub fn name(self) -> &'static str {
+        match self {
+            Core::CortexM0 => "cortex-m0",
+            Core::CortexM4F => "cortex-m4f",
+        }
+    }
+}
+
 /// A prediction, in bytes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Budget {
@@ -149,8 +159,10 @@ pub fn report(
     let mut s = String::new();
     let _ = writeln!(
         s,
-        "budget: {name}, {} on {core:?}, {form:?} filterbank (predicted before building)",
-        arith.name()
+        "budget: {name}, {} on {}, {} filterbank (predicted before building)",
+        arith.name(),
+        core.name(),
+        form.name()
     );
     let _ = writeln!(
         s,

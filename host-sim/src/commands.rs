@@ -238,10 +238,10 @@ fn check_command(a: &CheckArgs) -> Result<Outcome> {
     let (input_name, samples) = load_input(a.input.as_deref(), &a.input_args, &config)?;
     let tables = loaded.core_tables(a.arith, form(a.input_args.form))?;
     crate::say!(
-        "check: {} ({} core, {:?} filterbank) on {input_name}: {} samples, {:.2} s at {} Hz",
+        "check: {} ({} core, {} filterbank) on {input_name}: {} samples, {:.2} s at {} Hz",
         loaded.name(),
         a.arith.name(),
-        form(a.input_args.form),
+        form(a.input_args.form).name(),
         samples.len(),
         samples.len() as f64 / config.sample_rate_hz as f64,
         config.sample_rate_hz

@@ -175,9 +175,9 @@ pub fn sweep(
     out_dir: &Path,
 ) -> Result<Outcome> {
     crate::say!(
-        "sweep: {} ({:?} filterbank); 8 tones, white noise, pink noise and a log chirp, 0.5 s each, at {:?} dBFS peak",
+        "sweep: {} ({} filterbank); 8 tones, white noise, pink noise and a log chirp, 0.5 s each, at {:?} dBFS peak",
         loaded.name(),
-        form,
+        form.name(),
         LEVELS_DBFS
     );
     crate::say!("|error| in dB over bands within R dB of each frame's loudest band");
