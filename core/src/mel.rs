@@ -15,7 +15,7 @@ pub fn accumulate_f32(filterbank: &Filterbank<'_, f32>, spectrum: &[f32], out: &
                 let (first, count) = (first as usize, count as usize);
                 let w = &weights[offset..offset + count];
                 let s = &spectrum[first..first + count];
-                *energy = w.iter().zip(s).fold(0.0f32, |acc, (&w, &s)| acc + w * s);
+                *energy = dot(w, s);
                 offset += count;
             }
         }
@@ -46,6 +46,24 @@ pub fn accumulate_f32(filterbank: &Filterbank<'_, f32>, spectrum: &[f32], out: &
             }
         }
     }
+}
+
+/// `Σ w[i]·s[i]`, summed strictly left to right (four products per turn, so
+/// the loop costs less without changing a single rounding).
+#[inline]
+fn dot(w: &[f32], s: &[f32]) -> f32 {
+    let mut acc = 0.0f32;
+    let (mut wq, mut sq) = (w.chunks_exact(4), s.chunks_exact(4));
+    for (a, b) in (&mut wq).zip(&mut sq) {
+        acc += a[0] * b[0];
+        acc += a[1] * b[1];
+        acc += a[2] * b[2];
+        acc += a[3] * b[3];
+    }
+    for (&a, &b) in wq.remainder().iter().zip(sq.remainder()) {
+        acc += a * b;
+    }
+    acc
 }
 
 /// Multiplies each band energy by its gain.
