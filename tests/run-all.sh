@@ -31,6 +31,9 @@ step "no_std: stapes-core alone for Cortex-M0 (thumbv6m) and Cortex-M4F (thumbv7
 for target in thumbv6m-none-eabi thumbv7em-none-eabihf; do
   cargo build -p stapes-core --release --target "$target" --features fft-512
 done
+# The fixed path alone (no microfft at all) and the optional defmt integration.
+cargo build -p stapes-core --release --target thumbv6m-none-eabi
+cargo build -p stapes-core --release --target thumbv7em-none-eabihf --features defmt,fft-512
 if cargo tree -p stapes-core -e features,no-proc-macro,no-build,no-dev --target thumbv6m-none-eabi \
     --features fft-512 | grep 'feature "std"'; then
   echo "stapes-core pulls a std feature on a bare-metal target" >&2
