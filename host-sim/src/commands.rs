@@ -416,6 +416,30 @@ fn demo(a: &DemoArgs) -> Result<Outcome> {
     let run = check_f32(&config, view, &samples, inputs.chunk_samples)?;
     let centres = band_centres(&config);
     crate::say_text!(report(&run, &centres, false));
+    // The fixed-point cores, from the same blob, for boards without an FPU.
+    let mut all_passed = run.passed();
+    for arith in [Arith::Fixed32, Arith::Fixed16] {
+        let fixed = check(
+            arith,
+            &config,
+            loaded.core_tables(arith, FilterbankForm::Sparse)?,
+            &samples,
+            inputs.chunk_samples,
+        )?;
+        for (t, c) in &fixed.comparisons {
+            let pass = c.overall.max <= t.max_error_db;
+            crate::say!(
+                "{} within {} dB: max {:.2e} dB, mean {:.2e} dB; tolerance max <= {} dB: {}",
+                arith.name(),
+                t.range_db,
+                c.overall.max,
+                c.overall.mean,
+                t.max_error_db,
+                if pass { "PASS" } else { "FAIL" }
+            );
+        }
+        all_passed &= fixed.passed();
+    }
 
     let npy = dir.join("features.npy");
     crate::npy::write_f32(
@@ -515,7 +539,7 @@ fn demo(a: &DemoArgs) -> Result<Outcome> {
     for (path, what) in &wrote {
         crate::say!("  {:<40} {what}", path.display());
     }
-    Ok(if run.passed() {
+    Ok(if all_passed {
         Outcome::Success
     } else {
         Outcome::CheckFailed
