@@ -203,7 +203,7 @@ pub fn report(run: &CheckRun, centres_hz: &[f64], all_bands: bool) -> String {
         order.sort_by(|&a, &b| c.per_band[b].max.total_cmp(&c.per_band[a].max));
         order.truncate(10);
         order.sort();
-        let _ = writeln!(s, "worst ten bands (all with --all-bands), |error| in dB:");
+        let _ = writeln!(s, "worst ten bands, |error| in dB:");
     } else {
         let _ = writeln!(s, "per band, |error| in dB:");
     }

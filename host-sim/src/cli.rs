@@ -101,9 +101,9 @@ pub struct CheckArgs {
     /// Input handling.
     #[command(flatten)]
     pub input_args: InputArgs,
-    /// Print every band's statistics, not only the worst ten.
+    /// Print only the ten worst bands' statistics (all bands by default).
     #[arg(long)]
-    pub all_bands: bool,
+    pub worst_bands: bool,
     /// Arithmetic of the core: f32, fixed16 or fixed32.
     #[arg(long, value_enum, default_value = "f32")]
     pub arith: Arith,

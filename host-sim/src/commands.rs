@@ -253,7 +253,7 @@ fn check_command(a: &CheckArgs) -> Result<Outcome> {
         &samples,
         a.input_args.chunk_samples,
     )?;
-    crate::say_text!(report(&run, &band_centres(&config), a.all_bands));
+    crate::say_text!(report(&run, &band_centres(&config), !a.worst_bands));
     Ok(if run.passed() {
         Outcome::Success
     } else {
