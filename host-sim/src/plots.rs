@@ -67,6 +67,52 @@ fn err<E: std::fmt::Display>(path: &Path) -> impl Fn(E) -> anyhow::Error + '_ {
     move |e| anyhow!("cannot draw {}: {e}", path.display())
 }
 
+/// Draws the colour scale from `lo` to `hi` into `bar`.
+fn colour_bar(
+    bar: &DrawingArea<BitMapBackend<'_>, plotters::coord::Shift>,
+    path: &Path,
+    lo: f64,
+    hi: f64,
+    unit: &str,
+) -> Result<()> {
+    let f = font();
+    let span = (hi - lo).max(1e-12);
+    let mut scale = ChartBuilder::on(bar)
+        .margin_top(40)
+        .margin_bottom(50)
+        .margin_right(10)
+        .y_label_area_size(60)
+        .caption(unit, (f, 14))
+        .build_cartesian_2d(0f64..1f64, lo..hi)
+        .map_err(err(path))?;
+    scale
+        .configure_mesh()
+        .disable_mesh()
+        .disable_x_axis()
+        .y_label_formatter(&|v: &f64| {
+            if span < 0.1 {
+                format!("{v:.1e}")
+            } else {
+                format!("{v:.0}")
+            }
+        })
+        .label_style((f, 12))
+        .draw()
+        .map_err(err(path))?;
+    let steps = 100;
+    scale
+        .draw_series((0..steps).map(|s| {
+            let v0 = lo + span * s as f64 / steps as f64;
+            let v1 = lo + span * (s + 1) as f64 / steps as f64;
+            Rectangle::new(
+                [(0.0, v0), (1.0, v1)],
+                palette(s as f64 / steps as f64).filled(),
+            )
+        }))
+        .map_err(err(path))?;
+    Ok(())
+}
+
 /// What a heat map shows.
 pub struct HeatMap<'a> {
     /// Title line.
@@ -147,39 +193,7 @@ pub fn heat_map(path: &Path, map: &HeatMap<'_>) -> Result<()> {
             }))
             .map_err(err(path))?;
 
-        let mut scale = ChartBuilder::on(&bar)
-            .margin_top(40)
-            .margin_bottom(50)
-            .margin_right(10)
-            .y_label_area_size(55)
-            .caption(map.unit, (f, 14))
-            .build_cartesian_2d(0f64..1f64, lo..hi)
-            .map_err(err(path))?;
-        scale
-            .configure_mesh()
-            .disable_mesh()
-            .disable_x_axis()
-            .y_label_formatter(&|v: &f64| {
-                if span < 0.1 {
-                    format!("{v:.1e}")
-                } else {
-                    format!("{v:.0}")
-                }
-            })
-            .label_style((f, 12))
-            .draw()
-            .map_err(err(path))?;
-        let steps = 100;
-        scale
-            .draw_series((0..steps).map(|s| {
-                let v0 = lo + span * s as f64 / steps as f64;
-                let v1 = lo + span * (s + 1) as f64 / steps as f64;
-                Rectangle::new(
-                    [(0.0, v0), (1.0, v1)],
-                    palette(s as f64 / steps as f64).filled(),
-                )
-            }))
-            .map_err(err(path))?;
+        colour_bar(&bar, path, lo, hi, map.unit)?;
         root.present().map_err(err(path))?;
     }
     finish_png(tmp, path)
@@ -306,29 +320,7 @@ pub fn band_level_map(
                 })
             }))
             .map_err(err(path))?;
-        let mut scale = ChartBuilder::on(&bar)
-            .margin_top(40)
-            .margin_bottom(50)
-            .margin_right(10)
-            .y_label_area_size(60)
-            .caption("dB", (f, 14))
-            .build_cartesian_2d(0f64..1f64, 0f64..hi)
-            .map_err(err(path))?;
-        scale
-            .configure_mesh()
-            .disable_mesh()
-            .disable_x_axis()
-            .y_label_formatter(&|v: &f64| format!("{v:.1e}"))
-            .label_style((f, 12))
-            .draw()
-            .map_err(err(path))?;
-        scale
-            .draw_series((0..100).map(|s| {
-                let v0 = hi * s as f64 / 100.0;
-                let v1 = hi * (s + 1) as f64 / 100.0;
-                Rectangle::new([(0.0, v0), (1.0, v1)], palette(s as f64 / 100.0).filled())
-            }))
-            .map_err(err(path))?;
+        colour_bar(&bar, path, 0.0, hi, "dB")?;
         root.present().map_err(err(path))?;
     }
     finish_png(tmp, path)
