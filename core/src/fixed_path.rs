@@ -9,7 +9,7 @@
 //!   12 extra fraction bits (`i64` products), so the stored stream stays exact.
 //! * **Normalisation before windowing**: the conditioned frame is shifted so
 //!   its largest sample uses the data type's full width (15 bits for
-//!   [`Fixed16`], 31 for [`Fixed32`]); quiet frames keep their precision.
+//!   [`Fixed16`](crate::int_fft::Fixed16), 31 for [`Fixed32`](crate::int_fft::Fixed32)); quiet frames keep their precision.
 //! * **Window**: Q15, rounded product.
 //! * **FFT**: block floating point ([`crate::int_fft`]), exponent tracked.
 //! * **Spectrum**: `re² + im²` exactly (`u32` for 16-bit data; `u64` shifted

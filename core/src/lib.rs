@@ -5,9 +5,16 @@
 //!         ─► mel (table view) ─► log ─► frame out
 //! ```
 //!
+//! Two front ends run that path: [`float_path::FloatFrontEnd`] (`f32`,
+//! microfft, for cores with an FPU) and [`fixed_path::FixedFrontEnd`]
+//! (integers only: the project's block-floating-point FFT in [`int_fft`],
+//! 16- or 32-bit data, and [`int_log`]; `I8F8` output, 1/256 dB per LSB).
+//!
 //! One [`config::FeatureConfig`] describes a front end. The host generator
-//! turns it into a [`table::TableView`] (Rust source, C header, or a checked
-//! [`blob`]); the front end reads only the table on the per-frame path.
+//! turns it into a [`table::TableView`] (plus, for the fixed path,
+//! [`fixed_tables::FixedTables`]) as Rust source, a C header, or a checked
+//! [`blob`]; the front ends read only the tables on the per-frame path, and
+//! [`probe`] lets a board time each stage.
 //!
 //! # Conventions (other tools rely on them)
 //! * **Samples**: `i16` (32768 = 1.0) or `f32` in `[-1, 1]`; non-finite `f32`
