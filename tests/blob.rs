@@ -203,3 +203,46 @@ fn a_table_for_another_configuration_is_refused() {
         .unwrap_err();
     assert!(e.to_string().contains("FFT buffer holds 128"), "{e}");
 }
+
+#[test]
+fn random_corruption_never_panics() {
+    // Flip random bytes, then (half of the time) repair the CRC so the parser's
+    // deeper checks (directory, sections, configuration, view) are reached:
+    // every outcome must be a clean error or a view that passes its check.
+    use rand::Rng;
+    let t = GeneratedTables::new(&SPEECH16K_40);
+    let good = blob(&t, BlobContents::ALL);
+    let mut r = stapes_tests::rng(77);
+    let mut rejected = 0;
+    for round in 0..3000 {
+        let mut b = good.clone();
+        for _ in 0..r.random_range(1..6) {
+            let i = r.random_range(0..b.len());
+            b[i] ^= 1 << r.random_range(0..8);
+        }
+        if round % 2 == 0 {
+            patch_crc(&mut b);
+        }
+        let stored = Aligned::new(&b);
+        match TableBlob::parse(stored.bytes()) {
+            Err(e) => {
+                rejected += 1;
+                assert!(!e.to_string().is_empty());
+            }
+            Ok(parsed) => {
+                for form in [FilterbankForm::Sparse, FilterbankForm::Compact] {
+                    if let Ok(v) = parsed.view::<f32>(form) {
+                        v.check(&parsed.config())
+                            .expect("a view the parser hands out fits its configuration");
+                    }
+                    let _ = parsed.view::<i16>(form);
+                    let _ = parsed.fixed_tables(form);
+                }
+            }
+        }
+    }
+    assert!(
+        rejected > 1500,
+        "only {rejected} of 3000 corrupted blobs were rejected"
+    );
+}

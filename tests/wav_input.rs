@@ -118,3 +118,30 @@ fn non_finite_float_samples_are_refused() {
     let e = err_text(read_wav(&p, None));
     assert!(e.contains("non-finite") && e.contains("sample 42"), "{e}");
 }
+
+#[test]
+fn cut_or_scrambled_files_are_errors_not_panics() {
+    use rand::Rng;
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("good.wav");
+    write(&p, 2, 16, SampleFormat::Int, 16000, 500);
+    let good = std::fs::read(&p).unwrap();
+    let bad = dir.path().join("bad.wav");
+    let mut r = stapes_tests::rng(78);
+    for round in 0..400 {
+        let mut b = good.clone();
+        if round % 2 == 0 {
+            b.truncate(r.random_range(0..good.len()));
+        } else {
+            for _ in 0..r.random_range(1..8) {
+                let i = r.random_range(0..b.len().min(64));
+                b[i] = r.random();
+            }
+        }
+        std::fs::write(&bad, &b).unwrap();
+        // Either a clear error naming the file, or samples.
+        if let Err(e) = read_wav(&bad, Some(ChannelChoice::Mix)) {
+            assert!(format!("{e:#}").contains("bad.wav"), "{e:#}");
+        }
+    }
+}
