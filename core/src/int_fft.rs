@@ -119,18 +119,14 @@ pub struct Fixed32;
 pub trait Precision: Copy + core::fmt::Debug + 'static {
     /// The data type.
     type Data: BfpSample;
-    /// Name used in reports ("fixed16", "fixed32").
-    const NAME: &'static str;
 }
 
 impl Precision for Fixed16 {
     type Data = i16;
-    const NAME: &'static str = "fixed16";
 }
 
 impl Precision for Fixed32 {
     type Data = i32;
-    const NAME: &'static str = "fixed32";
 }
 
 impl BfpSample for i16 {

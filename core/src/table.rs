@@ -34,18 +34,14 @@ use crate::config::{BandGain, FeatureConfig, TrianglePlacement};
 pub trait WeightType: Copy + bytemuck::Pod + PartialEq + fmt::Debug + 'static {
     /// Per-band gain representation for this weight type.
     type Gain: Copy + bytemuck::Pod + PartialEq + fmt::Debug + 'static;
-    /// Short name used in messages ("f32" or "q15").
-    const NAME: &'static str;
 }
 
 impl WeightType for f32 {
     type Gain = f32;
-    const NAME: &'static str = "f32";
 }
 
 impl WeightType for i16 {
     type Gain = i16;
-    const NAME: &'static str = "q15";
 }
 
 /// `[first_bin, bin_count]` of one band in the sparse form.
