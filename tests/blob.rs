@@ -246,3 +246,39 @@ fn random_corruption_never_panics() {
         "only {rejected} of 3000 corrupted blobs were rejected"
     );
 }
+
+/// A version-1 blob (before the Q31 window) still parses: its f32 and Q15
+/// views work, and its fixed-point tables are refused as missing the window.
+#[test]
+fn version_one_blobs_still_parse() {
+    let t = GeneratedTables::new(&SPEECH16K_40);
+    let v2 = blob(&t, BlobContents::ALL);
+    // Rewrite as version 1: the same sections but the Q31 window, renamed to
+    // a kind no version-1 parser asked for (its bytes stay, unused).
+    let mut b = v2.clone();
+    b[8..10].copy_from_slice(&1u16.to_le_bytes());
+    let sections = u16::from_le_bytes([b[10], b[11]]) as usize;
+    for entry in 0..sections {
+        let at = 32 + entry * 12;
+        if u16::from_le_bytes([b[at], b[at + 1]]) == SectionKind::WindowQ31 as u16 {
+            b[at..at + 2].copy_from_slice(&0xfff0u16.to_le_bytes());
+        }
+    }
+    patch_crc(&mut b);
+    let stored = Aligned::new(&b);
+    let parsed = TableBlob::parse(stored.bytes()).unwrap();
+    parsed.view::<f32>(FilterbankForm::Sparse).unwrap();
+    parsed.view::<i16>(FilterbankForm::Sparse).unwrap();
+    assert_eq!(
+        parsed.fixed_tables(FilterbankForm::Sparse).unwrap_err(),
+        BlobError::MissingSection {
+            kind: SectionKind::WindowQ31
+        }
+    );
+    assert!(
+        TableBlob::parse(Aligned::new(&v2).bytes())
+            .unwrap()
+            .fixed_tables(FilterbankForm::Sparse)
+            .is_ok()
+    );
+}

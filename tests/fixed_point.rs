@@ -277,11 +277,7 @@ fn saturating_inputs_give_defined_output() {
                 // The tolerances are stated for inputs down to −60 dBFS: compare the
                 // frames whose loudest band is within 60 dB of the signal's loudest
                 // (after a click, DC removal leaves a tail near −110 dBFS).
-                let to_db = if c.log == stapes_core::config::LogKind::Natural {
-                    10.0 / std::f64::consts::LN_10
-                } else {
-                    1.0
-                };
+                let to_db = stapes_sim::compare::db_per_output_unit(&c);
                 let loudest = |row: &Vec<f64>| row.iter().copied().fold(f64::MIN, f64::max) * to_db;
                 let top = run.reference.iter().map(loudest).fold(f64::MIN, f64::max);
                 let keep: Vec<usize> = (0..run.reference.len())
@@ -291,7 +287,8 @@ fn saturating_inputs_give_defined_output() {
                 let reference: Vec<Vec<f64>> =
                     keep.iter().map(|&i| run.reference[i].clone()).collect();
                 for tol in arith.tolerances() {
-                    let cmp = stapes_sim::compare::compare(&core, &reference, c.log, tol.range_db);
+                    let cmp =
+                        stapes_sim::compare::compare(&core, &reference, &c, tol.range_db, None);
                     println!(
                         "{name} {arith:?} {case}: max {:.3} dB within {} dB",
                         cmp.overall.max, tol.range_db

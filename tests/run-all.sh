@@ -21,10 +21,20 @@ if ! command -v qemu-system-arm >/dev/null 2>&1; then
 fi
 qemu-system-arm --version | head -n 1
 
+step "speech synthesis: espeak-ng and sox (Debian packages) for the speech corpus"
+if ! command -v espeak-ng >/dev/null 2>&1 || ! command -v sox >/dev/null 2>&1; then
+  if [ "$(id -u)" = 0 ]; then
+    apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq espeak-ng sox
+  else
+    sudo apt-get update -qq && sudo DEBIAN_FRONTEND=noninteractive apt-get install -y -qq espeak-ng sox
+  fi
+fi
+espeak-ng --version | head -n 1
+
 step "formatting"
 cargo fmt --all --check
 
-step "tests: generator, core, reference, CLI, float-free proof, firmware under QEMU (overflow checks on)"
+step "tests: generator, core, reference, CLI, speech corpus, golden bits, float-free proof, firmware under QEMU (overflow checks on)"
 cargo test --workspace
 
 step "no_std: stapes-core alone for Cortex-M0 (thumbv6m) and Cortex-M4F (thumbv7em)"

@@ -34,8 +34,13 @@ use crate::table::{BinSpan, Filterbank, FilterbankForm, TableError, TableView, W
 
 /// First eight bytes of every blob.
 pub const MAGIC: [u8; 8] = *b"STAPESTB";
-/// Format version this parser reads and the generator writes.
-pub const FORMAT_VERSION: u16 = 1;
+/// Format version the generator writes. Version 2 added the Q31 window
+/// ([`SectionKind::WindowQ31`]) that the 32-bit fixed path reads.
+pub const FORMAT_VERSION: u16 = 2;
+/// Oldest format version this parser reads: a version-1 blob gives `f32` and
+/// Q15 views, and its fixed-point tables are refused as missing the Q31
+/// window (regenerate it).
+pub const OLDEST_FORMAT_VERSION: u16 = 1;
 /// Bytes before the directory.
 pub const HEADER_BYTES: usize = 32;
 /// Bytes per directory entry.
@@ -76,6 +81,8 @@ pub enum SectionKind {
     TwiddlesQ31 = 13,
     /// Fixed-path constants, [`FixedParams::to_words`](crate::fixed_tables::FixedParams::to_words).
     FixedParams = 14,
+    /// Window, Q31 (`i32`), read by the 32-bit fixed path (format version 2).
+    WindowQ31 = 15,
 }
 
 impl SectionKind {
@@ -96,6 +103,7 @@ impl SectionKind {
             SectionKind::TwiddlesQ15 => "twiddles q15",
             SectionKind::TwiddlesQ31 => "twiddles q31",
             SectionKind::FixedParams => "fixed-point constants",
+            SectionKind::WindowQ31 => "window q31",
         }
     }
 }
@@ -204,7 +212,8 @@ impl fmt::Display for BlobError {
             BlobError::UnsupportedVersion { found } => write!(
                 f,
                 "table blob format version {found} is not supported (this build reads \
-                 version {FORMAT_VERSION}): regenerate it with this version's `stapes tables`"
+                 versions {OLDEST_FORMAT_VERSION} to {FORMAT_VERSION}): regenerate it with \
+                 this version's `stapes tables`"
             ),
             BlobError::LengthMismatch { stated, actual } => write!(
                 f,
@@ -289,7 +298,7 @@ impl<'a> TableBlob<'a> {
             return Err(BlobError::BadMagic);
         }
         let version = le_u16(bytes, 8);
-        if version != FORMAT_VERSION {
+        if !(OLDEST_FORMAT_VERSION..=FORMAT_VERSION).contains(&version) {
             return Err(BlobError::UnsupportedVersion { found: version });
         }
         let sections = le_u16(bytes, 10) as usize;
@@ -411,12 +420,16 @@ impl<'a> TableBlob<'a> {
             table: self.view::<i16>(form)?,
             twiddles_q15: self.section::<i16>(SectionKind::TwiddlesQ15)?,
             twiddles_q31: self.section::<i32>(SectionKind::TwiddlesQ31)?,
+            window_q31: self.section::<i32>(SectionKind::WindowQ31)?,
             params,
         };
         tables.check(&self.config).map_err(|e| match e {
             FixedTableError::Table(t) => BlobError::Table(t),
             FixedTableError::Twiddles { .. } => BlobError::BadSectionLength {
                 kind: SectionKind::TwiddlesQ15,
+            },
+            FixedTableError::WindowQ31 { .. } => BlobError::BadSectionLength {
+                kind: SectionKind::WindowQ31,
             },
         })?;
         Ok(tables)

@@ -6,7 +6,7 @@
 //! * **Stream**: raw `i16` samples are stored (frame assembly and overlap, as
 //!   in the `f32` path). DC removal and pre-emphasis are run at frame time
 //!   from the filter state saved at the frame's first sample, in `i32` with
-//!   12 extra fraction bits (`i64` products), so the stored stream stays exact.
+//!   13 extra fraction bits (`i64` products), so the stored stream stays exact.
 //! * **Normalisation before windowing**: the conditioned frame is shifted so
 //!   its largest sample uses the data type's full width (15 bits for
 //!   [`Fixed16`](crate::int_fft::Fixed16), 31 for [`Fixed32`](crate::int_fft::Fixed32)); quiet frames keep their precision.
@@ -56,7 +56,7 @@ use crate::probe::{Stage, StageProbe};
 use crate::table::Filterbank;
 
 /// Extra fraction bits of the conditioned stream.
-const CONDITIONING_FRACTION_BITS: u32 = 12;
+const CONDITIONING_FRACTION_BITS: u32 = 13;
 
 /// Integer DC removal and pre-emphasis (see the module docs).
 ///
@@ -89,14 +89,16 @@ impl IntConditioner {
         self.dc_pole.is_some() || self.pre_emphasis.is_some()
     }
 
-    /// One sample in (Q15), one out with 12 extra fraction bits (|out| < 2^30).
+    /// One sample in (Q15), one out with 13 extra fraction bits: |x| ≤ 2^28,
+    /// the DC filter at most doubles it (its impulse response has L1 norm 2)
+    /// and pre-emphasis multiplies by at most 1 + a < 2, so |out| < 2^30.
     #[inline]
     pub fn step(&mut self, raw: i16) -> i32 {
         let x = (raw as i32) << CONDITIONING_FRACTION_BITS;
         let y = match self.dc_pole {
             Some(p) => {
                 // |y| ≤ 2·max|x| (the filter's impulse response has L1 norm 2);
-                // p·y < 2^31 · 2^28 fits i64, and so does the carry (< 2^31).
+                // p·y < 2^31 · 2^29 fits i64, and so does the carry (< 2^31).
                 let acc = p as i64 * self.dc_last_out as i64 + self.dc_carry;
                 let feedback = acc >> 31;
                 self.dc_carry = acc - (feedback << 31);
@@ -243,11 +245,13 @@ pub struct FixedFrontEnd<
     const OVERLAP: usize,
     const BANDS: usize,
 > where
+    P: TwiddlesFor,
     P::Data: FrameData,
 {
     config: FeatureConfig,
     tables: FixedTables<'t>,
     twiddles: &'t [<P::Data as BfpSample>::Twiddle],
+    window: &'t [P::WindowCoef],
     framer: Framer<P::Data, i16, FFT, OVERLAP>,
     frame_start: IntConditioner,
     out: [I8F8; BANDS],
@@ -257,21 +261,48 @@ pub struct FixedFrontEnd<
     precision: PhantomData<P>,
 }
 
-/// Selects the twiddle table of a precision.
+/// Selects the twiddle and window tables of a precision.
 pub trait TwiddlesFor: Precision {
+    /// Window coefficient type: Q15 `i16` for 16-bit data, Q31 `i32` for 32-bit.
+    type WindowCoef: Copy + core::fmt::Debug + 'static;
+    /// Whether this precision reads the Q31 arrays.
+    const WIDE: bool;
     /// The quarter-wave table this precision reads.
     fn quarter_wave<'a>(tables: &FixedTables<'a>) -> &'a [<Self::Data as BfpSample>::Twiddle];
+    /// The window this precision reads.
+    fn window<'a>(tables: &FixedTables<'a>) -> &'a [Self::WindowCoef];
+    /// `round(x · w)` for a normalised sample and a window coefficient, saturated.
+    fn apply_window(x: Self::Data, w: Self::WindowCoef) -> Self::Data;
 }
 
 impl TwiddlesFor for crate::int_fft::Fixed16 {
+    type WindowCoef = i16;
+    const WIDE: bool = false;
     fn quarter_wave<'a>(tables: &FixedTables<'a>) -> &'a [i16] {
         tables.twiddles_q15
+    }
+    fn window<'a>(tables: &FixedTables<'a>) -> &'a [i16] {
+        tables.table.window
+    }
+    #[inline(always)]
+    fn apply_window(x: i16, w: i16) -> i16 {
+        x.mul_q15(w)
     }
 }
 
 impl TwiddlesFor for crate::int_fft::Fixed32 {
+    type WindowCoef = i32;
+    const WIDE: bool = true;
     fn quarter_wave<'a>(tables: &FixedTables<'a>) -> &'a [i32] {
         tables.twiddles_q31
+    }
+    fn window<'a>(tables: &FixedTables<'a>) -> &'a [i32] {
+        tables.window_q31
+    }
+    #[inline(always)]
+    fn apply_window(x: i32, w: i32) -> i32 {
+        // |x| < 2^31, |w| < 2^31: the product fits i64; rounded once.
+        ((x as i64 * w as i64 + (1 << 30)) >> 31) as i32
     }
 }
 
@@ -321,6 +352,9 @@ where
     pub fn new(config: FeatureConfig, tables: FixedTables<'t>) -> Result<Self, FrontEndError> {
         crate::error::check_shape(&config, FFT, OVERLAP, BANDS)?;
         tables.check(&config).map_err(FrontEndError::Fixed)?;
+        tables
+            .check_precision(&config, P::WIDE)
+            .map_err(FrontEndError::Fixed)?;
         let p = tables.params;
         let conditioner = IntConditioner::new(
             config
@@ -345,6 +379,7 @@ where
             config,
             tables,
             twiddles: P::quarter_wave(&tables),
+            window: P::window(&tables),
             framer: Framer::new(config.window_samples as usize, config.hop_samples as usize),
             frame_start: conditioner,
             out: [I8F8::ZERO; BANDS],
@@ -443,7 +478,7 @@ where
         let bits = 32 - max.leading_zeros();
         let norm = <P::Data as FrameData>::SAMPLE_BITS as i32 - bits as i32;
         let mut cond = start;
-        for (v, &win) in buf[..w].iter_mut().zip(self.tables.table.window) {
+        for (v, &win) in buf[..w].iter_mut().zip(self.window) {
             let c = conditioned(&mut cond, v.to_raw(), self.fraction_bits);
             // |c| ≤ max < 2^bits, so c << norm < 2^SAMPLE_BITS fits i32.
             let x = if norm >= 0 {
@@ -451,7 +486,7 @@ where
             } else {
                 (c + (1 << (-norm - 1))) >> -norm
             };
-            *v = <P::Data as FrameData>::from_i64_saturating(x as i64).mul_q15(win);
+            *v = P::apply_window(<P::Data as FrameData>::from_i64_saturating(x as i64), win);
         }
         buf[w..].fill(P::Data::default());
         probe.mark(Stage::Window);

@@ -57,6 +57,11 @@ pub struct FixedTables<'a> {
     pub twiddles_q15: &'a [i16],
     /// The same in Q31 (1.0 as 2^31 − 1).
     pub twiddles_q31: &'a [i32],
+    /// The window in Q31 (1.0 as 2^31 − 1), read by the 32-bit path: a Q15
+    /// window's rounding error leaks a strong low-frequency component (DC
+    /// offset, hum) into weak high bands at about 100 dB below it, which the
+    /// 32-bit path would otherwise resolve.
+    pub window_q31: &'a [i32],
     /// Constants.
     pub params: FixedParams,
 }
@@ -72,6 +77,13 @@ pub enum FixedTableError {
         /// Entries found.
         found: usize,
         /// Entries needed (`fft_points / 4 + 1`).
+        expected: usize,
+    },
+    /// The Q31 window has the wrong length.
+    WindowQ31 {
+        /// Entries found.
+        found: usize,
+        /// Entries needed (`window_samples`).
         expected: usize,
     },
 }
@@ -90,19 +102,64 @@ impl fmt::Display for FixedTableError {
                 f,
                 "twiddle table has {found} entries where the FFT needs {expected}: regenerate the table"
             ),
+            FixedTableError::WindowQ31 { found, expected } => write!(
+                f,
+                "Q31 window has {found} entries where the configuration needs {expected}: regenerate the table"
+            ),
         }
     }
 }
 
 impl FixedTables<'_> {
-    /// Checks the tables against `config` (integer work only).
+    /// Checks the tables against `config` (integer work only). A precision's
+    /// own arrays may be empty (tables emitted for the other precision only,
+    /// so a board links only what it reads); the front end of a precision
+    /// then refuses them ([`FixedTables::check_precision`]).
     pub fn check(&self, config: &FeatureConfig) -> Result<(), FixedTableError> {
         self.table.check(config)?;
         let expected = config.fft_points as usize / 4 + 1;
         for found in [self.twiddles_q15.len(), self.twiddles_q31.len()] {
-            if found != expected {
+            if found != 0 && found != expected {
                 return Err(FixedTableError::Twiddles { found, expected });
             }
+        }
+        let expected = config.window_samples as usize;
+        let found = self.window_q31.len();
+        if found != 0 && found != expected {
+            return Err(FixedTableError::WindowQ31 { found, expected });
+        }
+        Ok(())
+    }
+
+    /// Checks that the arrays one precision reads are present: the Q15
+    /// twiddles for 16-bit data (`wide == false`), the Q31 twiddles and
+    /// window for 32-bit data.
+    pub fn check_precision(
+        &self,
+        config: &FeatureConfig,
+        wide: bool,
+    ) -> Result<(), FixedTableError> {
+        let twiddles = config.fft_points as usize / 4 + 1;
+        if !wide {
+            if self.twiddles_q15.len() != twiddles {
+                return Err(FixedTableError::Twiddles {
+                    found: self.twiddles_q15.len(),
+                    expected: twiddles,
+                });
+            }
+            return Ok(());
+        }
+        if self.twiddles_q31.len() != twiddles {
+            return Err(FixedTableError::Twiddles {
+                found: self.twiddles_q31.len(),
+                expected: twiddles,
+            });
+        }
+        if self.window_q31.len() != config.window_samples as usize {
+            return Err(FixedTableError::WindowQ31 {
+                found: self.window_q31.len(),
+                expected: config.window_samples as usize,
+            });
         }
         Ok(())
     }

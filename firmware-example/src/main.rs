@@ -152,7 +152,12 @@ mod under_test {
         { preset::BANDS },
     >;
     pub fn make() -> Option<FrontEnd> {
-        FrontEnd::new(preset::CONFIG, preset::FIXED_SPARSE).ok()
+        // The precision's own tables only: a 16-bit build links no Q31 array.
+        #[cfg(feature = "fixed16")]
+        let tables = preset::FIXED16_SPARSE;
+        #[cfg(not(feature = "fixed16"))]
+        let tables = preset::FIXED32_SPARSE;
+        FrontEnd::new(preset::CONFIG, tables).ok()
     }
     impl UnderTest for FrontEnd {
         const ARITH: &'static str = if cfg!(feature = "fixed16") {

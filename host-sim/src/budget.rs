@@ -113,7 +113,9 @@ pub fn table_bytes(tables: &GeneratedTables, arith: Arith, form: FilterbankForm)
     match arith {
         Arith::F32 => p.window_f32 + p.filterbank(false, compact),
         Arith::Fixed16 => p.window_q15 + p.filterbank(true, compact) + p.twiddles_q15 + 16,
-        Arith::Fixed32 => p.window_q15 + p.filterbank(true, compact) + p.twiddles_q31 + 16,
+        Arith::Fixed32 => {
+            p.window_q15 + p.window_q31 + p.filterbank(true, compact) + p.twiddles_q31 + 16
+        }
     }
 }
 

@@ -157,7 +157,14 @@ pub fn check(
     chunk: usize,
 ) -> Result<CheckRun> {
     let core = run_core(arith, config, tables, samples, chunk)?;
-    let reference = Reference::new(config).run(&reference_input(arith, samples));
+    let reference_fe = Reference::new(config);
+    let reference = reference_fe.run(&reference_input(arith, samples));
+    // 16-bit input (every fixed check, and 16-bit files in f32): values below
+    // the input's resolution are counted, not compared (see `compare`).
+    let resolution = match (arith, samples) {
+        (Arith::F32, Samples::F32(_)) => None,
+        _ => Some(reference_fe.input_noise_floor()),
+    };
     if core.len() != reference.len() {
         bail!(
             "the core gave {} frames and the reference {}: framing differs",
@@ -168,7 +175,12 @@ pub fn check(
     let comparisons = arith
         .tolerances()
         .iter()
-        .map(|t| (*t, compare(&core, &reference, config.log, t.range_db)))
+        .map(|t| {
+            (
+                *t,
+                compare(&core, &reference, config, t.range_db, resolution.as_deref()),
+            )
+        })
         .collect();
     Ok(CheckRun {
         arith,
@@ -239,6 +251,13 @@ pub fn report(run: &CheckRun, centres_hz: &[f64], all_bands: bool) -> String {
             o.count,
             t.max_error_db
         );
+        if c.below_resolution > 0 {
+            let _ = writeln!(
+                s,
+                "  ({} values within {} dB lie below the 16-bit input's resolution and are not compared)",
+                c.below_resolution, t.range_db
+            );
+        }
     }
     s
 }

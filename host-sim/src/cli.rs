@@ -104,13 +104,23 @@ pub struct CheckArgs {
     /// Print only the ten worst bands' statistics (all bands by default).
     #[arg(long)]
     pub worst_bands: bool,
-    /// Arithmetic of the core: f32, fixed16 or fixed32.
-    #[arg(long, value_enum, default_value = "f32")]
-    pub arith: Arith,
+    /// Arithmetic of the core: f32, fixed16 or fixed32 (default f32; with
+    /// --corpus, every arithmetic unless one is named).
+    #[arg(long, value_enum)]
+    pub arith: Option<Arith>,
     /// Run the quantisation sweep instead (tones, white and pink noise, log
     /// chirps at 0, -20, -40, -60 dBFS) for every arithmetic.
     #[arg(long, conflicts_with_all = ["input", "arith"])]
     pub sweep: bool,
+    /// Run every WAV under DIR through every arithmetic and filterbank form of
+    /// each shipped preset at the clip's rate (or only the configuration
+    /// given), print clips passing per preset × arithmetic × form with the
+    /// worst clip and band, and exit 1 if any clip fails.
+    #[arg(long, value_name = "DIR", conflicts_with_all = ["input", "sweep", "table_blob"])]
+    pub corpus: Option<PathBuf>,
+    /// With --corpus: failing clips listed per row, worst first.
+    #[arg(long, value_name = "N", default_value_t = 10)]
+    pub list_failures: usize,
     /// Folder for the sweep's heat maps.
     #[arg(long, value_name = "DIR", default_value = "stapes-sweep")]
     pub out_dir: PathBuf,

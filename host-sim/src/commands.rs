@@ -230,29 +230,27 @@ fn tables(a: &TablesArgs) -> Result<Outcome> {
 }
 
 fn check_command(a: &CheckArgs) -> Result<Outcome> {
+    if let Some(dir) = &a.corpus {
+        return crate::corpus::corpus_command(dir, &a.config, a.arith, a.list_failures);
+    }
+    let arith = a.arith.unwrap_or(Arith::F32);
     let loaded = LoadedTables::load(&a.config, &a.input_args)?;
     let config = loaded.config()?;
     if a.sweep {
         return crate::sweep::sweep(&loaded, &config, form(a.input_args.form), &a.out_dir);
     }
     let (input_name, samples) = load_input(a.input.as_deref(), &a.input_args, &config)?;
-    let tables = loaded.core_tables(a.arith, form(a.input_args.form))?;
+    let tables = loaded.core_tables(arith, form(a.input_args.form))?;
     crate::say!(
         "check: {} ({} core, {} filterbank) on {input_name}: {} samples, {:.2} s at {} Hz",
         loaded.name(),
-        a.arith.name(),
+        arith.name(),
         form(a.input_args.form).name(),
         samples.len(),
         samples.len() as f64 / config.sample_rate_hz as f64,
         config.sample_rate_hz
     );
-    let run = check(
-        a.arith,
-        &config,
-        tables,
-        &samples,
-        a.input_args.chunk_samples,
-    )?;
+    let run = check(arith, &config, tables, &samples, a.input_args.chunk_samples)?;
     crate::say_text!(report(&run, &band_centres(&config), !a.worst_bands));
     Ok(if run.passed() {
         Outcome::Success

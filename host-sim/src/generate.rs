@@ -30,6 +30,9 @@ pub struct GeneratedTables {
     pub window_f32: Vec<f32>,
     /// Window, Q15.
     pub window_q15: Vec<i16>,
+    /// Window, Q31 (the 32-bit fixed path: a Q15 window's rounding leaks a
+    /// strong low-frequency component into weak high bands).
+    pub window_q31: Vec<i32>,
     /// Sparse spans.
     pub spans: Vec<BinSpan>,
     /// Sparse weights, f32.
@@ -116,6 +119,13 @@ fn q15_round(v: f64) -> i16 {
     (v * Q15_ONE).round().clamp(-32768.0, 32767.0) as i16
 }
 
+/// Q31 with 1.0 as `i32::MAX`.
+fn q31_round(v: f64) -> i32 {
+    (v * 2f64.powi(31))
+        .round()
+        .clamp(i32::MIN as f64, i32::MAX as f64) as i32
+}
+
 fn max_abs_diff(a: impl Iterator<Item = f64>, b: impl Iterator<Item = f64>) -> f64 {
     a.zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max)
 }
@@ -128,6 +138,7 @@ impl GeneratedTables {
 
         let window_f32: Vec<f32> = design.window.iter().map(|&w| w as f32).collect();
         let window_q15: Vec<i16> = design.window.iter().map(|&w| q15_round(w)).collect();
+        let window_q31: Vec<i32> = design.window.iter().map(|&w| q31_round(w)).collect();
         report.window_q15 = max_abs_diff(
             window_q15.iter().map(|&q| q as f64 / Q15_ONE),
             design.window.iter().copied(),
@@ -198,13 +209,7 @@ impl GeneratedTables {
         let cosine =
             |j: usize| (2.0 * std::f64::consts::PI * j as f64 / config.fft_points as f64).cos();
         let twiddles_q15 = (0..=quarter).map(|j| q15_round(cosine(j))).collect();
-        let twiddles_q31 = (0..=quarter)
-            .map(|j| {
-                (cosine(j) * 2f64.powi(31))
-                    .round()
-                    .clamp(i32::MIN as f64, i32::MAX as f64) as i32
-            })
-            .collect();
+        let twiddles_q31 = (0..=quarter).map(|j| q31_round(cosine(j))).collect();
 
         GeneratedTables {
             config: *config,
@@ -214,6 +219,7 @@ impl GeneratedTables {
             design,
             window_f32,
             window_q15,
+            window_q31,
             spans,
             sparse_f32,
             sparse_q15,
@@ -232,6 +238,7 @@ impl GeneratedTables {
             table: self.view_q15(form),
             twiddles_q15: &self.twiddles_q15,
             twiddles_q31: &self.twiddles_q31,
+            window_q31: &self.window_q31,
             params: self.fixed_params?,
         })
     }

@@ -27,6 +27,7 @@ pub mod cli;
 pub mod commands;
 pub mod compare;
 pub mod config_source;
+pub mod corpus;
 pub mod design;
 pub mod emit;
 pub mod generate;

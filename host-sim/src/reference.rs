@@ -182,6 +182,50 @@ impl Reference {
         frames
     }
 
+    /// Per band, in output units: the value that the rounding noise of a
+    /// 16-bit input alone gives the band (white noise of variance
+    /// `LSB²/12`, LSB = 2^-15 of full scale: Bennett 1948, Widrow & Kollár
+    /// 2008), through the configuration's DC removal and pre-emphasis, the
+    /// window (`σ²·Σw²` per bin) and the band's weights; for a magnitude
+    /// spectrum the mean of a Rayleigh magnitude, `√(π·P)/2`. A band below
+    /// it carries nothing a 16-bit source can represent.
+    pub fn input_noise_floor(&self) -> Vec<f64> {
+        let c = &self.config;
+        let n = c.fft_points as usize;
+        let bins = n / 2 + 1;
+        let lsb = 2f64.powi(-15);
+        let variance = lsb * lsb / 12.0;
+        let window_energy: f64 = self.window.iter().map(|w| w * w).sum();
+        let per_bin: Vec<f64> = (0..bins)
+            .map(|k| {
+                let z = Complex64::from_polar(1.0, -2.0 * PI * k as f64 / n as f64); // e^{-jω}
+                let mut h2 = 1.0;
+                if let Some(p) = c.dc_removal_pole {
+                    h2 *= ((1.0 - z) / (1.0 - p as f64 * z)).norm_sqr();
+                }
+                if let Some(a) = c.pre_emphasis {
+                    h2 *= (1.0 - a as f64 * z).norm_sqr();
+                }
+                let power = variance * window_energy * h2;
+                match c.spectrum {
+                    SpectrumKind::Power => power,
+                    SpectrumKind::Magnitude => (PI * power).sqrt() / 2.0,
+                }
+            })
+            .collect();
+        let floor = 10f64.powf(c.floor_db as f64 / 10.0);
+        self.matrix
+            .chunks(bins)
+            .map(|weights| {
+                let e: f64 = weights.iter().zip(&per_bin).map(|(w, s)| w * s).sum();
+                match c.log {
+                    LogKind::Decibel => 10.0 * e.max(floor).log10(),
+                    LogKind::Natural => e.max(floor).ln(),
+                }
+            })
+            .collect()
+    }
+
     fn condition(&self, x: &[f64]) -> Vec<f64> {
         let c = &self.config;
         let mut y = x.to_vec();

@@ -135,8 +135,9 @@ pub fn sweep_arith(
             let samples = Samples::I16(signal.samples);
             let core = run_core(arith, config, loaded.core_tables(arith, form)?, &samples, 0)?;
             let refs = reference.run(&samples.to_f64());
+            let resolution = reference.input_noise_floor();
             for (i, t) in arith.tolerances().iter().enumerate() {
-                let c = compare(&core, &refs, config.log, t.range_db);
+                let c = compare(&core, &refs, config, t.range_db, Some(&resolution));
                 for row in &c.error_map {
                     for (b, &e) in row.iter().enumerate() {
                         if !e.is_nan() {

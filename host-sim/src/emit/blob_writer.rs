@@ -106,6 +106,7 @@ pub fn sections(tables: &GeneratedTables, contents: BlobContents) -> Vec<(Sectio
     if let (true, Some(p)) = (contents.q15, &tables.fixed_params) {
         out.push((SectionKind::TwiddlesQ15, bytes_of(&tables.twiddles_q15)));
         out.push((SectionKind::TwiddlesQ31, bytes_of(&tables.twiddles_q31)));
+        out.push((SectionKind::WindowQ31, bytes_of(&tables.window_q31)));
         out.push((SectionKind::FixedParams, bytes_of(&p.to_words())));
     }
     out

@@ -77,6 +77,14 @@ pub fn c_header(tables: &GeneratedTables, prefix: &str, command: &str) -> String
         12,
         |v| v.to_string(),
     );
+    array(
+        &mut s,
+        "int32_t",
+        &format!("{prefix}_window_q31"),
+        &tables.window_q31,
+        8,
+        |v| v.to_string(),
+    );
     let _ = writeln!(
         s,
         "/* Per band: first bin, bin count; weights follow band after band. */"

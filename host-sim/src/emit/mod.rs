@@ -98,6 +98,8 @@ pub struct PartSizes {
     pub twiddles_q15: usize,
     /// Quarter-wave twiddles, Q31 (for the 32-bit integer FFT).
     pub twiddles_q31: usize,
+    /// Window, Q31 (for the 32-bit fixed path).
+    pub window_q31: usize,
 }
 
 impl PartSizes {
@@ -118,6 +120,7 @@ impl PartSizes {
             dense_f32: c.bands as usize * c.spectrum_bins() * 4,
             twiddles_q15: tables.twiddles_q15.len() * 2,
             twiddles_q31: tables.twiddles_q31.len() * 4,
+            window_q31: tables.window_q31.len() * 4,
         }
     }
 
@@ -234,6 +237,7 @@ pub fn size_report(tables: &GeneratedTables, name: &str, blob_bytes: Option<usiz
         p.twiddles_q31,
         p.twiddles_q15
     );
+    let _ = writeln!(s, "  {:<34} {:>10}", "fixed32 window (q31)", p.window_q31);
     if tables.fixed_params.is_none() {
         let _ = writeln!(
             s,

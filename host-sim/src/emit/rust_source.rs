@@ -110,6 +110,9 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
     array(&mut s, "WINDOW_Q15", "i16", &tables.window_q15, 12, |v| {
         v.to_string()
     });
+    array(&mut s, "WINDOW_Q31", "i32", &tables.window_q31, 8, |v| {
+        v.to_string()
+    });
     array(&mut s, "SPARSE_SPANS", "[u16; 2]", &tables.spans, 8, |v| {
         format!("[{}, {}]", v[0], v[1])
     });
@@ -224,8 +227,35 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
             let _ = writeln!(s, "    table: TABLE_Q15_{name},");
             let _ = writeln!(s, "    twiddles_q15: &TWIDDLES_Q15,");
             let _ = writeln!(s, "    twiddles_q31: &TWIDDLES_Q31,");
+            let _ = writeln!(s, "    window_q31: &WINDOW_Q31,");
             let _ = writeln!(s, "    params: FIXED_PARAMS,");
             let _ = writeln!(s, "}};");
+            for (precision, q15, q31) in [
+                ("16", "&TWIDDLES_Q15", "&[]"),
+                ("32", "&[]", "&TWIDDLES_Q31"),
+            ] {
+                let window = if precision == "32" {
+                    "&WINDOW_Q31"
+                } else {
+                    "&[]"
+                };
+                let _ = writeln!(s);
+                let _ = writeln!(
+                    s,
+                    "/// Fixed-point tables for {precision}-bit data only, {} filterbank (a board links only these).",
+                    name.to_lowercase()
+                );
+                let _ = writeln!(
+                    s,
+                    "pub static FIXED{precision}_{name}: stapes_core::fixed_tables::FixedTables<'static> = stapes_core::fixed_tables::FixedTables {{"
+                );
+                let _ = writeln!(s, "    table: TABLE_Q15_{name},");
+                let _ = writeln!(s, "    twiddles_q15: {q15},");
+                let _ = writeln!(s, "    twiddles_q31: {q31},");
+                let _ = writeln!(s, "    window_q31: {window},");
+                let _ = writeln!(s, "    params: FIXED_PARAMS,");
+                let _ = writeln!(s, "}};");
+            }
         }
     }
     for (ty, suffix) in [("f32", "F32"), ("i16", "Q15")] {
