@@ -126,6 +126,14 @@ pub fn reference_matrix(c: &FeatureConfig) -> Vec<f64> {
     m
 }
 
+/// The output's log of a band energy, with the floor.
+fn log_of(log: LogKind, e: f64, floor: f64) -> f64 {
+    match log {
+        LogKind::Decibel => 10.0 * e.max(floor).log10(),
+        LogKind::Natural => e.max(floor).ln(),
+    }
+}
+
 impl Reference {
     /// A reference for `config` (validated).
     pub fn new(config: &FeatureConfig) -> Reference {
@@ -169,11 +177,11 @@ impl Reference {
                 .matrix
                 .chunks(bins)
                 .map(|weights| {
-                    let e: f64 = weights.iter().zip(&spectrum).map(|(w, s)| w * s).sum();
-                    match c.log {
-                        LogKind::Decibel => 10.0 * e.max(floor).log10(),
-                        LogKind::Natural => e.max(floor).ln(),
-                    }
+                    log_of(
+                        c.log,
+                        weights.iter().zip(&spectrum).map(|(w, s)| w * s).sum(),
+                        floor,
+                    )
                 })
                 .collect();
             frames.push(row);
@@ -217,11 +225,11 @@ impl Reference {
         self.matrix
             .chunks(bins)
             .map(|weights| {
-                let e: f64 = weights.iter().zip(&per_bin).map(|(w, s)| w * s).sum();
-                match c.log {
-                    LogKind::Decibel => 10.0 * e.max(floor).log10(),
-                    LogKind::Natural => e.max(floor).ln(),
-                }
+                log_of(
+                    c.log,
+                    weights.iter().zip(&per_bin).map(|(w, s)| w * s).sum(),
+                    floor,
+                )
             })
             .collect()
     }

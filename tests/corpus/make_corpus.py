@@ -69,14 +69,8 @@ CLIPS_PER_RATE = 168
 
 
 def write_wav_i16(path, rate, samples):
-    ints = [max(-32768, min(32767, int(round(s * 32768.0)))) for s in samples]
-    tmp = path + ".part"
-    with wave.open(tmp, "wb") as w:
-        w.setnchannels(1)
-        w.setsampwidth(2)
-        w.setframerate(rate)
-        w.writeframes(struct.pack("<%dh" % len(ints), *ints))
-    os.replace(tmp, path)
+    """Full-scale floats, rounded to 16 bits."""
+    write_wav_raw(path, rate, [max(-32768, min(32767, int(round(s * 32768.0)))) for s in samples])
 
 
 def write_wav_raw(path, rate, ints):
