@@ -214,40 +214,41 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
             } else {
                 "COMPACT"
             };
-            let _ = writeln!(s);
-            let _ = writeln!(
-                s,
-                "/// Fixed-point tables, {} filterbank.",
-                name.to_lowercase()
-            );
-            let _ = writeln!(
-                s,
-                "pub static FIXED_{name}: stapes_core::fixed_tables::FixedTables<'static> = stapes_core::fixed_tables::FixedTables {{"
-            );
-            let _ = writeln!(s, "    table: TABLE_Q15_{name},");
-            let _ = writeln!(s, "    twiddles_q15: &TWIDDLES_Q15,");
-            let _ = writeln!(s, "    twiddles_q31: &TWIDDLES_Q31,");
-            let _ = writeln!(s, "    window_q31: &WINDOW_Q31,");
-            let _ = writeln!(s, "    params: FIXED_PARAMS,");
-            let _ = writeln!(s, "}};");
-            for (precision, q15, q31) in [
-                ("16", "&TWIDDLES_Q15", "&[]"),
-                ("32", "&[]", "&TWIDDLES_Q31"),
+            let lower = name.to_lowercase();
+            // Both precisions' arrays, then each precision's own only (a board
+            // links just what it reads).
+            for (static_name, doc, q15, q31, window) in [
+                (
+                    format!("FIXED_{name}"),
+                    format!("Fixed-point tables, {lower} filterbank."),
+                    "&TWIDDLES_Q15",
+                    "&TWIDDLES_Q31",
+                    "&WINDOW_Q31",
+                ),
+                (
+                    format!("FIXED16_{name}"),
+                    format!(
+                        "Fixed-point tables for 16-bit data only, {lower} filterbank (a board links only these)."
+                    ),
+                    "&TWIDDLES_Q15",
+                    "&[]",
+                    "&[]",
+                ),
+                (
+                    format!("FIXED32_{name}"),
+                    format!(
+                        "Fixed-point tables for 32-bit data only, {lower} filterbank (a board links only these)."
+                    ),
+                    "&[]",
+                    "&TWIDDLES_Q31",
+                    "&WINDOW_Q31",
+                ),
             ] {
-                let window = if precision == "32" {
-                    "&WINDOW_Q31"
-                } else {
-                    "&[]"
-                };
                 let _ = writeln!(s);
+                let _ = writeln!(s, "/// {doc}");
                 let _ = writeln!(
                     s,
-                    "/// Fixed-point tables for {precision}-bit data only, {} filterbank (a board links only these).",
-                    name.to_lowercase()
-                );
-                let _ = writeln!(
-                    s,
-                    "pub static FIXED{precision}_{name}: stapes_core::fixed_tables::FixedTables<'static> = stapes_core::fixed_tables::FixedTables {{"
+                    "pub static {static_name}: stapes_core::fixed_tables::FixedTables<'static> = stapes_core::fixed_tables::FixedTables {{"
                 );
                 let _ = writeln!(s, "    table: TABLE_Q15_{name},");
                 let _ = writeln!(s, "    twiddles_q15: {q15},");
