@@ -44,8 +44,13 @@ fn snr_db(out: &[f64], e: i32, want: &[Complex64]) -> f64 {
 }
 
 /// Stated figures: the 16-bit FFT keeps at least 66 dB SNR and the 32-bit one
-/// at least 160 dB on white noise and a tone, at full scale and at −40 dB once
+/// at least 140 dB on white noise and a tone, at full scale and at −40 dB once
 /// normalised as the front end does, for every FFT size of the shipped presets.
+/// (Measured: 66.0–74.1 dB and 141.4–150.0 dB. The 32-bit figure was 160 dB
+/// while every stage was computed twice for exact shifts on 31-bit data; the
+/// one-pass FFT keeps 29-bit data, its guard bits, and shifts from a bound.
+/// The front end's own tolerances, checked on the speech corpus, are
+/// unchanged.)
 #[test]
 fn integer_fft_snr_against_rustfft() {
     let mut r = rng(50);
@@ -106,7 +111,7 @@ fn integer_fft_snr_against_rustfft() {
                     "N = {n}, level {level}: fixed16 SNR {s16:.1} dB, fixed32 SNR {s32:.1} dB"
                 );
                 assert!(s16 >= 66.0, "N = {n}: fixed16 SNR {s16:.1} dB");
-                assert!(s32 >= 160.0, "N = {n}: fixed32 SNR {s32:.1} dB");
+                assert!(s32 >= 140.0, "N = {n}: fixed32 SNR {s32:.1} dB");
             }
         }
     }

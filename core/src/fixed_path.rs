@@ -8,8 +8,8 @@
 //!   from the filter state saved at the frame's first sample, in `i32` with
 //!   13 extra fraction bits (`i64` products), so the stored stream stays exact.
 //! * **Normalisation before windowing**: the conditioned frame is shifted so
-//!   its largest sample uses the data type's full width (15 bits for
-//!   [`Fixed16`](crate::int_fft::Fixed16), 31 for [`Fixed32`](crate::int_fft::Fixed32)); quiet frames keep their precision.
+//!   its largest sample uses the FFT's full range (15 bits for
+//!   [`Fixed16`](crate::int_fft::Fixed16), 29 for [`Fixed32`](crate::int_fft::Fixed32)); quiet frames keep their precision.
 //! * **Window**: Q15, rounded product.
 //! * **FFT**: block floating point ([`crate::int_fft`]), exponent tracked.
 //! * **Spectrum**: `re² + im²` exactly (`u32` for 16-bit data; `u64` shifted
@@ -45,7 +45,7 @@ use core::marker::PhantomData;
 
 use fixed::types::I8F8;
 
-use crate::config::{FeatureConfig, SpectrumKind};
+use crate::config::{FeatureConfig, SpectrumKind, WindowShape};
 use crate::error::FrontEndError;
 use crate::fixed_tables::FixedTables;
 use crate::frame::Frame;
@@ -122,7 +122,7 @@ impl IntConditioner {
 
 /// Conversions between raw samples, the data type and wide values.
 pub trait FrameData: BfpSample {
-    /// Data bits available for a normalised sample (15 or 31).
+    /// Data bits available for a normalised sample and every FFT value (15 or 29).
     const SAMPLE_BITS: u32;
     /// A raw sample stored in the frame buffer.
     fn from_raw(x: i16) -> Self;
@@ -139,10 +139,53 @@ pub trait FrameData: BfpSample {
     fn mul_q15(self, w: i16) -> Self;
     /// `|re|² + |im|²` as `u64`, shifted right by `shift`.
     fn power(re: Self, im: Self, shift: u32) -> u64;
+    /// `⌊√(re² + im²)⌋`, shifted right by `shift`.
+    fn magnitude(re: Self, im: Self, shift: u32) -> u64;
+    /// Whether a conditioned sample (13 extra fraction bits) fits the type,
+    /// so that pass 2 can read it back instead of recomputing it.
+    const HOLDS_CONDITIONED: bool;
+    /// Whether the frame's offset is taken out before the FFT where the
+    /// window allows ([`offset_spectrum`]): 16-bit data only (32-bit data
+    /// have the range to keep it).
+    const OFFSET_COMPENSATION: bool;
+    /// A value known to fit the type.
+    fn from_i32(v: i32) -> Self;
+    /// The value as `i32`.
+    fn get_i32(self) -> i32;
+    /// Stores a bin value (a power `< 2^32` for 16-bit data, `< 2^64` for
+    /// 32-bit data) in a pair of slots.
+    fn store_bin(slot: &mut [Self], v: u64);
+    /// The bin value back.
+    fn load_bin(slot: &[Self]) -> u64;
 }
 
 impl FrameData for i16 {
     const SAMPLE_BITS: u32 = 15;
+    const HOLDS_CONDITIONED: bool = false;
+    const OFFSET_COMPENSATION: bool = true;
+    #[inline(always)]
+    fn from_i32(v: i32) -> i16 {
+        v as i16
+    }
+    #[inline(always)]
+    fn get_i32(self) -> i32 {
+        self as i32
+    }
+    #[inline(always)]
+    fn magnitude(re: i16, im: i16, shift: u32) -> u64 {
+        let (re, im) = (re as i32, im as i32);
+        (isqrt_u32((re * re) as u32 + (im * im) as u32) >> shift) as u64
+    }
+    #[inline(always)]
+    fn store_bin(slot: &mut [i16], v: u64) {
+        // Powers of 16-bit data are below 2^31 (and magnitudes below 2^16).
+        slot[0] = v as u16 as i16;
+        slot[1] = (v >> 16) as u16 as i16;
+    }
+    #[inline(always)]
+    fn load_bin(slot: &[i16]) -> u64 {
+        (slot[0] as u16 as u32 | (slot[1] as u16 as u32) << 16) as u64
+    }
     #[inline]
     fn from_raw(x: i16) -> i16 {
         x
@@ -163,21 +206,46 @@ impl FrameData for i16 {
     fn to_bits_u32(self) -> u32 {
         self as u16 as u32
     }
-    #[inline]
+    #[inline(always)]
     fn mul_q15(self, w: i16) -> i16 {
-        // ≤ 2^30 in magnitude: exact in i32.
-        ((self as i32 * w as i32 + (1 << 14)) >> 15).clamp(i16::MIN as i32, i16::MAX as i32) as i16
+        // ≤ 2^30 in magnitude: exact in i32; with |w| ≤ 32767 the rounded
+        // result lies within ±32767 (no clamp needed).
+        ((self as i32 * w as i32 + (1 << 14)) >> 15) as i16
     }
-    #[inline]
+    #[inline(always)]
     fn power(re: i16, im: i16, shift: u32) -> u64 {
         let (re, im) = (re as i32, im as i32);
         // ≤ 2^31: exact in u32.
-        (((re * re) as u32 + (im * im) as u32) as u64) >> shift
+        (((re * re) as u32 + (im * im) as u32) >> shift) as u64
     }
 }
 
 impl FrameData for i32 {
-    const SAMPLE_BITS: u32 = 31;
+    // The FFT keeps 32-bit data within ±(2^29 − 1) (its guard bits).
+    const SAMPLE_BITS: u32 = 29;
+    const HOLDS_CONDITIONED: bool = true;
+    const OFFSET_COMPENSATION: bool = false;
+    #[inline(always)]
+    fn from_i32(v: i32) -> i32 {
+        v
+    }
+    #[inline(always)]
+    fn get_i32(self) -> i32 {
+        self
+    }
+    #[inline(always)]
+    fn magnitude(re: i32, im: i32, shift: u32) -> u64 {
+        isqrt_u64(Self::power(re, im, 0)) >> shift
+    }
+    #[inline(always)]
+    fn store_bin(slot: &mut [i32], v: u64) {
+        slot[0] = v as u32 as i32;
+        slot[1] = (v >> 32) as u32 as i32;
+    }
+    #[inline(always)]
+    fn load_bin(slot: &[i32]) -> u64 {
+        slot[0] as u32 as u64 | (slot[1] as u32 as u64) << 32
+    }
     #[inline]
     fn from_raw(x: i16) -> i32 {
         x as i32
@@ -208,6 +276,26 @@ impl FrameData for i32 {
         // Each square ≤ 2^62, their sum ≤ 2^63: exact in u64.
         ((re * re) as u64 + (im * im) as u64) >> shift
     }
+}
+
+/// Integer square root (floor) of a `u32`.
+#[inline]
+pub fn isqrt_u32(v: u32) -> u32 {
+    if v == 0 {
+        return 0;
+    }
+    let (mut rem, mut root) = (v, 0u32);
+    let mut bit = 1u32 << ((31 - v.leading_zeros()) & !1);
+    while bit != 0 {
+        if rem >= root + bit {
+            rem -= root + bit;
+            root = (root >> 1) + bit;
+        } else {
+            root >>= 1;
+        }
+        bit >>= 2;
+    }
+    root
 }
 
 /// Integer square root (floor) of a `u64`.
@@ -257,6 +345,14 @@ pub struct FixedFrontEnd<
     out: [I8F8; BANDS],
     fraction_bits: u32,
     spectrum_shift: u32,
+    /// `W(0)` and `W(1)` of the window's DFT in Q16 when the frame's offset is
+    /// taken out before the FFT and added back in the spectrum (see
+    /// [`offset_spectrum`]).
+    offset_spectrum: Option<(i64, i64)>,
+    /// The lowest bin any band reads.
+    lowest_bin: usize,
+    /// `Σ w` of the window in Q15 (offset compensation's weighted mean).
+    window_sum: i64,
     next_index: u64,
     precision: PhantomData<P>,
 }
@@ -273,6 +369,8 @@ pub trait TwiddlesFor: Precision {
     fn window<'a>(tables: &FixedTables<'a>) -> &'a [Self::WindowCoef];
     /// `round(x · w)` for a normalised sample and a window coefficient, saturated.
     fn apply_window(x: Self::Data, w: Self::WindowCoef) -> Self::Data;
+    /// The coefficient in Q15.
+    fn coef_q15(w: Self::WindowCoef) -> i32;
 }
 
 impl TwiddlesFor for crate::int_fft::Fixed16 {
@@ -287,6 +385,10 @@ impl TwiddlesFor for crate::int_fft::Fixed16 {
     #[inline(always)]
     fn apply_window(x: i16, w: i16) -> i16 {
         x.mul_q15(w)
+    }
+    #[inline(always)]
+    fn coef_q15(w: i16) -> i32 {
+        w as i32
     }
 }
 
@@ -303,6 +405,54 @@ impl TwiddlesFor for crate::int_fft::Fixed32 {
     fn apply_window(x: i32, w: i32) -> i32 {
         // |x| < 2^31, |w| < 2^31: the product fits i64; rounded once.
         ((x as i64 * w as i64 + (1 << 30)) >> 31) as i32
+    }
+    #[inline(always)]
+    fn coef_q15(w: i32) -> i32 {
+        w >> 16
+    }
+}
+
+/// `W(0)` and `W(1)` (Q16) of the DFT of a window whose spectrum has only
+/// those bins (and their mirror `W(N − 1) = W(1)`): a periodic raised cosine
+/// or a rectangle filling the FFT. `None` for every other window.
+///
+/// For such a window the frame's offset `d` can be taken out before the
+/// FFT, where 16-bit data would otherwise spend their range on it (speech on
+/// a 25 % DC offset, or a constant input, loses most of its bits), and added
+/// back exactly in the spectrum: `DFT((x − d)·w) + d·W(k)`.
+pub fn offset_spectrum(config: &FeatureConfig) -> Option<(i64, i64)> {
+    let n = config.fft_points as i64;
+    if config.window_samples as i64 != n {
+        return None;
+    }
+    // a0 − a1·cos(2πn/N): W(0) = a0·N, W(±1) = −a1·N/2 (common practice).
+    match config.window {
+        WindowShape::HannPeriodic => Some((n << 15, -(n << 14))),
+        WindowShape::HammingPeriodic => {
+            Some(((n * 54 * 65536 + 50) / 100, -((n * 23 * 65536 + 50) / 100)))
+        }
+        WindowShape::Rectangular => Some((n << 16, 0)),
+        WindowShape::Hann | WindowShape::Hamming => None,
+    }
+}
+
+/// The lowest bin with a nonzero weight in any band.
+fn lowest_bin(filterbank: &Filterbank<'_, i16>) -> usize {
+    match *filterbank {
+        Filterbank::Sparse { spans, weights } => {
+            let mut offset = 0;
+            let mut lowest = usize::MAX;
+            for &[first, count] in spans {
+                let ws = &weights[offset..offset + count as usize];
+                if let Some(j) = ws.iter().position(|&w| w > 0) {
+                    lowest = lowest.min(first as usize + j);
+                }
+                offset += count as usize;
+            }
+            lowest
+        }
+        // The first segment is the lowest band's rising side.
+        Filterbank::Compact { segment_starts, .. } => segment_starts[0] as usize,
     }
 }
 
@@ -389,6 +539,16 @@ where
                 0
             },
             spectrum_shift,
+            offset_spectrum: if <P::Data as FrameData>::OFFSET_COMPENSATION {
+                offset_spectrum(&config)
+            } else {
+                None
+            },
+            lowest_bin: lowest_bin(&tables.table.filterbank),
+            window_sum: P::window(&tables)[..config.window_samples as usize]
+                .iter()
+                .map(|&c| P::coef_q15(c) as i64)
+                .sum(),
             next_index: 0,
             precision: PhantomData,
         })
@@ -444,27 +604,69 @@ where
         self.framer.begin_frame(<P::Data as FrameData>::to_raw);
         let buf = &mut self.framer.buffer_mut()[..n];
 
-        // Pass 1: largest conditioned sample, and the filter state at the next frame's start.
-        let mut cond = self.frame_start;
-        let mut next_start = cond;
-        let mut max = 0u32;
-        let conditioned = |c: &mut IntConditioner, raw: i16, fraction_bits: u32| -> i32 {
-            if fraction_bits == 0 {
-                raw as i32
+        // Pass 1: the OR of the conditioned samples' magnitudes (its bit length
+        // is the largest one's), and the filter state at the next frame's start.
+        // 32-bit data keep the conditioned samples in place for pass 2.
+        let start = self.frame_start;
+        let conditioning = self.fraction_bits != 0;
+        let keep = <P::Data as FrameData>::HOLDS_CONDITIONED;
+        let offset_terms = self.offset_spectrum;
+        // With offset compensation: the range [lo, hi] and the window-weighted
+        // sum whose mean is the offset (weighted, so that the offset leaves no
+        // DC in the windowed frame). Conditioned samples enter the sum 14
+        // bits down, so each product fits i32.
+        let mean_shift = if conditioning { 14 } else { 0 };
+        let (mut lo, mut hi, mut weighted) = (i32::MAX, i32::MIN, 0i64);
+        let mut mags = 0u32;
+        let window = &self.window[..w];
+        let mut observe = |c: i32, win: P::WindowCoef| {
+            if offset_terms.is_some() {
+                lo = lo.min(c);
+                hi = hi.max(c);
+                weighted += ((c >> mean_shift) * P::coef_q15(win)) as i64;
             } else {
-                c.step(raw)
+                mags |= c.unsigned_abs();
             }
         };
-        for (i, v) in buf[..w].iter().enumerate() {
-            max = max.max(conditioned(&mut cond, v.to_raw(), self.fraction_bits).unsigned_abs());
-            if i + 1 == hop {
-                next_start = cond;
+        if conditioning {
+            let mut cond = start;
+            for (i, (v, &win)) in buf[..w].iter_mut().zip(window).enumerate() {
+                if i == hop {
+                    self.frame_start = cond;
+                }
+                let c = cond.step(v.to_raw());
+                observe(c, win);
+                if keep {
+                    *v = <P::Data as FrameData>::from_i32(c);
+                }
+            }
+            if hop >= w {
+                self.frame_start = cond;
+            }
+        } else {
+            for (v, &win) in buf[..w].iter().zip(window) {
+                observe(v.to_raw() as i32, win);
             }
         }
-        let start = self.frame_start;
-        self.frame_start = next_start;
+        let offset = if offset_terms.is_some() && hi >= lo {
+            // round(Σ c·w / Σ w), clamped into [lo, hi] (so |c − d| ≤ hi − lo < 2^30).
+            // Any offset is exact once added back; this one only needs to be
+            // near the mean, so both sides are brought below 2^30 and divided
+            // in 32 bits (no 64-bit division, a library call on Cortex-M).
+            let top = 64 - weighted.unsigned_abs().leading_zeros();
+            let k = top.saturating_sub(30);
+            let num = (weighted >> k) as i32;
+            let den = ((self.window_sum >> k) as i32).max(1);
+            let mean = num / den;
+            let d = ((mean as i64) << mean_shift).clamp(lo as i64, hi as i64) as i32;
+            mags = (hi - d).max(d - lo) as u32;
+            d
+        } else {
+            0
+        };
+        let silent = mags == 0 && offset == 0;
 
-        if max == 0 {
+        if silent {
             // Digital silence: every band is exactly the floor.
             self.out[..bands].fill(floor);
             self.framer.end_frame(<P::Data as FrameData>::from_raw);
@@ -474,67 +676,127 @@ where
             return;
         }
 
-        // Pass 2: normalise (shift by the leading zeros), window, store.
-        let bits = 32 - max.leading_zeros();
+        // Pass 2: normalise (shift by the leading zeros), window, store. Every
+        // |c| < 2^bits, so c << norm < 2^SAMPLE_BITS fits the FFT's range; the
+        // window product cannot overflow either (|w| < 1).
+        let bits = 32 - mags.leading_zeros();
         let norm = <P::Data as FrameData>::SAMPLE_BITS as i32 - bits as i32;
-        let mut cond = start;
-        for (v, &win) in buf[..w].iter_mut().zip(self.window) {
-            let c = conditioned(&mut cond, v.to_raw(), self.fraction_bits);
-            // |c| ≤ max < 2^bits, so c << norm < 2^SAMPLE_BITS fits i32.
-            let x = if norm >= 0 {
-                c << norm
-            } else {
-                (c + (1 << (-norm - 1))) >> -norm
-            };
-            *v = P::apply_window(<P::Data as FrameData>::from_i64_saturating(x as i64), win);
+        let (up, down) = if norm >= 0 {
+            (norm as u32, 0)
+        } else {
+            (0, (-norm) as u32)
+        };
+        let round = (1i32 << down) >> 1;
+        let place =
+            |c: i32| <P::Data as FrameData>::from_i32((((c - offset) + round) >> down) << up);
+        if !conditioning {
+            for (v, &win) in buf[..w].iter_mut().zip(window) {
+                *v = P::apply_window(place(v.to_raw() as i32), win);
+            }
+        } else if keep {
+            for (v, &win) in buf[..w].iter_mut().zip(window) {
+                *v = P::apply_window(place(v.get_i32()), win);
+            }
+        } else {
+            let mut cond = start;
+            for (v, &win) in buf[..w].iter_mut().zip(window) {
+                *v = P::apply_window(place(cond.step(v.to_raw())), win);
+            }
         }
         buf[w..].fill(P::Data::default());
         probe.mark(Stage::Window);
 
         let fft_exponent = real_fft::<P>(buf, self.twiddles);
         probe.mark(Stage::Fft);
-        probe.mark(Stage::Spectrum);
         // True spectrum = X_int · 2^e_x in full-scale units.
         let e_x = fft_exponent - 15 - self.fraction_bits as i32 - norm;
         let shift = self.spectrum_shift;
         let half = n / 2;
         let magnitude = self.config.spectrum == SpectrumKind::Magnitude;
-        // Bin k sits at buf[2k], buf[2k + 1]; X[0] and X[N/2] (real) at buf[0], buf[1].
-        let slot = |k: usize| {
-            if k == 0 {
-                0
-            } else if k == half {
-                1
+        // Spectrum, once per bin, in place: bin k (1 ≤ k < N/2) replaces X[k]
+        // at buf[2k], buf[2k + 1]; bin 0 replaces X[0], X[N/2] (both real, at
+        // buf[0], buf[1]); bin N/2 is kept aside.
+        let value_of = |re: P::Data, im: P::Data| -> u64 {
+            if magnitude {
+                <P::Data as FrameData>::magnitude(re, im, shift)
             } else {
-                2 * k
+                <P::Data as FrameData>::power(re, im, shift)
             }
         };
-        if magnitude {
-            // Once per bin, in place: |X[k]| replaces the real part, as raw bits.
-            for k in 0..=half {
-                let (re, im) = if k == 0 || k == half {
-                    (buf[slot(k)], P::Data::default())
+        let zero = P::Data::default();
+        let last = value_of(buf[1], zero);
+        // Offset compensation: bins 0 and 1 get d·W(k) back, in i64 (|D| < 2^55),
+        // their values in u128; if they outgrow the other bins' 32 bits, the
+        // whole frame's values are shifted right by `frame_shift`.
+        let mut frame_shift = 0u32;
+        let mut offset_bins = None;
+        if let (Some((w0, w1)), true) = (offset_terms, offset != 0) {
+            // D = d·W·2^(norm − 16 − e_f); norm ≤ 15 and e_f ≥ 0: a right shift.
+            let down = (16 + fft_exponent - norm) as u32;
+            let term = |wq: i64| {
+                let v = offset as i64 * wq;
+                (v + ((1i64 << down) >> 1)) >> down
+            };
+            let y0 = buf[0].get_i32() as i64 + term(w0);
+            let (y1r, y1i) = (buf[2].get_i32() as i64 + term(w1), buf[3].get_i32() as i64);
+            // Each as m·2^e: components brought below 2^31 (dropping bits
+            // 2^-31 below the value's top), so the squares' sum fits u64.
+            let as_scaled = |re: i64, im: i64| -> (u64, u32) {
+                let top = re.unsigned_abs() | im.unsigned_abs();
+                let t = (64 - top.leading_zeros()).saturating_sub(31);
+                let (r, i) = (re >> t, im >> t);
+                let p = (r * r) as u64 + (i * i) as u64;
+                if magnitude {
+                    (isqrt_u64(p), t)
                 } else {
-                    (buf[2 * k], buf[2 * k + 1])
-                };
-                let m = isqrt_u64(<P::Data as FrameData>::power(re, im, 0)) >> shift;
-                buf[slot(k)] = <P::Data as FrameData>::from_bits_u32(m as u32);
-            }
+                    (p, 2 * t)
+                }
+            };
+            // A bin no band reads does not count (bin 0 lies below most
+            // filterbanks' low edge; with it the offset would cost every band
+            // its precision).
+            let lowest = self.lowest_bin;
+            let (m0, e0) = if lowest > 0 { (0, 0) } else { as_scaled(y0, 0) };
+            let (m1, e1) = if lowest > 1 {
+                (0, 0)
+            } else {
+                as_scaled(y1r, y1i)
+            };
+            let bits = |m: u64, e: u32| (64 - m.leading_zeros() + e).saturating_sub(shift);
+            frame_shift = bits(m0, e0).max(bits(m1, e1)).saturating_sub(32);
+            let place = |m: u64, e: u32| {
+                let down = shift + frame_shift;
+                if down >= e {
+                    m >> (down - e)
+                } else {
+                    m << (e - down)
+                }
+            };
+            offset_bins = Some((place(m0, e0), place(m1, e1)));
         }
+        let last = last >> frame_shift;
+        let first = value_of(buf[0], zero) >> frame_shift;
+        <P::Data as FrameData>::store_bin(&mut buf[..2], first);
+        for pair in buf[2..].chunks_exact_mut(2) {
+            let v = value_of(pair[0], pair[1]) >> frame_shift;
+            <P::Data as FrameData>::store_bin(pair, v);
+        }
+        if let Some((v0, v1)) = offset_bins {
+            <P::Data as FrameData>::store_bin(&mut buf[..2], v0);
+            <P::Data as FrameData>::store_bin(&mut buf[2..4], v1);
+        }
+        probe.mark(Stage::Spectrum);
         let buf = &*buf;
         let value = |k: usize| -> u64 {
-            if magnitude {
-                return buf[slot(k)].to_bits_u32() as u64;
-            }
-            let (re, im) = if k == 0 || k == half {
-                (buf[slot(k)], P::Data::default())
+            if k == half {
+                last
             } else {
-                (buf[2 * k], buf[2 * k + 1])
-            };
-            <P::Data as FrameData>::power(re, im, shift)
+                <P::Data as FrameData>::load_bin(&buf[2 * k..2 * k + 2])
+            }
         };
         // Energy = acc · 2^energy_exponent (weights are Q15).
-        let energy_exponent = if magnitude { e_x } else { 2 * e_x } + shift as i32 - 15;
+        let energy_exponent =
+            if magnitude { e_x } else { 2 * e_x } + shift as i32 + frame_shift as i32 - 15;
 
         let out = &mut self.out[..bands];
         let gains = self.tables.table.band_gains;

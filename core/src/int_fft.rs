@@ -1,18 +1,35 @@
 //! The project's own integer real FFT with block floating point.
 //!
-//! An `N`-point real FFT runs as an `N/2`-point complex radix-2
-//! decimation-in-time FFT on the frame viewed as interleaved `(re, im)`
-//! pairs, followed by the split step that separates the even and odd
-//! samples' spectra. Data are `i16` ([`Fixed16`]: twiddles Q15) or `i32`
-//! ([`Fixed32`]: twiddles Q31).
+//! An `N`-point real FFT runs as an `N/2`-point complex decimation-in-time
+//! FFT on the frame viewed as interleaved `(re, im)` pairs, followed by the
+//! split step that separates the even and odd samples' spectra. Data are
+//! `i16` ([`Fixed16`]: twiddles Q15) or `i32` ([`Fixed32`]: twiddles Q31);
+//! every butterfly computes in `i32` (the split step of 32-bit data sums in
+//! `i64`).
 //!
-//! **Block floating point, exact shifts**: each stage (and the split) is
-//! computed twice. The first pass finds the largest output before rounding;
-//! the second writes the outputs shifted right by the fewest bits (0, 1 or 2)
-//! that keep that largest output in range, each output rounded once. The
-//! shifts add up to the frame's exponent. A quiet frame is never scaled down,
-//! and no value can overflow, so nothing wraps around (narrowing saturates
-//! all the same).
+//! **Passes**: after the bit-reversal permutation, the radix-2 levels run
+//! two at a time (radix 2², one read and one write of the buffer for two
+//! levels); when the number of levels is odd, the first level runs alone.
+//! The first pass needs no multiply (its twiddles are 1 and −i).
+//!
+//! **Block floating point, one pass per level, shifts from a bound**: every
+//! value stored in the buffer stays within `±LIMIT` (32767 for `i16`,
+//! `2^29 − 1` for `i32`, leaving the guard bits that let butterfly sums
+//! stay inside `i32`). Before each level, its shift (0 to 3 bits) is chosen
+//! from a bound `M` on the magnitudes `|z|` of its inputs: a level maps
+//! `(a, b)` to `a ± W·b`, so `|out| ≤ |a| + |b| ≤ 2M` (plus rounding), and
+//! the shift is the smallest that keeps `2M` within `LIMIT`. Each pass
+//! tracks what it wrote (the largest `re² + im²` of 16-bit data, the OR of
+//! the components of 32-bit data) and hands the next pass that tighter
+//! bound. So no output can overflow (no clamp anywhere), nothing is computed
+//! twice, and a quiet frame is never scaled down. The shifts add up to the
+//! frame's exponent.
+//!
+//! **Rounding**: twiddle products of 16-bit data keep 13 fraction bits;
+//! each level's outputs are rounded once when shifted.
+//! Products of 32-bit data are `round(a·b / 2^32)` (the Cortex-M4's
+//! `SMMULR`; on cores without it an exact four-product twin gives the same
+//! bits).
 //!
 //! **Output** (same packing as microfft's): `buf[0]` = `X[0]`, `buf[1]` =
 //! `X[N/2]` (both real), then `(re, im)` of `X[k]` at `buf[2k], buf[2k+1]`
@@ -29,83 +46,49 @@
 //! let mut x = [0i16; 16];
 //! x[0] = 8192; // an impulse: flat spectrum
 //! let exponent = real_fft::<Fixed16>(&mut x, &q);
-//! assert_eq!(exponent, 0);
-//! assert_eq!((x[0], x[1]), (8192, 8192));
-//! assert!(x[2..].chunks(2).all(|c| c == [8192, 0]));
+//! // The bound allows each level to double: the block is scaled down once.
+//! assert_eq!(exponent, 1);
+//! assert_eq!((x[0], x[1]), (4096, 4096));
+//! assert!(x[2..].chunks(2).all(|c| c == [4096, 0]));
 //! ```
-
-/// The integer type butterflies compute in: `i32` for 16-bit data (single
-/// cycle on every Cortex-M), `i64` for 32-bit data.
-pub trait WideInt:
-    Copy
-    + Ord
-    + core::fmt::Debug
-    + core::ops::Add<Output = Self>
-    + core::ops::Sub<Output = Self>
-    + core::ops::Neg<Output = Self>
-    + core::ops::Shl<u32, Output = Self>
-    + core::ops::Shr<u32, Output = Self>
-{
-    /// 0.
-    const ZERO: Self;
-    /// 1.
-    const ONE: Self;
-    /// `|self|`.
-    fn abs(self) -> Self;
-}
-
-impl WideInt for i32 {
-    const ZERO: i32 = 0;
-    const ONE: i32 = 1;
-    #[inline(always)]
-    fn abs(self) -> i32 {
-        i32::abs(self)
-    }
-}
-
-impl WideInt for i64 {
-    const ZERO: i64 = 0;
-    const ONE: i64 = 1;
-    #[inline(always)]
-    fn abs(self) -> i64 {
-        i64::abs(self)
-    }
-}
 
 /// A data type of the integer FFT.
 pub trait BfpSample: Copy + Default + core::fmt::Debug + 'static {
     /// Twiddle storage: Q15 `i16` or Q31 `i32`.
     type Twiddle: Copy + core::fmt::Debug + 'static;
-    /// The computing type.
-    type Wide: WideInt;
-    /// Fraction bits of unrounded stage outputs: 14 for `i16` (in `i32`),
-    /// 29 for `i32` (in `i64`). Chosen so that `a ± w·b` (at most
-    /// `2.42 · max`) cannot overflow; the twiddle product's dropped bits lie
-    /// far below an output LSB. The split step uses one bit fewer.
-    const WIDE_FRAC: u32;
-    /// Fraction bits of the twiddle format (15 or 31).
-    const TWIDDLE_FRAC: u32;
-    /// Largest value of the type, widened.
-    const MAX: Self::Wide;
-    /// Widens.
-    fn wide(self) -> Self::Wide;
-    /// `round(x · t / 2^drop)` for `|x| < 2^(bits + 1)` (a sum or
-    /// difference of two values of the type).
-    fn twiddle_product(x: Self::Wide, t: Self::Twiddle, drop: u32) -> Self::Wide;
+    /// Largest magnitude any level writes.
+    const LIMIT: u32;
+    /// Extra fraction bits of a level's sums before their one rounding.
+    const FRAC: u32;
+    /// The value as `i32`.
+    fn get(self) -> i32;
+    /// From `i32`; the caller's bound keeps `v` within `±LIMIT`.
+    fn put(v: i32) -> Self;
+    /// From `i32` in the type's range.
+    fn put_unchecked(v: i32) -> Self;
+    /// Largest component magnitude the first pass accepts (its sums of two
+    /// stay inside `i32`).
+    const FIRST_PASS_MAX: u32;
+    /// `W·x · 2^FRAC` for `W = c − i·s`, as `(re, im)`, for `|x|` components
+    /// within `±LIMIT`.
+    fn rotate(xr: i32, xi: i32, c: Self::Twiddle, s: Self::Twiddle) -> (i32, i32);
+    /// Twiddle 0.
+    const ZERO: Self::Twiddle;
+    /// A placeholder for twiddle 1 (never multiplied by).
+    const ONE: Self::Twiddle;
     /// Negates a twiddle.
     fn neg_twiddle(t: Self::Twiddle) -> Self::Twiddle;
-    /// Saturates a wide value into the type.
-    fn saturate(v: Self::Wide) -> Self;
-    /// `round(v / 2^shift)`, saturated to the type.
-    #[inline(always)]
-    fn narrow(v: Self::Wide, shift: u32) -> Self {
-        let rounded = if shift == 0 {
-            v
-        } else {
-            (v + (Self::Wide::ONE << (shift - 1))) >> shift
-        };
-        Self::saturate(rounded)
-    }
+    /// The split step's output `round((e·2^SPLIT_FRAC − t) / 2^(SPLIT_FRAC + 1 + shift))`.
+    fn split_out(e: i32, t: i32, shift: u32) -> Self;
+    /// Fraction bits of the split step's rotated values (see [`BfpSample::split_rotate`]).
+    const SPLIT_FRAC: u32;
+    /// Folds one complex output into a pass's running tracker (start: 0).
+    fn track(acc: u32, re: i32, im: i32) -> u32;
+    /// A bound on the magnitude `|z|` of every complex value tracked into `acc`.
+    fn magnitude_bound(acc: u32) -> u32;
+    /// The split step's `W·x · 2^SPLIT_FRAC`, for `|x|` components within
+    /// `±2·LIMIT` (differences of two values).
+    fn split_rotate(xr: i32, xi: i32, c: Self::Twiddle, s: Self::Twiddle) -> (i32, i32);
 }
 
 /// 16-bit data, Q15 twiddles: fast.
@@ -131,75 +114,213 @@ impl Precision for Fixed32 {
 
 impl BfpSample for i16 {
     type Twiddle = i16;
-    type Wide = i32;
-    const WIDE_FRAC: u32 = 14;
-    const TWIDDLE_FRAC: u32 = 15;
-    const MAX: i32 = i16::MAX as i32;
+    const ZERO: i16 = 0;
+    const ONE: i16 = i16::MAX;
+    const LIMIT: u32 = i16::MAX as u32;
+    // (x0·2^13 + W·x1·2^13) ≤ 2.42·2^28; the split's 2E·2^12 − 2T·2^12 ≤ 2^30.
+    const FRAC: u32 = 13;
+    const FIRST_PASS_MAX: u32 = 32768;
+    const SPLIT_FRAC: u32 = 12;
 
     #[inline(always)]
-    fn wide(self) -> i32 {
+    fn get(self) -> i32 {
         self as i32
     }
     #[inline(always)]
-    fn twiddle_product(x: i32, t: i16, drop: u32) -> i32 {
-        // |x| ≤ 65535 and |t| ≤ 32767: the product is exact in i32.
-        (x * t as i32 + (1 << (drop - 1))) >> drop
+    fn put_unchecked(v: i32) -> i16 {
+        v as i16
+    }
+    #[inline(always)]
+    fn put(v: i32) -> i16 {
+        debug_assert!(v.unsigned_abs() <= Self::LIMIT, "FFT bound broken: {v}");
+        v as i16
+    }
+    #[inline(always)]
+    fn rotate(xr: i32, xi: i32, c: i16, s: i16) -> (i32, i32) {
+        // |x| ≤ LIMIT and |c| + |s| ≤ √2·2^15: the sum of two products is
+        // below 1.52·10^9 in magnitude, inside i32. Rounded to FRAC = 13
+        // fraction bits, so the level's own rounding almost never meets a tie
+        // (with few fraction bits, ties rounding up would bias every output).
+        let (c, s) = (c as i32, s as i32);
+        const R: i32 = 1 << 1;
+        ((c * xr + s * xi + R) >> 2, (c * xi - s * xr + R) >> 2)
     }
     #[inline(always)]
     fn neg_twiddle(t: i16) -> i16 {
         -t
     }
     #[inline(always)]
-    fn saturate(v: i32) -> i16 {
-        v.clamp(i16::MIN as i32, i16::MAX as i32) as i16
+    fn track(acc: u32, re: i32, im: i32) -> u32 {
+        // |re|, |im| ≤ 32767: re² + im² < 2^31.
+        acc.max((re * re + im * im) as u32)
     }
+    #[inline]
+    fn magnitude_bound(acc: u32) -> u32 {
+        isqrt_u32(acc) + 1
+    }
+    #[inline(always)]
+    fn split_rotate(xr: i32, xi: i32, c: i16, s: i16) -> (i32, i32) {
+        // |x| ≤ 2·LIMIT: each product alone fits i32 (32767 · 65534 < 2^31),
+        // their sum may not, so each is halved (the dropped bit lies 14 bits
+        // below the result's LSB) before the sum is rounded to 12 fraction bits.
+        let (c, s) = (c as i32, s as i32);
+        const R: i32 = 1 << 1;
+        (
+            (((c * xr) >> 1) + ((s * xi) >> 1) + R) >> 2,
+            (((c * xi) >> 1) - ((s * xr) >> 1) + R) >> 2,
+        )
+    }
+    #[inline(always)]
+    fn split_out(e: i32, t: i32, shift: u32) -> i16 {
+        // |e|·2^12 ≤ 2^29, |t| ≤ 2·√2·2·LIMIT·2^12 < 1.52·2^30: inside i32.
+        let total = Self::SPLIT_FRAC + 1 + shift;
+        Self::put(((e << Self::SPLIT_FRAC) - t + (1 << (total - 1))) >> total)
+    }
+}
+
+/// `round(a·b / 2^32)` (halves rounded up), exactly.
+#[inline(always)]
+pub fn mul_high(a: i32, b: i32) -> i32 {
+    #[cfg(not(all(target_arch = "arm", not(target_feature = "thumb2"))))]
+    {
+        // One `SMMULR` on the Cortex-M4; a plain multiply elsewhere.
+        ((a as i64 * b as i64 + (1 << 31)) >> 32) as i32
+    }
+    #[cfg(all(target_arch = "arm", not(target_feature = "thumb2")))]
+    {
+        mul_high_by_halves(a, b)
+    }
+}
+
+/// [`mul_high`] from four 16 × 16-bit products (for cores whose only
+/// multiply gives the low 32 bits, where a 64-bit product is a library call).
+/// Gives the same bits as [`mul_high`] for every input (tested).
+#[inline(always)]
+pub fn mul_high_by_halves(a: i32, b: i32) -> i32 {
+    let (ah, al) = (a >> 16, a & 0xffff);
+    let (bh, bl) = (b >> 16, b & 0xffff);
+    // a·b + 2^31 = ah·bh·2^32 + (ah·bl + al·bh + 2^15)·2^16 + al·bl, with
+    // ah, bh signed (|·| ≤ 2^15) and al, bl unsigned (< 2^16). The low 16
+    // bits of al·bl cannot carry into bit 32, so they are dropped.
+    let low = ((al as u32).wrapping_mul(bl as u32) >> 16) as i32;
+    // At most 32767·65535 + 65534 + 32768 = 2^31 − 1 in magnitude: fits i32.
+    let m1 = ah * bl + low + (1 << 15);
+    let m2 = al * bh;
+    let mid = (m1 >> 16) + (m2 >> 16) + (((m1 & 0xffff) + (m2 & 0xffff)) >> 16);
+    ah * bh + mid
 }
 
 impl BfpSample for i32 {
     type Twiddle = i32;
-    type Wide = i64;
-    const WIDE_FRAC: u32 = 29;
-    const TWIDDLE_FRAC: u32 = 31;
-    const MAX: i64 = i32::MAX as i64;
+    const ZERO: i32 = 0;
+    const ONE: i32 = i32::MAX;
+    const LIMIT: u32 = (1 << 29) - 1;
+    const FRAC: u32 = 0;
+    const FIRST_PASS_MAX: u32 = (1 << 30) - 1;
+    const SPLIT_FRAC: u32 = 0;
 
     #[inline(always)]
-    fn wide(self) -> i64 {
-        self as i64
+    fn get(self) -> i32 {
+        self
     }
     #[inline(always)]
-    fn twiddle_product(x: i64, t: i32, drop: u32) -> i64 {
-        // |x| < 2^32 and |t| < 2^31: the product fits i64.
-        (x * t as i64 + (1 << (drop - 1))) >> drop
+    fn put_unchecked(v: i32) -> i32 {
+        v
+    }
+    #[inline(always)]
+    fn put(v: i32) -> i32 {
+        debug_assert!(v.unsigned_abs() <= Self::LIMIT, "FFT bound broken: {v}");
+        v
+    }
+    #[inline(always)]
+    fn rotate(xr: i32, xi: i32, c: i32, s: i32) -> (i32, i32) {
+        // |x| < 2^30, so 2x fits i32; Q31 · 2x / 2^32 = W·x.
+        let (xr, xi) = (xr << 1, xi << 1);
+        (
+            mul_high(c, xr) + mul_high(s, xi),
+            mul_high(c, xi) - mul_high(s, xr),
+        )
     }
     #[inline(always)]
     fn neg_twiddle(t: i32) -> i32 {
         -t
     }
     #[inline(always)]
-    fn saturate(v: i64) -> i32 {
-        v.clamp(i32::MIN as i64, i32::MAX as i64) as i32
+    fn track(acc: u32, re: i32, im: i32) -> u32 {
+        // Squares of 29-bit values would need 64 bits: the OR of the
+        // components' magnitudes bounds them instead.
+        acc | magnitude_bits(re) | magnitude_bits(im)
+    }
+    #[inline]
+    fn magnitude_bound(acc: u32) -> u32 {
+        // Components ≤ acc + 1, so |z| ≤ √2·(acc + 1); 92682 / 2^16 > √2.
+        (((acc as u64 + 1) * 92682) >> 16) as u32 + 1
+    }
+    #[inline(always)]
+    fn split_rotate(xr: i32, xi: i32, c: i32, s: i32) -> (i32, i32) {
+        Self::rotate(xr, xi, c, s)
+    }
+    #[inline(always)]
+    fn split_out(e: i32, t: i32, shift: u32) -> i32 {
+        // e − t can reach 4.83·LIMIT: summed in i64.
+        let total = 1 + shift;
+        Self::put(((e as i64 - t as i64 + (1 << (total - 1))) >> total) as i32)
     }
 }
 
-/// `(cos, sin)` of `2πk/N` for `k` in `1 .. N/2`, from the quarter-wave table.
+/// `⌊√v⌋`, digit by digit (shifts, adds and compares only).
 #[inline]
-fn twiddle<T: BfpSample>(quarter: &[T::Twiddle], k: usize) -> (T::Twiddle, T::Twiddle) {
-    let q = quarter.len() - 1; // N/4
-    if k <= q {
-        (quarter[k], quarter[q - k])
-    } else {
-        (T::neg_twiddle(quarter[2 * q - k]), quarter[k - q])
+fn isqrt_u32(v: u32) -> u32 {
+    let (mut rem, mut root) = (v, 0u32);
+    let mut bit = 1u32 << 30;
+    while bit > v {
+        bit >>= 2;
     }
+    while bit != 0 {
+        if rem >= root + bit {
+            rem -= root + bit;
+            root = (root >> 1) + bit;
+        } else {
+            root >>= 1;
+        }
+        bit >>= 2;
+    }
+    root
 }
 
-/// The fewest right shifts that bring `peak / 2^base`, rounded, into range.
+/// Bound on a level's output magnitudes (before its shift) for input
+/// magnitudes within `bound`: `|a ± w·b| ≤ |a| + |b| ≤ 2·bound`, plus the
+/// products' rounding.
 #[inline]
-fn exact_shift<T: BfpSample>(peak: T::Wide, base: u32) -> u32 {
+fn grown(bound: u32) -> u64 {
+    2 * bound as u64 + 2
+}
+
+/// The fewest right shifts that bring magnitudes within `grown` inside
+/// `limit` after rounding, and the magnitude bound they then keep.
+#[inline]
+fn shift_for(grown: u64, limit: u32) -> (u32, u32) {
     let mut shift = 0;
-    while ((peak + (T::Wide::ONE << (base + shift - 1))) >> (base + shift)) > T::MAX {
+    loop {
+        // Rounding each component moves the magnitude by less than 1.
+        let after = ((grown + ((1u64 << shift) >> 1)) >> shift) + 1;
+        if after <= limit as u64 {
+            return (shift, after as u32);
+        }
         shift += 1;
     }
-    shift
+}
+
+/// `round(v / 2^total)` (`v` itself for `total = 0`).
+#[inline(always)]
+fn round_shift(v: i32, total: u32) -> i32 {
+    (v + ((1 << total) >> 1)) >> total
+}
+
+/// `|v|` or `|v| − 1`: ORed over values, it bounds every `|v|` by one more.
+#[inline(always)]
+fn magnitude_bits(v: i32) -> u32 {
+    (v ^ (v >> 31)) as u32
 }
 
 /// Real FFT of `buf` (length `N`, a power of two ≥ 16) in place, with the
@@ -208,6 +329,8 @@ fn exact_shift<T: BfpSample>(peak: T::Wide, base: u32) -> u32 {
 ///
 /// The caller guarantees the lengths (the front ends check them once); with
 /// other lengths the function returns 0 and leaves `buf` as it was.
+/// Inputs beyond `±LIMIT` (possible only for 32-bit data) are first shifted
+/// into range, which the exponent accounts for.
 pub fn real_fft<P: Precision>(
     buf: &mut [P::Data],
     quarter: &[<P::Data as BfpSample>::Twiddle],
@@ -216,136 +339,276 @@ pub fn real_fft<P: Precision>(
     if n < 16 || !n.is_power_of_two() || quarter.len() != n / 4 + 1 {
         return 0;
     }
-    bit_reverse_pairs(buf, n / 2);
-    let mut exponent = 0;
-    let mut len = 2;
-    while len <= n / 2 {
-        exponent += stage(buf, quarter, len);
-        len *= 2;
+    let half = n / 2;
+    let mut exponent = 0i32;
+    let mut bound = prepare::<P::Data>(buf, &mut exponent);
+    bit_reverse_pairs(buf, half);
+    let mut m = if half.trailing_zeros() % 2 == 1 {
+        bound = first_radix2(buf, bound, &mut exponent);
+        2
+    } else {
+        bound = first_radix4(buf, bound, &mut exponent);
+        4
+    };
+    while m < half {
+        bound = radix4_pass(buf, quarter, m, bound, &mut exponent);
+        m *= 4;
     }
-    exponent + split(buf, quarter)
+    split(buf, quarter, bound, &mut exponent);
+    exponent
+}
+
+/// Magnitude bound of the input pairs; shifts them into range first if a
+/// component exceeds what the first pass accepts (only 32-bit data can).
+#[inline(never)]
+fn prepare<T: BfpSample>(buf: &mut [T], exponent: &mut i32) -> u32 {
+    let widest = if T::FIRST_PASS_MAX >= 1 << 15 && core::mem::size_of::<T>() == 2 {
+        0 // every 16-bit value is accepted
+    } else {
+        buf.iter()
+            .fold(0u32, |acc, v| acc.max(v.get().unsigned_abs()))
+    };
+    if widest > T::FIRST_PASS_MAX {
+        let shift = 32 - (T::FIRST_PASS_MAX + 1).leading_zeros() - 1;
+        let shift = (32 - widest.leading_zeros()).saturating_sub(shift);
+        for v in buf.iter_mut() {
+            // i64: the input may use the type's whole range.
+            let x = v.get() as i64;
+            *v = T::put_unchecked(((x + ((1i64 << shift) >> 1)) >> shift) as i32);
+        }
+        *exponent += shift as i32;
+    }
+    let acc = buf
+        .chunks_exact(2)
+        .fold(0, |acc, p| T::track(acc, p[0].get(), p[1].get()));
+    T::magnitude_bound(acc)
 }
 
 /// Bit-reversal permutation of `half` complex pairs.
+#[inline(never)]
 fn bit_reverse_pairs<T: BfpSample>(buf: &mut [T], half: usize) {
     let bits = half.trailing_zeros();
+    #[cfg(not(all(target_arch = "arm", not(target_feature = "thumb2"))))]
     for i in 0..half {
+        // `RBIT` on the Cortex-M4.
         let j = i.reverse_bits() >> (usize::BITS - bits);
         if j > i {
-            buf.swap(2 * i, 2 * j);
-            buf.swap(2 * i + 1, 2 * j + 1);
+            swap_pairs(buf, i, j);
+        }
+    }
+    #[cfg(all(target_arch = "arm", not(target_feature = "thumb2")))]
+    {
+        // No bit-reverse instruction: count j in reversed order alongside i.
+        let _ = bits;
+        let mut j = 0usize;
+        for i in 0..half {
+            if j > i {
+                swap_pairs(buf, i, j);
+            }
+            let mut bit = half >> 1;
+            while j & bit != 0 {
+                j ^= bit;
+                bit >>= 1;
+            }
+            j |= bit;
         }
     }
 }
 
-/// One pass over a stage with groups of `len` complex points. With `WRITE`
-/// false it returns the largest output before rounding (for a butterfly,
-/// `max(|a + t|, |a − t|) = |a| + |t|` per component); with `WRITE` true it
-/// writes every output `a ± w·b`, rounded once after a right shift of
-/// `total_shift` bits, and returns 0.
-///
-/// The twiddle of each butterfly column `j` is read once per stage, and the
-/// groups are walked as disjoint slices, so the inner loop has no branch on
-/// the twiddle and no repeated table lookups.
+/// Swaps complex pairs `i < j` (one bounds check for both).
 #[inline(always)]
-fn stage_pass<T: BfpSample, const WRITE: bool>(
+fn swap_pairs<T: BfpSample>(buf: &mut [T], i: usize, j: usize) {
+    let (a, b) = buf.split_at_mut(2 * j);
+    if let (Some(a), Some(b)) = (a.get_mut(2 * i..2 * i + 2), b.get_mut(..2)) {
+        a.swap_with_slice(b);
+    }
+}
+
+/// The first level alone (pairs of points, twiddle 1).
+#[inline(never)]
+fn first_radix2<T: BfpSample>(buf: &mut [T], bound: u32, exponent: &mut i32) -> u32 {
+    let (s, after) = shift_for(grown(bound), T::LIMIT);
+    let mut acc = 0u32;
+    for p in buf.chunks_exact_mut(4) {
+        let (x0r, x0i, x1r, x1i) = (p[0].get(), p[1].get(), p[2].get(), p[3].get());
+        let out = [
+            round_shift(x0r + x1r, s),
+            round_shift(x0i + x1i, s),
+            round_shift(x0r - x1r, s),
+            round_shift(x0i - x1i, s),
+        ];
+        acc = T::track(T::track(acc, out[0], out[1]), out[2], out[3]);
+        for (d, v) in p.iter_mut().zip(out) {
+            *d = T::put(v);
+        }
+    }
+    *exponent += s as i32;
+    after.min(T::magnitude_bound(acc))
+}
+
+/// The first two levels (twiddles 1 and −i), each with its own shift.
+#[inline(never)]
+fn first_radix4<T: BfpSample>(buf: &mut [T], bound: u32, exponent: &mut i32) -> u32 {
+    let (s1, b1) = shift_for(grown(bound), T::LIMIT);
+    let (s2, after) = shift_for(grown(b1), T::LIMIT);
+    let one = (T::ONE, T::ZERO);
+    let acc = column::<T, true>(buf, 1, 0, one, one, (s1, s2), 0);
+    *exponent += (s1 + s2) as i32;
+    after.min(T::magnitude_bound(acc))
+}
+
+/// Two twiddled levels in one pass: sub-transforms of `m` points combine
+/// into transforms of `4m` points (radix 2²), each level with its own shift
+/// (the first from the tracked bound, the second from the first's).
+/// Returns the outputs' magnitude bound.
+fn radix4_pass<T: BfpSample>(
     buf: &mut [T],
     quarter: &[T::Twiddle],
-    len: usize,
-    total_shift: u32,
-) -> T::Wide {
-    let frac = T::WIDE_FRAC;
-    let drop = T::TWIDDLE_FRAC - frac;
-    let stride = buf.len() / len; // twiddle index step in the N-point table
-    let mut peak = T::Wide::ZERO;
-    for j in 0..len / 2 {
-        let w = (j != 0).then(|| twiddle::<T>(quarter, j * stride));
-        for group in buf.chunks_exact_mut(2 * len) {
-            let (lo, hi) = group.split_at_mut(len);
-            let (a, b) = (&mut lo[2 * j..2 * j + 2], &mut hi[2 * j..2 * j + 2]);
-            let (ar, ai) = (a[0].wide() << frac, a[1].wide() << frac);
-            let (br, bi) = (b[0].wide(), b[1].wide());
-            // w·b = (c·br + s·bi) + i(c·bi − s·br); |w·b| ≤ √2·max, so every
-            // sum stays below 2.42·2^(bits − 1 + WIDE_FRAC), inside the wide type.
-            let (tr, ti) = match w {
-                Some((c, s)) => (
-                    T::twiddle_product(br, c, drop) + T::twiddle_product(bi, s, drop),
-                    T::twiddle_product(bi, c, drop) - T::twiddle_product(br, s, drop),
-                ),
-                None => (br << frac, bi << frac),
-            };
-            if WRITE {
-                a[0] = T::narrow(ar + tr, total_shift);
-                a[1] = T::narrow(ai + ti, total_shift);
-                b[0] = T::narrow(ar - tr, total_shift);
-                b[1] = T::narrow(ai - ti, total_shift);
-            } else {
-                peak = peak.max(ar.abs() + tr.abs()).max(ai.abs() + ti.abs());
-            }
-        }
-    }
-    peak
+    m: usize,
+    bound: u32,
+    exponent: &mut i32,
+) -> u32 {
+    let (s1, b1) = shift_for(grown(bound), T::LIMIT);
+    let (s2, after) = shift_for(grown(b1), T::LIMIT);
+    let acc = twiddled_columns::<T>(buf, quarter, m, (s1, s2));
+    *exponent += (s1 + s2) as i32;
+    after.min(T::magnitude_bound(acc))
 }
 
-/// One radix-2 stage over groups of `len` complex points; returns its shift.
-fn stage<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle], len: usize) -> i32 {
-    let peak = stage_pass::<T, false>(buf, quarter, len, 0);
-    let shift = exact_shift::<T>(peak, T::WIDE_FRAC);
-    stage_pass::<T, true>(buf, quarter, len, T::WIDE_FRAC + shift);
-    shift as i32
+/// Every column of a twiddled pass over sub-transforms of `m` points.
+#[inline(never)]
+fn twiddled_columns<T: BfpSample>(
+    buf: &mut [T],
+    quarter: &[T::Twiddle],
+    m: usize,
+    shifts: (u32, u32),
+) -> u32 {
+    let q = quarter.len() - 1;
+    let st4 = q / m;
+    let one = (T::ONE, T::ZERO);
+    // Column 0 has twiddles 1 (exactly: the tables store 1.0 as 1 − 2^-15).
+    let mut acc = column::<T, true>(buf, m, 0, one, one, shifts, 0);
+    for j in 1..m {
+        // W_4m^j in the first quadrant; W_2m^j = (W_4m^j)² in the first or second.
+        let k4 = j * st4;
+        let w4 = (quarter[k4], quarter[q - k4]);
+        let k2 = 2 * k4;
+        let w2 = if k2 <= q {
+            (quarter[k2], quarter[q - k2])
+        } else {
+            (T::neg_twiddle(quarter[2 * q - k2]), quarter[k2 - q])
+        };
+        acc = column::<T, false>(buf, m, j, w2, w4, shifts, acc);
+    }
+    acc
+}
+
+/// The butterflies of column `j` of a radix-2² pass over sub-transforms of
+/// `m` points, in every group; `ONE` skips the multiplies (twiddles 1).
+/// Returns the tracker.
+#[inline(always)]
+fn column<T: BfpSample, const ONE: bool>(
+    buf: &mut [T],
+    m: usize,
+    j: usize,
+    (c2, s2): (T::Twiddle, T::Twiddle),
+    (c4, s4): (T::Twiddle, T::Twiddle),
+    (shift1, shift2): (u32, u32),
+    mut acc: u32,
+) -> u32 {
+    let f = T::FRAC;
+    let (t1, t2) = (f + shift1, f + shift2);
+    let (r1, r2) = ((1i32 << t1) >> 1, (1i32 << t2) >> 1);
+    let rotate = |xr: i32, xi: i32, c, s| {
+        if ONE {
+            (xr << f, xi << f)
+        } else {
+            T::rotate(xr, xi, c, s)
+        }
+    };
+    for g in buf.chunks_exact_mut(8 * m) {
+        let (p01, p23) = g.split_at_mut(4 * m);
+        let (p0, p1) = p01.split_at_mut(2 * m);
+        let (p2, p3) = p23.split_at_mut(2 * m);
+        let (x0, x1) = (&mut p0[2 * j..2 * j + 2], &mut p1[2 * j..2 * j + 2]);
+        let (x2, x3) = (&mut p2[2 * j..2 * j + 2], &mut p3[2 * j..2 * j + 2]);
+        // Level 1 (transforms of 2m points): a, b from (x0, x1); c, d from (x2, x3).
+        let (u1r, u1i) = rotate(x1[0].get(), x1[1].get(), c2, s2);
+        let (u3r, u3i) = rotate(x3[0].get(), x3[1].get(), c2, s2);
+        let (x0r, x0i) = ((x0[0].get() << f) + r1, (x0[1].get() << f) + r1);
+        let (x2r, x2i) = ((x2[0].get() << f) + r1, (x2[1].get() << f) + r1);
+        let (ar, ai) = ((x0r + u1r) >> t1, (x0i + u1i) >> t1);
+        let (br, bi) = ((x0r - u1r) >> t1, (x0i - u1i) >> t1);
+        let (cr, ci) = ((x2r + u3r) >> t1, (x2i + u3i) >> t1);
+        let (dr, di) = ((x2r - u3r) >> t1, (x2i - u3i) >> t1);
+        // Level 2 (transforms of 4m points): (a, c) with W, (b, d) with −i·W.
+        let (vr, vi) = rotate(cr, ci, c4, s4);
+        let (wr, wi) = rotate(dr, di, c4, s4);
+        let (ar, ai) = ((ar << f) + r2, (ai << f) + r2);
+        let (br, bi) = ((br << f) + r2, (bi << f) + r2);
+        let out = [
+            (ar + vr) >> t2,
+            (ai + vi) >> t2,
+            (br + wi) >> t2,
+            (bi - wr) >> t2,
+            (ar - vr) >> t2,
+            (ai - vi) >> t2,
+            (br - wi) >> t2,
+            (bi + wr) >> t2,
+        ];
+        for pair in out.chunks_exact(2) {
+            acc = T::track(acc, pair[0], pair[1]);
+        }
+        x0[0] = T::put(out[0]);
+        x0[1] = T::put(out[1]);
+        x1[0] = T::put(out[2]);
+        x1[1] = T::put(out[3]);
+        x2[0] = T::put(out[4]);
+        x2[1] = T::put(out[5]);
+        x3[0] = T::put(out[6]);
+        x3[1] = T::put(out[7]);
+    }
+    acc
 }
 
 /// Split step: from `Z = FFT(x[2n] + i·x[2n+1])` to the real spectrum `X`.
 /// With `E = (Z[k] + Z*[N/2−k])/2`, `O = (Z[k] − Z*[N/2−k])/2` and
-/// `T = i·W^k·O`: `X[k] = E − T`, `X[N/2−k] = conj(E + T)`. Outputs before
-/// rounding carry `WIDE_FRAC` fraction bits: `WIDE_FRAC − 1` for the
-/// products, one more for the exact `/2`.
-/// Returns the shift.
-fn split<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle]) -> i32 {
+/// `T = i·W^k·O`: `X[k] = E − T`, `X[N/2−k] = conj(E + T)`. Computed from
+/// `2E` and `2T`, with one rounding per output (which also halves).
+#[inline(never)]
+fn split<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle], bound: u32, exponent: &mut i32) {
     let half = buf.len() / 2;
     let q = half / 2;
-    let frac = T::WIDE_FRAC - 1;
-    let drop = T::TWIDDLE_FRAC - frac;
-    let base = frac + 1;
-    // Outputs for pair k (1 ≤ k < N/4): [Xk.re, Xk.im, Xm.re, Xm.im], m = N/2 − k.
-    let pair = |buf: &[T], k: usize| -> [T::Wide; 4] {
-        let m = half - k;
-        let (ar, ai) = (buf[2 * k].wide(), buf[2 * k + 1].wide());
-        let (br, bi) = (buf[2 * m].wide(), -buf[2 * m + 1].wide()); // conj(Z[m])
-        let (er2, ei2) = ((ar + br) << frac, (ai + bi) << frac);
-        let (or2, oi2) = (ar - br, ai - bi);
-        let (c, s) = twiddle::<T>(quarter, k);
-        // 2T = (s·2Or − c·2Oi) + i(c·2Or + s·2Oi); |2T| ≤ |2O| ≤ √2·2^bits.
-        let tr2 = T::twiddle_product(or2, s, drop) - T::twiddle_product(oi2, c, drop);
-        let ti2 = T::twiddle_product(or2, c, drop) + T::twiddle_product(oi2, s, drop);
-        [er2 - tr2, ei2 - ti2, er2 + tr2, -(ei2 + ti2)]
-    };
-    let (z0r, z0i) = (buf[0].wide(), buf[1].wide());
-    let ends = [
-        (z0r + z0i) << base,
-        (z0r - z0i) << base,
-        buf[2 * q].wide() << base,
-        -buf[2 * q + 1].wide() << base,
-    ];
-    let mut peak = ends.iter().fold(T::Wide::ZERO, |p, &v| p.max(v.abs()));
-    for k in 1..q {
-        for v in pair(buf, k) {
-            peak = peak.max(v.abs());
-        }
+    // |X| ≤ |E| + |O| ≤ √2·√(|E|² + |O|²) = √(|Z[k]|² + |Z[m]|²) ≤ √2·bound
+    // (92682 / 2^16 > √2), plus the products' rounding.
+    let (s, _) = shift_for(((bound as u64 * 92682) >> 16) + 3, T::LIMIT);
+    let f = T::SPLIT_FRAC;
+    // Pair k (1 ≤ k < N/4) with m = N/2 − k: Z[k] in the lower half of the
+    // buffer, Z[m] in the upper half walked backwards; W^k = (q[k], q[Q − k]).
+    let (lower, upper) = buf.split_at_mut(half);
+    let twiddles = quarter[1..q].iter().zip(quarter[1..q].iter().rev());
+    let pairs = lower[2..]
+        .chunks_exact_mut(2)
+        .zip(upper[2..].rchunks_exact_mut(2));
+    for ((zk, zm), (&c, &sw)) in pairs.zip(twiddles) {
+        let (ar, ai) = (zk[0].get(), zk[1].get());
+        let (br, bi) = (zm[0].get(), -zm[1].get()); // conj(Z[m])
+        let (er2, ei2) = (ar + br, ai + bi);
+        // W·2O, then 2T = i·W·2O = (−im, re).
+        let (ur, ui) = T::split_rotate(ar - br, ai - bi, c, sw);
+        let (tr2, ti2) = (-ui, ur);
+        zk[0] = T::split_out(er2, tr2, s);
+        zk[1] = T::split_out(ei2, ti2, s);
+        zm[0] = T::split_out(er2, -tr2, s);
+        zm[1] = T::split_out(-ei2, ti2, s);
     }
-    let shift = exact_shift::<T>(peak, base);
-    for k in 1..q {
-        let out = pair(buf, k);
-        let m = half - k;
-        buf[2 * k] = T::narrow(out[0], base + shift);
-        buf[2 * k + 1] = T::narrow(out[1], base + shift);
-        buf[2 * m] = T::narrow(out[2], base + shift);
-        buf[2 * m + 1] = T::narrow(out[3], base + shift);
-    }
-    // k = 0 (X[0] and X[N/2], both real) and k = N/4 (X = conj(Z)).
-    buf[0] = T::narrow(ends[0], base + shift);
-    buf[1] = T::narrow(ends[1], base + shift);
-    buf[2 * q] = T::narrow(ends[2], base + shift);
-    buf[2 * q + 1] = T::narrow(ends[3], base + shift);
-    shift as i32
+    // k = 0: X[0] = re + im and X[N/2] = re − im of Z[0] (2E = 2·re, 2T = ∓2·im);
+    // k = N/4: X = conj(Z[N/4]) (2T = 0).
+    let (z0r, z0i) = (buf[0].get(), buf[1].get());
+    let (zqr, zqi) = (buf[2 * q].get(), buf[2 * q + 1].get());
+    buf[0] = T::split_out(2 * z0r, (-2 * z0i) << f, s);
+    buf[1] = T::split_out(2 * z0r, (2 * z0i) << f, s);
+    buf[2 * q] = T::split_out(2 * zqr, 0, s);
+    buf[2 * q + 1] = T::split_out(-2 * zqi, 0, s);
+    *exponent += s as i32;
 }
