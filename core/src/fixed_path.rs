@@ -157,6 +157,8 @@ pub trait FrameData: BfpSample {
     fn store_bin(slot: &mut [Self], v: u64);
     /// The bin value back.
     fn load_bin(slot: &[Self]) -> u64;
+    /// `v · w` for a bin value and a Q15 weight (`w ≤ 2^15`).
+    fn weigh(v: u64, w: u32) -> u64;
 }
 
 impl FrameData for i16 {
@@ -185,6 +187,22 @@ impl FrameData for i16 {
     #[inline(always)]
     fn load_bin(slot: &[i16]) -> u64 {
         (slot[0] as u16 as u32 | (slot[1] as u16 as u32) << 16) as u64
+    }
+    #[inline(always)]
+    fn weigh(v: u64, w: u32) -> u64 {
+        // v < 2^32: one UMULL on the Cortex-M4; two 32-bit products on cores
+        // whose only multiply gives the low 32 bits (a 64-bit product is a
+        // library call there). The same bits either way.
+        #[cfg(stapes_no_long_multiply)]
+        {
+            let v = v as u32;
+            let (lo, hi) = (w * (v & 0xffff), w * (v >> 16));
+            ((hi as u64) << 16) + lo as u64
+        }
+        #[cfg(not(stapes_no_long_multiply))]
+        {
+            v * w as u64
+        }
     }
     #[inline]
     fn from_raw(x: i16) -> i16 {
@@ -245,6 +263,21 @@ impl FrameData for i32 {
     #[inline(always)]
     fn load_bin(slot: &[i32]) -> u64 {
         slot[0] as u32 as u64 | (slot[1] as u32 as u64) << 32
+    }
+    #[inline(always)]
+    fn weigh(v: u64, w: u32) -> u64 {
+        // The spectrum shift keeps v · w below 2^64.
+        #[cfg(stapes_no_long_multiply)]
+        {
+            // v·w < 2^64 makes hi·w < 2^32; the low word goes by halves.
+            let (lo, hi) = (v as u32, (v >> 32) as u32);
+            let low = (((w * (lo >> 16)) as u64) << 16) + (w * (lo & 0xffff)) as u64;
+            low + (((w * hi) as u64) << 32)
+        }
+        #[cfg(not(stapes_no_long_multiply))]
+        {
+            v * w as u64
+        }
     }
     #[inline]
     fn from_raw(x: i16) -> i32 {
@@ -787,13 +820,6 @@ where
         }
         probe.mark(Stage::Spectrum);
         let buf = &*buf;
-        let value = |k: usize| -> u64 {
-            if k == half {
-                last
-            } else {
-                <P::Data as FrameData>::load_bin(&buf[2 * k..2 * k + 2])
-            }
-        };
         // Energy = acc · 2^energy_exponent (weights are Q15).
         let energy_exponent =
             if magnitude { e_x } else { 2 * e_x } + shift as i32 + frame_shift as i32 - 15;
@@ -816,17 +842,28 @@ where
             };
             out[b] = I8F8::from_bits(level as i16);
         };
+        // The bins from `first` on, as many as `ws` has weights: those below
+        // N/2 from the buffer (no per-bin branch), bin N/2 from `last`.
+        let split_at = |first: usize, ws: &'t [i16]| {
+            let in_buf = ws.len().min(half.saturating_sub(first));
+            let (inside, beyond) = ws.split_at(in_buf);
+            let slots = buf[2 * first..2 * (first + in_buf)].chunks_exact(2);
+            (inside.iter().zip(slots), beyond.first())
+        };
+        let load = <P::Data as FrameData>::load_bin;
+        let weigh = <P::Data as FrameData>::weigh;
         match self.tables.table.filterbank {
             Filterbank::Sparse { spans, weights } => {
                 let mut offset = 0;
                 for (b, &[first, count]) in spans.iter().enumerate() {
                     let (first, count) = (first as usize, count as usize);
-                    let acc = weights[offset..offset + count]
-                        .iter()
-                        .enumerate()
-                        .fold(0u64, |acc, (j, &wt)| {
-                            acc + wt.max(0) as u64 * value(first + j)
-                        });
+                    let (inside, beyond) = split_at(first, &weights[offset..offset + count]);
+                    let mut acc = inside.fold(0u64, |acc, (&wt, slot)| {
+                        acc + weigh(load(slot), wt.max(0) as u32)
+                    });
+                    if let Some(&wt) = beyond {
+                        acc += weigh(last, wt.max(0) as u32);
+                    }
                     offset += count;
                     emit(b, acc);
                 }
@@ -840,13 +877,16 @@ where
                 for seg in 0..=bands {
                     let lo = segment_starts[seg] as usize;
                     let hi = segment_starts[seg + 1] as usize;
-                    let (mut rising, mut falling) = (0u64, 0u64);
-                    for (k, &wt) in (lo..hi).zip(&weights[lo - base..hi - base]) {
-                        let v = value(k);
-                        let wt = wt.max(0) as u64;
-                        rising += wt * v;
-                        falling += (32768 - wt) * v;
+                    let (inside, beyond) = split_at(lo, &weights[lo - base..hi - base]);
+                    let mut sums = inside.fold((0u64, 0u64), |(rising, falling), (&wt, slot)| {
+                        let (v, wt) = (load(slot), wt.max(0) as u32);
+                        (rising + weigh(v, wt), falling + weigh(v, 32768 - wt))
+                    });
+                    if let Some(&wt) = beyond {
+                        let wt = wt.max(0) as u32;
+                        sums = (sums.0 + weigh(last, wt), sums.1 + weigh(last, 32768 - wt));
                     }
+                    let (rising, falling) = sums;
                     if seg > 0 {
                         emit(seg - 1, carry + falling);
                     }
