@@ -194,3 +194,42 @@ fn tables_writes_and_reports() {
     let e = stapes(&["tables", "--bands", "300", "--out-dir", out]).unwrap_err();
     assert!(format!("{e:#}").contains("`bands` = 300"));
 }
+
+#[test]
+fn features_reports_floor_values_range_and_constant_frames() {
+    use stapes_sim::commands::InputReport;
+    let c = stapes_core::presets::SPEECH16K_40;
+    // 1 s: 0.25 s of digital silence, 0.25 s of a constant, then noise that
+    // touches full scale at three samples; float input adds two beyond ±1.
+    let mut r = rng(31);
+    let mut x = vec![0i16; 4000];
+    x.extend(std::iter::repeat_n(1234, 4000));
+    x.extend(noise_i16(&mut r, 8000, 0.25));
+    x[9000] = i16::MAX;
+    x[9001] = i16::MIN;
+    x[9002] = i16::MAX;
+    let t = GeneratedTables::new(&c);
+    let samples = Samples::I16(x.clone());
+    let frames = run_float(&c, t.view_f32(FilterbankForm::Sparse), &samples, 4096).unwrap();
+    let values: Vec<f32> = frames.concat();
+    let report = InputReport::of(&samples, &c, &values);
+    // Frames entirely inside the silent or the constant stretch.
+    let (w, hop) = (c.window_samples as usize, c.hop_samples as usize);
+    let inside = |lo: usize, hi: usize| (0..frames.len()).filter(|&i| i * hop >= lo && i * hop + w <= hi).count();
+    assert_eq!(report.constant_frames, inside(0, 4000) + inside(4000, 8000));
+    assert_eq!(report.at_full_scale, 3);
+    assert_eq!(report.out_of_range, 0);
+    // Digital silence gives exactly the floor in every band.
+    assert!(report.at_floor >= inside(0, 4000) * c.bands as usize);
+    assert_eq!(report.at_floor, values.iter().filter(|&&v| v <= c.floor_db + 1e-3).count());
+    let mut f: Vec<f32> = x.iter().map(|&s| s as f32 / 32768.0).collect();
+    f[100] = 1.5;
+    f[200] = -1.25;
+    let report = InputReport::of(&Samples::F32(f), &c, &values);
+    assert_eq!(report.out_of_range, 2);
+    // Both beyond-range samples saturate to 16-bit full scale.
+    assert_eq!(report.at_full_scale, 5);
+    let lines = report.lines(&c).join("\n");
+    assert!(lines.contains("2 samples beyond full scale"), "{lines}");
+    assert!(lines.contains("frames are constant input"), "{lines}");
+}

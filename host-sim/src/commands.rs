@@ -350,7 +350,93 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
             unit(&config)
         );
     }
+    let report = InputReport::of(&samples, &config, &values);
+    for line in report.lines(&config) {
+        crate::say!("  {line}");
+    }
     Ok(Outcome::Success)
+}
+
+/// The floor in output units (dB, or natural-log units).
+fn floor_output(config: &FeatureConfig) -> f64 {
+    match config.log {
+        LogKind::Decibel => config.floor_db as f64,
+        LogKind::Natural => config.floor_db as f64 * std::f64::consts::LN_10 / 10.0,
+    }
+}
+
+/// What `features` says about its input and output beyond the numbers: how
+/// many values sit at the floor, how many samples were out of range, and how
+/// many frames were constant (their values are the conditioning's residue
+/// or the floor, not speech).
+#[derive(Debug, Clone, PartialEq)]
+pub struct InputReport {
+    /// Output values at the configured floor.
+    pub at_floor: usize,
+    /// Output values in all.
+    pub values: usize,
+    /// Float samples beyond ±1.0 (the fixed path saturates them).
+    pub out_of_range: usize,
+    /// Samples at 16-bit full scale (−32768 or 32767): possibly clipped.
+    pub at_full_scale: usize,
+    /// Frames whose samples are all the same value.
+    pub constant_frames: usize,
+    /// Frames in all.
+    pub frames: usize,
+}
+
+impl InputReport {
+    /// Counts for `samples` and the output `values` they gave.
+    pub fn of(samples: &Samples, config: &FeatureConfig, values: &[f32]) -> InputReport {
+        let floor = floor_output(config) as f32;
+        let at_floor = values.iter().filter(|&&v| v <= floor + 1e-3).count();
+        let out_of_range = match samples {
+            Samples::F32(v) => v.iter().filter(|s| s.abs() > 1.0).count(),
+            Samples::I16(_) => 0,
+        };
+        let x = samples.to_i16();
+        let at_full_scale = x.iter().filter(|&&s| s == i16::MIN || s == i16::MAX).count();
+        let (w, hop) = (config.window_samples as usize, config.hop_samples as usize);
+        let frames = crate::run::frame_count(config, x.len());
+        let constant_frames = (0..frames)
+            .filter(|&i| {
+                let f = &x[i * hop..i * hop + w];
+                f.iter().all(|&s| s == f[0])
+            })
+            .count();
+        InputReport {
+            at_floor,
+            values: values.len(),
+            out_of_range,
+            at_full_scale,
+            constant_frames,
+            frames,
+        }
+    }
+
+    /// The report's lines.
+    pub fn lines(&self, config: &FeatureConfig) -> Vec<String> {
+        let pct = |n: usize, of: usize| 100.0 * n as f64 / of.max(1) as f64;
+        let mut out = vec![format!(
+            "floor:  {} of {} values ({:.1} %) at the floor ({:.2} {})",
+            self.at_floor,
+            self.values,
+            pct(self.at_floor, self.values),
+            floor_output(config),
+            unit(config)
+        )];
+        out.push(format!(
+            "range:  {} samples beyond full scale (float input; saturated for the fixed path), {} at 16-bit full scale (possibly clipped), 0 non-finite (refused on reading)",
+            self.out_of_range, self.at_full_scale
+        ));
+        if self.constant_frames > 0 {
+            out.push(format!(
+                "note:   {} of {} frames are constant input: their values are the window's and the DC removal's response to a constant, not a signal",
+                self.constant_frames, self.frames
+            ));
+        }
+        out
+    }
 }
 
 fn demo(a: &DemoArgs) -> Result<Outcome> {
