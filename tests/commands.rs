@@ -215,13 +215,20 @@ fn features_reports_floor_values_range_and_constant_frames() {
     let report = InputReport::of(&samples, &c, &values);
     // Frames entirely inside the silent or the constant stretch.
     let (w, hop) = (c.window_samples as usize, c.hop_samples as usize);
-    let inside = |lo: usize, hi: usize| (0..frames.len()).filter(|&i| i * hop >= lo && i * hop + w <= hi).count();
+    let inside = |lo: usize, hi: usize| {
+        (0..frames.len())
+            .filter(|&i| i * hop >= lo && i * hop + w <= hi)
+            .count()
+    };
     assert_eq!(report.constant_frames, inside(0, 4000) + inside(4000, 8000));
     assert_eq!(report.at_full_scale, 3);
     assert_eq!(report.out_of_range, 0);
     // Digital silence gives exactly the floor in every band.
     assert!(report.at_floor >= inside(0, 4000) * c.bands as usize);
-    assert_eq!(report.at_floor, values.iter().filter(|&&v| v <= c.floor_db + 1e-3).count());
+    assert_eq!(
+        report.at_floor,
+        values.iter().filter(|&&v| v <= c.floor_db + 1e-3).count()
+    );
     let mut f: Vec<f32> = x.iter().map(|&s| s as f32 / 32768.0).collect();
     f[100] = 1.5;
     f[200] = -1.25;

@@ -46,6 +46,9 @@ pub fn run(cli: Cli) -> Result<Outcome> {
                 a.core,
                 form(a.form)
             )?);
+            for line in crate::predict::report_lines(&named.config)? {
+                crate::say!("{line}");
+            }
             Ok(Outcome::Success)
         }
     }
@@ -219,6 +222,9 @@ fn tables(a: &TablesArgs) -> Result<Outcome> {
         let t = GeneratedTables::new(&config);
         let written = write_all(&t, &name, &a.out_dir, &command, BlobContents::ALL)?;
         crate::say_text!(size_report(&t, &name, Some(written.blob_bytes)));
+        for line in crate::predict::report_lines(&config)? {
+            crate::say!("{line}");
+        }
         crate::say!(
             "  wrote {}, {}, {}\n",
             written.rust.display(),
@@ -250,6 +256,9 @@ fn check_command(a: &CheckArgs) -> Result<Outcome> {
         samples.len() as f64 / config.sample_rate_hz as f64,
         config.sample_rate_hz
     );
+    for w in crate::predict::warnings(&config, arith)? {
+        eprintln!("{w}");
+    }
     let run = check(arith, &config, tables, &samples, a.input_args.chunk_samples)?;
     crate::say_text!(report(&run, &band_centres(&config), !a.worst_bands));
     Ok(if run.passed() {
@@ -277,6 +286,9 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
     };
     let bands = config.bands as usize;
     let tables = loaded.core_tables(a.arith, form(a.input_args.form))?;
+    for w in crate::predict::warnings(&config, a.arith)? {
+        eprintln!("{w}");
+    }
     let (frames, what) = if a.raw {
         let CoreTables::Fixed(fixed) = tables else {
             return Err(anyhow!(
@@ -395,7 +407,10 @@ impl InputReport {
             Samples::I16(_) => 0,
         };
         let x = samples.to_i16();
-        let at_full_scale = x.iter().filter(|&&s| s == i16::MIN || s == i16::MAX).count();
+        let at_full_scale = x
+            .iter()
+            .filter(|&&s| s == i16::MIN || s == i16::MAX)
+            .count();
         let (w, hop) = (config.window_samples as usize, config.hop_samples as usize);
         let frames = crate::run::frame_count(config, x.len());
         let constant_frames = (0..frames)

@@ -34,6 +34,7 @@ pub mod generate;
 pub mod npy;
 pub mod output;
 pub mod plots;
+pub mod predict;
 pub mod reference;
 pub mod run;
 pub mod sweep;
