@@ -290,17 +290,18 @@ fn firmware_frames_equal_the_host_and_figures_are_collected() {
                 }
                 let (full_flash, full_ram) = section_sizes(&elf);
                 let (flash, static_ram) = (full_flash - base_flash, full_ram - base_ram);
+                let per = |ticks: u64| ticks * run.per_kilotick / 1000 / run.frames_reported.max(1);
+                let stage_instr: Vec<u64> =
+                    run.ticks.iter().take(6).map(|(_, t)| per(*t)).collect();
+                let total = per(run.ticks[6].1);
                 figures.push(Figure {
                     preset: preset.to_string(),
                     arith: arith.to_string(),
                     core: board.target.to_string(),
                     flash,
                     ram: static_ram + run.state + run.stack,
+                    instructions: total,
                 });
-                let per = |ticks: u64| ticks * run.per_kilotick / 1000 / run.frames_reported.max(1);
-                let stage_instr: Vec<u64> =
-                    run.ticks.iter().take(6).map(|(_, t)| per(*t)).collect();
-                let total = per(run.ticks[6].1);
                 let fft = stage_instr[2].max(1);
                 let exact = if differing == 0 {
                     "identical".to_string()
@@ -338,10 +339,13 @@ struct Figure {
     core: String,
     flash: u64,
     ram: u64,
+    /// Instructions per frame, all stages.
+    instructions: u64,
 }
 
-/// `stapes budget` predicts flash and RAM before anything is built; the
-/// prediction must be within 10 % of the measured firmware.
+/// `stapes budget` predicts flash, RAM and instructions per frame before
+/// anything is built; each prediction must be within 10 % of the measured
+/// firmware.
 fn check_budget(figures: &[Figure]) {
     let mut report = String::new();
     for f in figures {
@@ -360,9 +364,13 @@ fn check_budget(figures: &[Figure]) {
             .expect("a supported combination");
         let flash_err = (b.flash_total() as f64 - f.flash as f64).abs() / f.flash as f64;
         let ram_err = (b.ram_total() as f64 - f.ram as f64).abs() / f.ram as f64;
+        let instr = stapes_sim::budget::predict_instructions(&config, arith, core)
+            .expect("a supported combination")
+            .total();
+        let instr_err = (instr - f.instructions as f64).abs() / f.instructions as f64;
         let _ = writeln!(
             report,
-            "{} {} {}: flash predicted {} measured {} ({:.1} %), RAM predicted {} measured {} ({:.1} %)",
+            "{} {} {}: flash predicted {} measured {} ({:.1} %), RAM predicted {} measured {} ({:.1} %), instructions predicted {:.0} measured {} ({:.1} %)",
             f.preset,
             f.arith,
             f.core,
@@ -371,7 +379,10 @@ fn check_budget(figures: &[Figure]) {
             100.0 * flash_err,
             b.ram_total(),
             f.ram,
-            100.0 * ram_err
+            100.0 * ram_err,
+            instr,
+            f.instructions,
+            100.0 * instr_err
         );
     }
     println!("{report}");

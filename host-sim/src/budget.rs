@@ -147,6 +147,120 @@ pub fn predict(
     })
 }
 
+/// Instructions per frame, per stage (QEMU's count; see [`predict_instructions`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct StageInstructions {
+    /// Taking in one hop of samples.
+    pub intake: f64,
+    /// Conditioning, normalisation and window.
+    pub window: f64,
+    /// The FFT.
+    pub fft: f64,
+    /// Power or magnitude per bin.
+    pub spectrum: f64,
+    /// Filterbank sums.
+    pub mel: f64,
+    /// Log, gains and floor.
+    pub log: f64,
+}
+
+impl StageInstructions {
+    /// All stages.
+    pub fn total(&self) -> f64 {
+        self.intake + self.window + self.fft + self.spectrum + self.mel + self.log
+    }
+}
+
+/// Instructions per unit of work for (core, arithmetic): per hop sample,
+/// per window sample (plus per conditioned sample), per `(N/2)·log2(N/2)`
+/// of the FFT, per bin (plus per bin of a magnitude spectrum), per sparse
+/// filterbank weight, per band. Fitted to the firmware's QEMU counts
+/// (`bash tests/firmware-figures.sh`): everything from speech16k-40, the
+/// conditioning and magnitude terms from dsr8k-23's remainder; tiny16k-10
+/// is held out. The firmware test keeps every preset's total within 10 %.
+struct InstructionCosts {
+    intake: f64,
+    window: f64,
+    conditioned: f64,
+    fft: f64,
+    bin: f64,
+    magnitude_bin: f64,
+    weight: f64,
+    band: f64,
+}
+
+fn instruction_costs(core: Core, arith: Arith) -> Option<InstructionCosts> {
+    let c = |intake, window, conditioned, fft, bin, magnitude_bin, weight, band| InstructionCosts {
+        intake,
+        window,
+        conditioned,
+        fft,
+        bin,
+        magnitude_bin,
+        weight,
+        band,
+    };
+    match (core, arith) {
+        (Core::CortexM4F, Arith::F32) => Some(c(6.46, 6.10, 1.49, 10.69, 5.46, 56.51, 7.27, 79.83)),
+        (Core::CortexM4F, Arith::Fixed16) => {
+            Some(c(3.39, 20.13, 78.83, 27.17, 18.95, 118.38, 17.60, 20.23))
+        }
+        (Core::CortexM4F, Arith::Fixed32) => {
+            Some(c(3.76, 24.60, 44.09, 29.93, 40.28, 377.62, 21.52, 21.27))
+        }
+        (Core::CortexM0, Arith::Fixed16) => {
+            Some(c(3.72, 47.80, 245.22, 40.68, 35.50, 152.25, 42.59, 20.50))
+        }
+        (Core::CortexM0, Arith::Fixed32) => {
+            Some(c(6.06, 89.55, 132.73, 85.52, 131.30, 796.33, 44.56, 29.90))
+        }
+        (Core::CortexM0, Arith::F32) => None,
+    }
+}
+
+/// Predicts the instructions per frame, per stage, for `config` (sparse
+/// filterbank). QEMU counts instructions, not cycles: see [`hop_share`].
+pub fn predict_instructions(
+    config: &FeatureConfig,
+    arith: Arith,
+    core: Core,
+) -> Option<StageInstructions> {
+    let k = instruction_costs(core, arith)?;
+    let half = (config.fft_points / 2) as f64;
+    let w = config.window_samples as f64;
+    let conditioned = config.dc_removal_pole.is_some() || config.pre_emphasis.is_some();
+    let magnitude = config.spectrum == stapes_core::config::SpectrumKind::Magnitude;
+    let weights = GeneratedTables::new(config).sparse_q15.len() as f64;
+    Some(StageInstructions {
+        intake: k.intake * config.hop_samples as f64,
+        window: k.window * w + if conditioned { k.conditioned * w } else { 0.0 },
+        fft: k.fft * half * half.log2(),
+        spectrum: k.bin * half
+            + if magnitude {
+                k.magnitude_bin * half
+            } else {
+                0.0
+            },
+        mel: k.weight * weights,
+        log: k.band * config.bands as f64,
+    })
+}
+
+/// Cycles per instruction on real Cortex-M4 silicon with flash wait states
+/// (shared/DESIGN.md): QEMU's instruction count times this range.
+pub const CYCLES_PER_INSTRUCTION: (f64, f64) = (1.2, 2.5);
+
+/// The share of each hop's real time the front end takes at `clock_mhz`, as
+/// (low, high) over [`CYCLES_PER_INSTRUCTION`].
+pub fn hop_share(instructions: f64, config: &FeatureConfig, clock_mhz: f64) -> (f64, f64) {
+    let hop_s = config.hop_samples as f64 / config.sample_rate_hz as f64;
+    let seconds = |cpi: f64| instructions * cpi / (clock_mhz * 1e6);
+    (
+        seconds(CYCLES_PER_INSTRUCTION.0) / hop_s,
+        seconds(CYCLES_PER_INSTRUCTION.1) / hop_s,
+    )
+}
+
 /// The printed budget.
 pub fn report(
     name: &str,
@@ -154,6 +268,7 @@ pub fn report(
     arith: Arith,
     core: Core,
     form: FilterbankForm,
+    clock_mhz: f64,
 ) -> anyhow::Result<String> {
     let b = predict(config, arith, core, form).ok_or_else(|| {
         anyhow::anyhow!("the f32 path needs an FPU: on Cortex-M0 use --arith fixed16 or fixed32")
@@ -184,5 +299,28 @@ pub fn report(
         s,
         "  (code and stack are calibrated from the reference preset's firmware; the firmware test keeps every preset within 10 %)"
     );
+    if let Some(i) = predict_instructions(config, arith, core) {
+        let _ = writeln!(
+            s,
+            "  instructions per frame {:>7.0} = intake {:.0} + window {:.0} + FFT {:.0} + spectrum {:.0} + mel {:.0} + log {:.0} (QEMU count, sparse form; the firmware test keeps every preset within 10 %)",
+            i.total(),
+            i.intake,
+            i.window,
+            i.fft,
+            i.spectrum,
+            i.mel,
+            i.log
+        );
+        let (lo, hi) = hop_share(i.total(), config, clock_mhz);
+        let hop_ms = 1e3 * config.hop_samples as f64 / config.sample_rate_hz as f64;
+        let _ = writeln!(
+            s,
+            "  at {clock_mhz} MHz: {:.1}-{:.1} % of each {hop_ms:.1} ms hop ({}-{} cycles per instruction, flash wait states included; instructions are not cycles)",
+            100.0 * lo,
+            100.0 * hi,
+            CYCLES_PER_INSTRUCTION.0,
+            CYCLES_PER_INSTRUCTION.1
+        );
+    }
     Ok(s)
 }

@@ -47,6 +47,9 @@ pub struct BudgetArgs {
     /// Filterbank form the board reads.
     #[arg(long, value_enum, default_value = "sparse")]
     pub form: FormChoice,
+    /// The core's clock in MHz, for the share of each hop the front end takes.
+    #[arg(long, default_value_t = 64.0)]
+    pub clock_mhz: f64,
 }
 
 /// Filterbank form used by the core.

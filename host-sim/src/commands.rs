@@ -44,7 +44,8 @@ pub fn run(cli: Cli) -> Result<Outcome> {
                 &named.config,
                 a.arith,
                 a.core,
-                form(a.form)
+                form(a.form),
+                a.clock_mhz
             )?);
             for line in crate::predict::report_lines(&named.config)? {
                 crate::say!("{line}");
