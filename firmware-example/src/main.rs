@@ -4,8 +4,10 @@
 //! blocks, raises a busy pin while each frame is computed, and reports over
 //! semihosting: one line per frame with the exact bits of every band, then
 //! the instruction clock's figures per stage and the stack high-water mark.
-//! Cargo features pick the arithmetic (`f32`, `fixed16`, `fixed32`) and the
-//! preset (`preset-speech16k-40`, `preset-dsr8k-23`, `preset-tiny16k-10`).
+//! Cargo features pick the arithmetic (`f32`, `fixed16`, `fixed32`), the
+//! preset (`preset-speech16k-40`, `preset-dsr8k-23`, `preset-tiny16k-10`)
+//! and, with `form-compact`, the compact filterbank instead of the sparse one
+//! (for presets that have it).
 #![no_std]
 #![no_main]
 
@@ -112,7 +114,11 @@ mod under_test {
         { preset::BANDS },
     >;
     pub fn make() -> Option<FrontEnd> {
-        FrontEnd::new(preset::CONFIG, preset::TABLE_F32_SPARSE).ok()
+        #[cfg(not(feature = "form-compact"))]
+        let table = preset::TABLE_F32_SPARSE;
+        #[cfg(feature = "form-compact")]
+        let table = preset::TABLE_F32_COMPACT;
+        FrontEnd::new(preset::CONFIG, table).ok()
     }
     impl UnderTest for FrontEnd {
         const ARITH: &'static str = "f32";
@@ -153,10 +159,14 @@ mod under_test {
     >;
     pub fn make() -> Option<FrontEnd> {
         // The precision's own tables only: a 16-bit build links no Q31 array.
-        #[cfg(feature = "fixed16")]
+        #[cfg(all(feature = "fixed16", not(feature = "form-compact")))]
         let tables = preset::FIXED16_SPARSE;
-        #[cfg(not(feature = "fixed16"))]
+        #[cfg(all(not(feature = "fixed16"), not(feature = "form-compact")))]
         let tables = preset::FIXED32_SPARSE;
+        #[cfg(all(feature = "fixed16", feature = "form-compact"))]
+        let tables = preset::FIXED16_COMPACT;
+        #[cfg(all(not(feature = "fixed16"), feature = "form-compact"))]
+        let tables = preset::FIXED32_COMPACT;
         FrontEnd::new(preset::CONFIG, tables).ok()
     }
     impl UnderTest for FrontEnd {
