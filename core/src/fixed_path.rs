@@ -760,8 +760,8 @@ where
         let last = value_of(buf[1], zero);
         // Offset compensation: bins 0 and 1 get d·W(k) back, in i64 (|D| < 2^55),
         // their values in u128; if they outgrow the other bins' 32 bits, the
-        // whole frame's values are shifted right by `frame_shift`.
-        let mut frame_shift = 0u32;
+        // whole frame's values are shifted right by `offset_bin_shift`.
+        let mut offset_bin_shift = 0u32;
         let mut offset_bins = None;
         if let (Some((w0, w1)), true) = (offset_terms, offset != 0) {
             // D = d·W·2^(norm − 16 − e_f); norm ≤ 15 and e_f ≥ 0: a right shift.
@@ -796,9 +796,9 @@ where
                 as_scaled(y1r, y1i)
             };
             let bits = |m: u64, e: u32| (64 - m.leading_zeros() + e).saturating_sub(shift);
-            frame_shift = bits(m0, e0).max(bits(m1, e1)).saturating_sub(32);
+            offset_bin_shift = bits(m0, e0).max(bits(m1, e1)).saturating_sub(32);
             let place = |m: u64, e: u32| {
-                let down = shift + frame_shift;
+                let down = shift + offset_bin_shift;
                 if down >= e {
                     m >> (down - e)
                 } else {
@@ -807,11 +807,11 @@ where
             };
             offset_bins = Some((place(m0, e0), place(m1, e1)));
         }
-        let last = last >> frame_shift;
-        let first = value_of(buf[0], zero) >> frame_shift;
+        let last = last >> offset_bin_shift;
+        let first = value_of(buf[0], zero) >> offset_bin_shift;
         <P::Data as FrameData>::store_bin(&mut buf[..2], first);
         for pair in buf[2..].chunks_exact_mut(2) {
-            let v = value_of(pair[0], pair[1]) >> frame_shift;
+            let v = value_of(pair[0], pair[1]) >> offset_bin_shift;
             <P::Data as FrameData>::store_bin(pair, v);
         }
         if let Some((v0, v1)) = offset_bins {
@@ -822,7 +822,7 @@ where
         let buf = &*buf;
         // Energy = acc · 2^energy_exponent (weights are Q15).
         let energy_exponent =
-            if magnitude { e_x } else { 2 * e_x } + shift as i32 + frame_shift as i32 - 15;
+            if magnitude { e_x } else { 2 * e_x } + shift as i32 + offset_bin_shift as i32 - 15;
 
         let out = &mut self.out[..bands];
         let gains = self.tables.table.band_gains;

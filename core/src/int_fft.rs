@@ -156,7 +156,7 @@ impl BfpSample for i16 {
     }
     #[inline]
     fn magnitude_bound(acc: u32) -> u32 {
-        isqrt_u32(acc) + 1
+        crate::fixed_path::isqrt_u32(acc) + 1
     }
     #[inline(always)]
     fn split_rotate(xr: i32, xi: i32, c: i16, s: i16) -> (i32, i32) {
@@ -284,26 +284,6 @@ impl BfpSample for i32 {
         let total = 1 + shift;
         Self::put(((e as i64 - t as i64 + (1 << (total - 1))) >> total) as i32)
     }
-}
-
-/// `⌊√v⌋`, digit by digit (shifts, adds and compares only).
-#[inline]
-fn isqrt_u32(v: u32) -> u32 {
-    let (mut rem, mut root) = (v, 0u32);
-    let mut bit = 1u32 << 30;
-    while bit > v {
-        bit >>= 2;
-    }
-    while bit != 0 {
-        if rem >= root + bit {
-            rem -= root + bit;
-            root = (root >> 1) + bit;
-        } else {
-            root >>= 1;
-        }
-        bit >>= 2;
-    }
-    root
 }
 
 /// Bound on a level's output magnitudes (before its shift) for input

@@ -83,12 +83,7 @@ pub fn signals(config: &FeatureConfig) -> Vec<(&'static str, Vec<i16>)> {
     let lo = (config.low_edge_hz as f64).max(fs / config.fft_points as f64 * 2.0);
     let hi = (config.high_edge_hz as f64 * 0.95).max(lo * 1.5);
     let mut rng = Pcg64Mcg::seed_from_u64(0x0bad_c0de);
-    let to_i16 = |x: &[f64], peak: f64| -> Vec<i16> {
-        let m = x.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(1e-300);
-        x.iter()
-            .map(|&v| (v / m * peak * 32767.0).round() as i16)
-            .collect()
-    };
+    let to_i16 = crate::sweep::to_i16;
     let duration = len as f64 / fs;
     let k = hi / lo;
     let chirp_noise: Vec<f64> = (0..len)

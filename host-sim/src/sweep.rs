@@ -30,7 +30,8 @@ pub struct SweepSignal {
     pub samples: Vec<i16>,
 }
 
-fn to_i16(x: &[f64], peak: f64) -> Vec<i16> {
+/// `x` scaled so its largest magnitude is `peak` of full scale, as 16-bit samples.
+pub(crate) fn to_i16(x: &[f64], peak: f64) -> Vec<i16> {
     let m = x.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(1e-300);
     x.iter()
         .map(|&v| (v / m * peak * 32768.0).round().clamp(-32768.0, 32767.0) as i16)
