@@ -66,7 +66,7 @@ pub trait BfpSample: Copy + Default + core::fmt::Debug + 'static {
     fn put(v: i32) -> Self;
     /// From `i32` in the type's range.
     fn put_unchecked(v: i32) -> Self;
-    /// Largest component magnitude the first pass accepts (its sums of two
+    /// Largest component magnitude the first pass accepts (its sums of four
     /// stay inside `i32`).
     const FIRST_PASS_MAX: u32;
     /// `W·x · 2^FRAC` for `W = c − i·s`, as `(re, im)`, for `|x|` components
@@ -86,6 +86,9 @@ pub trait BfpSample: Copy + Default + core::fmt::Debug + 'static {
     fn track(acc: u32, re: i32, im: i32) -> u32;
     /// A bound on the magnitude `|z|` of every complex value tracked into `acc`.
     fn magnitude_bound(acc: u32) -> u32;
+    /// A bound on every component tracked into `acc`, where the type can
+    /// exceed what the first pass accepts (0 where it cannot).
+    fn component_bound(acc: u32) -> u32;
     /// The split step's `W·x · 2^SPLIT_FRAC`, for `|x|` components within
     /// `±2·LIMIT` (differences of two values).
     fn split_rotate(xr: i32, xi: i32, c: Self::Twiddle, s: Self::Twiddle) -> (i32, i32);
@@ -157,6 +160,10 @@ impl BfpSample for i16 {
     #[inline]
     fn magnitude_bound(acc: u32) -> u32 {
         crate::fixed_path::isqrt_u32(acc) + 1
+    }
+    #[inline]
+    fn component_bound(_: u32) -> u32 {
+        0 // every 16-bit value is accepted
     }
     #[inline(always)]
     fn split_rotate(xr: i32, xi: i32, c: i16, s: i16) -> (i32, i32) {
@@ -234,7 +241,8 @@ impl BfpSample for i32 {
     const ONE: i32 = i32::MAX;
     const LIMIT: u32 = (1 << 29) - 1;
     const FRAC: u32 = 0;
-    const FIRST_PASS_MAX: u32 = (1 << 30) - 1;
+    // The first pass sums four inputs: 4 · (2^29 − 1) < 2^31.
+    const FIRST_PASS_MAX: u32 = Self::LIMIT;
     const SPLIT_FRAC: u32 = 0;
 
     #[inline(always)]
@@ -273,6 +281,10 @@ impl BfpSample for i32 {
     fn magnitude_bound(acc: u32) -> u32 {
         // Components ≤ acc + 1, so |z| ≤ √2·(acc + 1); 92682 / 2^16 > √2.
         (((acc as u64 + 1) * 92682) >> 16) as u32 + 1
+    }
+    #[inline]
+    fn component_bound(acc: u32) -> u32 {
+        acc.saturating_add(1)
     }
     #[inline(always)]
     fn split_rotate(xr: i32, xi: i32, c: i32, s: i32) -> (i32, i32) {
@@ -360,26 +372,24 @@ pub fn real_fft<P: Precision>(
 /// component exceeds what the first pass accepts (only 32-bit data can).
 #[inline(never)]
 fn prepare<T: BfpSample>(buf: &mut [T], exponent: &mut i32) -> u32 {
-    let widest = if T::FIRST_PASS_MAX >= 1 << 15 && core::mem::size_of::<T>() == 2 {
-        0 // every 16-bit value is accepted
-    } else {
-        buf.iter()
-            .fold(0u32, |acc, v| acc.max(v.get().unsigned_abs()))
+    let track = |buf: &[T]| {
+        buf.chunks_exact(2)
+            .fold(0, |acc, p| T::track(acc, p[0].get(), p[1].get()))
     };
-    if widest > T::FIRST_PASS_MAX {
-        let shift = 32 - (T::FIRST_PASS_MAX + 1).leading_zeros() - 1;
-        let shift = (32 - widest.leading_zeros()).saturating_sub(shift);
-        for v in buf.iter_mut() {
-            // i64: the input may use the type's whole range.
-            let x = v.get() as i64;
-            *v = T::put_unchecked(((x + ((1i64 << shift) >> 1)) >> shift) as i32);
-        }
-        *exponent += shift as i32;
+    let acc = track(buf);
+    let widest = T::component_bound(acc);
+    if widest <= T::FIRST_PASS_MAX {
+        return T::magnitude_bound(acc);
     }
-    let acc = buf
-        .chunks_exact(2)
-        .fold(0, |acc, p| T::track(acc, p[0].get(), p[1].get()));
-    T::magnitude_bound(acc)
+    let shift = 32 - (T::FIRST_PASS_MAX + 1).leading_zeros() - 1;
+    let shift = (32 - widest.leading_zeros()).saturating_sub(shift);
+    for v in buf.iter_mut() {
+        // Floor, not rounding: rounding could carry the largest value just
+        // past the bound (only inputs using the type's whole range get here).
+        *v = T::put_unchecked(v.get() >> shift);
+    }
+    *exponent += shift as i32;
+    T::magnitude_bound(track(buf))
 }
 
 /// Bit-reversal permutation of `half` complex pairs.
@@ -444,14 +454,38 @@ fn first_radix2<T: BfpSample>(buf: &mut [T], bound: u32, exponent: &mut i32) -> 
     after.min(T::magnitude_bound(acc))
 }
 
-/// The first two levels (twiddles 1 and −i), each with its own shift.
+/// The first two levels (twiddles 1 and −i): sums of four inputs, exact in
+/// `i32` (at most 4 · 32768 for 16-bit data, 4 · LIMIT < 2^31 for 32-bit),
+/// rounded once with the two levels' shift.
 #[inline(never)]
 fn first_radix4<T: BfpSample>(buf: &mut [T], bound: u32, exponent: &mut i32) -> u32 {
-    let (s1, b1) = shift_for(grown(bound), T::LIMIT);
-    let (s2, after) = shift_for(grown(b1), T::LIMIT);
-    let one = (T::ONE, T::ZERO);
-    let acc = column::<T, true>(buf, 1, 0, one, one, (s1, s2), 0);
-    *exponent += (s1 + s2) as i32;
+    let (s, after) = shift_for(grown(grown(bound) as u32), T::LIMIT);
+    let r = (1i32 << s) >> 1;
+    let mut acc = 0u32;
+    for g in buf.chunks_exact_mut(8) {
+        let x: [i32; 8] = core::array::from_fn(|i| g[i].get());
+        // Level 1: (x0, x1) and (x2, x3), twiddle 1.
+        let (ar, ai, br, bi) = (x[0] + x[2], x[1] + x[3], x[0] - x[2], x[1] - x[3]);
+        let (cr, ci, dr, di) = (x[4] + x[6], x[5] + x[7], x[4] - x[6], x[5] - x[7]);
+        // Level 2: (a, c) with twiddle 1, (b, d) with −i: −i·d = (di, −dr).
+        let out = [
+            (ar + cr + r) >> s,
+            (ai + ci + r) >> s,
+            (br + di + r) >> s,
+            (bi - dr + r) >> s,
+            (ar - cr + r) >> s,
+            (ai - ci + r) >> s,
+            (br - di + r) >> s,
+            (bi + dr + r) >> s,
+        ];
+        for pair in out.chunks_exact(2) {
+            acc = T::track(acc, pair[0], pair[1]);
+        }
+        for (d, v) in g.iter_mut().zip(out) {
+            *d = T::put(v);
+        }
+    }
+    *exponent += s as i32;
     after.min(T::magnitude_bound(acc))
 }
 
