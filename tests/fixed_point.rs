@@ -474,11 +474,26 @@ fn integer_square_root_is_the_floor_of_the_real_one() {
     values.extend((0..64).map(|b| 1u64 << b));
     values.extend((0..20000).map(|_| r.random::<u64>() >> r.random_range(0..64)));
     values.push(u64::MAX);
-    for v in values {
+    for &v in &values {
         let root = stapes_core::fixed_path::isqrt_u64(v) as u128;
         assert!(
             root * root <= v as u128 && (root + 1) * (root + 1) > v as u128,
             "isqrt({v}) = {root}"
         );
+    }
+    // Both 32-bit forms (Newton where the core divides, digits on Cortex-M0)
+    // give the floor, so every core computes the same bits.
+    use stapes_core::fixed_path::{isqrt_u32_by_digits, isqrt_u32_by_newton};
+    let mut v32: Vec<u32> = values.iter().map(|&v| v as u32).collect();
+    v32.extend((0..32).flat_map(|b| [1u32 << b, (1u32 << b) - 1, (1u32 << b) + 1]));
+    v32.extend([u32::MAX, u32::MAX - 1, 65535 * 65535, 65536 * 65535]);
+    for v in v32 {
+        let (n, d) = (isqrt_u32_by_newton(v), isqrt_u32_by_digits(v));
+        let root = n as u64;
+        assert!(
+            root * root <= v as u64 && (root + 1) * (root + 1) > v as u64,
+            "isqrt({v}) = {root}"
+        );
+        assert_eq!(n, d, "isqrt({v})");
     }
 }

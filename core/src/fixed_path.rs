@@ -312,8 +312,44 @@ impl FrameData for i32 {
 }
 
 /// Integer square root (floor) of a `u32`.
+///
+/// Where the core divides in hardware (Cortex-M3/M4/M7/M33, hosts): Newton's
+/// iteration `r ← (r + v/r) / 2` from a power of two above `√v`, which falls
+/// monotonically to `⌊√v⌋` in about five steps. On Cortex-M0 (no divide
+/// instruction): digit by digit, two bits per step. Both give the floor, so
+/// the bits are the same everywhere (tested against each other).
 #[inline]
 pub fn isqrt_u32(v: u32) -> u32 {
+    #[cfg(stapes_no_long_multiply)]
+    {
+        isqrt_u32_by_digits(v)
+    }
+    #[cfg(not(stapes_no_long_multiply))]
+    {
+        isqrt_u32_by_newton(v)
+    }
+}
+
+/// [`isqrt_u32`] by Newton's iteration (one division per step).
+#[inline]
+pub fn isqrt_u32_by_newton(v: u32) -> u32 {
+    if v < 2 {
+        return v;
+    }
+    // 2^ceil(bits/2) ≥ √v.
+    let mut r = 1u32 << (32 - v.leading_zeros()).div_ceil(2);
+    loop {
+        let next = (r + v / r) >> 1;
+        if next >= r {
+            return r;
+        }
+        r = next;
+    }
+}
+
+/// [`isqrt_u32`] digit by digit (shifts, adds and compares only).
+#[inline]
+pub fn isqrt_u32_by_digits(v: u32) -> u32 {
     if v == 0 {
         return 0;
     }
