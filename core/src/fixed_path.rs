@@ -7,11 +7,14 @@
 //!   in the `f32` path). DC removal and pre-emphasis are run at frame time
 //!   from the filter state saved at the frame's first sample, in `i32` with
 //!   13 extra fraction bits (`i64` products), so the stored stream stays exact.
+//! * **Offset compensation** (16-bit data, windows whose DFT has only bins 0
+//!   and ±1, see [`offset_spectrum`]): the frame's window-weighted mean is
+//!   taken out before the FFT and added back to bins 0 and 1 exactly.
 //! * **Normalisation before windowing**: the conditioned frame is shifted so
 //!   its largest sample uses the FFT's full range (15 bits for
 //!   [`Fixed16`](crate::int_fft::Fixed16), 29 for [`Fixed32`](crate::int_fft::Fixed32)); quiet frames keep their precision.
-//! * **Window**: Q15, rounded product.
-//! * **FFT**: block floating point ([`crate::int_fft`]), exponent tracked.
+//! * **Window**: Q15 (16-bit data) or Q31 (32-bit data), rounded product.
+//! * **FFT**: one-pass block floating point ([`crate::int_fft`]), exponent tracked.
 //! * **Spectrum**: `re² + im²` exactly (`u32` for 16-bit data; `u64` shifted
 //!   right just enough that no band sum can overflow, for 32-bit data), or an
 //!   integer square root of it for magnitude configurations.
@@ -23,9 +26,10 @@
 //!   offset, the floor, and saturation to the `i16` range.
 //!
 //! # Saturation rules
-//! Every narrowing saturates (never wraps): normalised samples, FFT stages
-//! (which never need it: their shifts are chosen so no value can overflow),
-//! and the output (±128 output units). Digital silence gives exactly the floor.
+//! No value can wrap: normalised samples and windowed values fit by
+//! construction, the FFT's shifts are chosen from a bound so no value can
+//! overflow, and the output saturates (±128 output units). Digital silence
+//! gives exactly the floor.
 //!
 //! ```
 //! use stapes_core::fixed_path::FixedFrontEnd;
@@ -930,7 +934,7 @@ where
                 }
             }
         }
-        // Spectrum and log are computed band by band inside the mel loop.
+        // The log is taken band by band inside the mel loop.
         probe.mark(Stage::Mel);
         self.framer.end_frame(<P::Data as FrameData>::from_raw);
         probe.mark(Stage::Log);

@@ -24,10 +24,11 @@ pub enum Stage {
     Window = 0,
     /// The real FFT.
     Fft = 1,
-    /// Power or magnitude (the fixed path computes it inside [`Stage::Mel`]).
+    /// Power or magnitude, once per bin (the fixed path also adds back the
+    /// frame's offset here).
     Spectrum = 2,
-    /// Filterbank accumulation and gains (the fixed path also computes the
-    /// spectrum and the log here, band by band).
+    /// Filterbank accumulation and gains (the fixed path also takes the log
+    /// here, band by band).
     Mel = 3,
     /// Log and floor (in the fixed path only the overlap restore remains).
     Log = 4,
