@@ -474,12 +474,16 @@ fn integer_square_root_is_the_floor_of_the_real_one() {
     values.extend((0..64).map(|b| 1u64 << b));
     values.extend((0..20000).map(|_| r.random::<u64>() >> r.random_range(0..64)));
     values.push(u64::MAX);
+    use stapes_core::fixed_path::{isqrt_u64_by_digits, isqrt_u64_by_halves};
     for &v in &values {
         let root = stapes_core::fixed_path::isqrt_u64(v) as u128;
         assert!(
             root * root <= v as u128 && (root + 1) * (root + 1) > v as u128,
             "isqrt({v}) = {root}"
         );
+        // Both 64-bit forms (halves where the core multiplies to 64 bits,
+        // digits on Cortex-M0) give the same bits.
+        assert_eq!(isqrt_u64_by_halves(v), isqrt_u64_by_digits(v), "isqrt({v})");
     }
     // Both 32-bit forms (Newton where the core divides, digits on Cortex-M0)
     // give the floor, so every core computes the same bits.

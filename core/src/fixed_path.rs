@@ -335,7 +335,7 @@ pub fn isqrt_u32(v: u32) -> u32 {
 }
 
 /// [`isqrt_u32`] by Newton's iteration (one division per step).
-#[inline]
+#[inline(never)]
 pub fn isqrt_u32_by_newton(v: u32) -> u32 {
     if v < 2 {
         return v;
@@ -372,11 +372,48 @@ pub fn isqrt_u32_by_digits(v: u32) -> u32 {
 }
 
 /// Integer square root (floor) of a `u64`.
+///
+/// Where the core has a 32 × 32 → 64-bit multiply (not Cortex-M0): the top
+/// half of the root from [`isqrt_u32`] of `v`'s leading bits, then the
+/// remaining bits one at a time, each kept if its square stays within `v`.
+/// (With `R = ⌊√v⌋` and `h = ⌊√⌊v / 4^k⌋⌋`, `R >> k = h` exactly, so the
+/// greedy low bits give `R`.) On Cortex-M0: digit by digit. Both give the
+/// floor (tested against each other).
 #[inline]
 pub fn isqrt_u64(v: u64) -> u64 {
-    // Digit by digit, two bits of `v` per step, starting at its leading pair:
-    // shifts, adds and compares only (no division, which is a library call on
-    // Cortex-M for 64 bits).
+    #[cfg(stapes_no_long_multiply)]
+    {
+        isqrt_u64_by_digits(v)
+    }
+    #[cfg(not(stapes_no_long_multiply))]
+    {
+        isqrt_u64_by_halves(v)
+    }
+}
+
+/// [`isqrt_u64`] from a 32-bit root and the remaining bits.
+#[inline(never)]
+pub fn isqrt_u64_by_halves(v: u64) -> u64 {
+    if v >> 32 == 0 {
+        return isqrt_u32(v as u32) as u64;
+    }
+    // v >> 2k < 2^32.
+    let k = (64 - v.leading_zeros() - 32).div_ceil(2);
+    let mut root = (isqrt_u32((v >> (2 * k)) as u32) as u64) << k;
+    for b in (0..k).rev() {
+        // root < 2^32, so the square fits u64.
+        let c = root | (1 << b);
+        if c * c <= v {
+            root = c;
+        }
+    }
+    root
+}
+
+/// [`isqrt_u64`] digit by digit: two bits of `v` per step, starting at its
+/// leading pair; shifts, adds and compares only.
+#[inline]
+pub fn isqrt_u64_by_digits(v: u64) -> u64 {
     if v == 0 {
         return 0;
     }
