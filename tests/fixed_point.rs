@@ -501,3 +501,84 @@ fn integer_square_root_is_the_floor_of_the_real_one() {
         assert_eq!(n, d, "isqrt({v})");
     }
 }
+
+/// The FFT's bound-chosen shifts under the inputs that grow fastest: full-scale
+/// constants (all energy into one bin), alternating signs, impulses at −32768
+/// (a flat spectrum), and full-scale squares and cosines at several bins. The
+/// FFT's own debug assertions (on in the tests) fail on any value beyond its
+/// limit; the output must still match rustfft's DFT (SNR ≥ 60 dB for 16-bit
+/// data, ≥ 130 dB for 32-bit). The inputs are facts of the DFT (common practice).
+#[test]
+fn integer_fft_never_overflows_on_the_fastest_growing_inputs() {
+    let mut sizes: Vec<usize> = all_presets()
+        .iter()
+        .map(|(_, c)| c.fft_points as usize)
+        .collect();
+    sizes.extend([16, 32, 64, 128, 1024, 2048]);
+    sizes.sort();
+    sizes.dedup();
+    for n in sizes {
+        let c = FeatureConfig {
+            fft_points: n as u32,
+            window_samples: n as u32,
+            hop_samples: (n / 4) as u32,
+            bands: (n as u32 / 16).clamp(2, 40),
+            ..SPEECH16K_40
+        };
+        assert!(c.validate().is_ok(), "N = {n}");
+        let t = GeneratedTables::new(&c);
+        let mut inputs: Vec<(String, Vec<f64>)> = vec![
+            ("constant +".into(), vec![1.0; n]),
+            ("constant -".into(), vec![-1.0; n]),
+            (
+                "alternating".into(),
+                (0..n)
+                    .map(|i| if i % 2 == 0 { 1.0 } else { -1.0 })
+                    .collect(),
+            ),
+            (
+                "impulse -1".into(),
+                (0..n).map(|i| if i == 0 { -1.0 } else { 0.0 }).collect(),
+            ),
+        ];
+        for k in [1, 3, n / 8, n / 4 - 1, n / 2 - 1] {
+            let phase = |i: usize| 2.0 * std::f64::consts::PI * (k * i) as f64 / n as f64;
+            inputs.push((
+                format!("square bin {k}"),
+                (0..n).map(|i| phase(i).cos().signum()).collect(),
+            ));
+            inputs.push((
+                format!("cosine bin {k}"),
+                (0..n).map(|i| phase(i).cos()).collect(),
+            ));
+        }
+        for (name, x) in inputs {
+            let x16: Vec<i16> = x
+                .iter()
+                .map(|&v| (v * 32768.0).clamp(-32768.0, 32767.0) as i16)
+                .collect();
+            let mut b16 = x16.clone();
+            let e16 = real_fft::<Fixed16>(&mut b16, &t.twiddles_q15);
+            let want = dft(&x16.iter().map(|&v| v as f64).collect::<Vec<_>>());
+            let s16 = snr_db(
+                &b16.iter().map(|&v| v as f64).collect::<Vec<_>>(),
+                e16,
+                &want,
+            );
+            let x32: Vec<i32> = x
+                .iter()
+                .map(|&v| (v * 2147483648.0).clamp(-2147483648.0, 2147483647.0) as i32)
+                .collect();
+            let mut b32 = x32.clone();
+            let e32 = real_fft::<Fixed32>(&mut b32, &t.twiddles_q31);
+            let want = dft(&x32.iter().map(|&v| v as f64).collect::<Vec<_>>());
+            let s32 = snr_db(
+                &b32.iter().map(|&v| v as f64).collect::<Vec<_>>(),
+                e32,
+                &want,
+            );
+            assert!(s16 >= 60.0, "N = {n}, {name}: fixed16 SNR {s16:.1} dB");
+            assert!(s32 >= 130.0, "N = {n}, {name}: fixed32 SNR {s32:.1} dB");
+        }
+    }
+}

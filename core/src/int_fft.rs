@@ -154,8 +154,9 @@ impl BfpSample for i16 {
     }
     #[inline(always)]
     fn track(acc: u32, re: i32, im: i32) -> u32 {
-        // |re|, |im| ≤ 32767: re² + im² < 2^31.
-        acc.max((re * re + im * im) as u32)
+        // |re|, |im| ≤ 32768 (the input may hold −32768): each square ≤ 2^30,
+        // their sum ≤ 2^31, summed in u32.
+        acc.max((re * re) as u32 + (im * im) as u32)
     }
     #[inline]
     fn magnitude_bound(acc: u32) -> u32 {
