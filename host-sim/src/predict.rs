@@ -12,7 +12,7 @@
 //! speech-like synthesized clip; a log chirp over the band range plus white
 //! noise, at 0, −12 and −30 dBFS; a linear chirp over the whole spectrum
 //! with hiss; a loud high tone over faint hiss; a low tone on a 20 % DC offset; a
-//! constant; noise at −60 dBFS; a step. An error above half a tolerance on
+//! constant; noise at −60 dBFS; a step. An error above 80 % of a tolerance on
 //! the sweep counts as a warning (other material goes further). These are the
 //! material on which custom configurations were seen to fail (pre-emphasis
 //! near 1, magnitude spectra, offsets, near-silence).
@@ -52,11 +52,11 @@ pub struct Predicted {
 }
 
 impl Predicted {
-    /// Whether the sweep stays within half the tolerance. The sweep is a
-    /// sample of material, so an error above half the tolerance there is
+    /// Whether the sweep stays within 80 % of the tolerance. The sweep is a
+    /// sample of material, so an error above 80 % of the tolerance there is
     /// taken as one that other material will exceed.
     pub fn within(&self) -> bool {
-        self.max_error_db <= 0.5 * self.tolerance.max_error_db
+        self.max_error_db <= 0.8 * self.tolerance.max_error_db
     }
 
     /// Whether the sweep itself exceeds the tolerance.
@@ -69,7 +69,7 @@ impl Predicted {
         if self.exceeds() {
             "EXCEEDS"
         } else if !self.within() {
-            "MARGINAL (above half the tolerance)"
+            "MARGINAL (above 80 % of the tolerance)"
         } else {
             "within"
         }
@@ -225,7 +225,7 @@ pub fn warnings(config: &FeatureConfig, arith: Arith) -> Result<Vec<String>> {
                 arith.name(),
                 p.max_error_db,
                 p.tolerance.range_db,
-                if p.exceeds() { "beyond" } else { "more than half of" },
+                if p.exceeds() { "beyond" } else { "more than 80 % of" },
                 p.tolerance.max_error_db
             ));
         }
