@@ -351,25 +351,42 @@ pub fn isqrt_u32_by_newton(v: u32) -> u32 {
     }
 }
 
-/// [`isqrt_u32`] digit by digit (shifts, adds and compares only).
-#[inline]
-pub fn isqrt_u32_by_digits(v: u32) -> u32 {
-    if v == 0 {
-        return 0;
-    }
-    let (mut rem, mut root) = (v, 0u32);
-    let mut bit = 1u32 << ((31 - v.leading_zeros()) & !1);
-    while bit != 0 {
-        if rem >= root + bit {
-            rem -= root + bit;
-            root = (root >> 1) + bit;
-        } else {
-            root >>= 1;
+/// Digit-by-digit integer square root for one unsigned width: two bits of
+/// `v` per step from its leading pair; shifts, adds and compares only.
+macro_rules! isqrt_by_digits {
+    ($name:ident, $t:ty, $doc:literal) => {
+        #[doc = $doc]
+        #[inline]
+        pub fn $name(v: $t) -> $t {
+            if v == 0 {
+                return 0;
+            }
+            let (mut rem, mut root) = (v, 0);
+            let mut bit: $t = 1 << ((<$t>::BITS - 1 - v.leading_zeros()) & !1);
+            while bit != 0 {
+                if rem >= root + bit {
+                    rem -= root + bit;
+                    root = (root >> 1) + bit;
+                } else {
+                    root >>= 1;
+                }
+                bit >>= 2;
+            }
+            root
         }
-        bit >>= 2;
-    }
-    root
+    };
 }
+
+isqrt_by_digits!(
+    isqrt_u32_by_digits,
+    u32,
+    "[`isqrt_u32`] digit by digit (shifts, adds and compares only)."
+);
+isqrt_by_digits!(
+    isqrt_u64_by_digits,
+    u64,
+    "[`isqrt_u64`] digit by digit (shifts, adds and compares only)."
+);
 
 /// Integer square root (floor) of a `u64`.
 ///
@@ -406,28 +423,6 @@ pub fn isqrt_u64_by_halves(v: u64) -> u64 {
         if c * c <= v {
             root = c;
         }
-    }
-    root
-}
-
-/// [`isqrt_u64`] digit by digit: two bits of `v` per step, starting at its
-/// leading pair; shifts, adds and compares only.
-#[inline]
-pub fn isqrt_u64_by_digits(v: u64) -> u64 {
-    if v == 0 {
-        return 0;
-    }
-    let mut rem = v;
-    let mut root = 0u64;
-    let mut bit = 1u64 << ((63 - v.leading_zeros()) & !1);
-    while bit != 0 {
-        if rem >= root + bit {
-            rem -= root + bit;
-            root = (root >> 1) + bit;
-        } else {
-            root >>= 1;
-        }
-        bit >>= 2;
     }
     root
 }

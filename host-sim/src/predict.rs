@@ -85,13 +85,9 @@ pub fn signals(config: &FeatureConfig) -> Vec<(&'static str, Vec<i16>)> {
     let mut rng = Pcg64Mcg::seed_from_u64(0x0bad_c0de);
     let to_i16 = crate::sweep::to_i16;
     let duration = len as f64 / fs;
-    let k = hi / lo;
-    let chirp_noise: Vec<f64> = (0..len)
-        .map(|n| {
-            let t = n as f64 / fs;
-            (2.0 * PI * lo * duration / k.ln() * (k.powf(t / duration) - 1.0)).sin()
-                + 0.05 * (rng.random::<f64>() * 2.0 - 1.0)
-        })
+    let chirp_noise: Vec<f64> = crate::sweep::log_chirp(lo, hi, fs, len)
+        .into_iter()
+        .map(|v| v + 0.05 * (rng.random::<f64>() * 2.0 - 1.0))
         .collect();
     let f_low = (lo * 2.0).min(hi);
     let tone_offset: Vec<f64> = (0..len)

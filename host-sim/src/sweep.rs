@@ -38,6 +38,19 @@ pub(crate) fn to_i16(x: &[f64], peak: f64) -> Vec<i16> {
         .collect()
 }
 
+/// A unit-amplitude chirp whose frequency rises exponentially from `lo` to
+/// `hi` Hz over `len` samples at `fs` (phase = 2π∫f dt, common practice).
+pub(crate) fn log_chirp(lo: f64, hi: f64, fs: f64, len: usize) -> Vec<f64> {
+    let duration = len as f64 / fs;
+    let k = hi / lo;
+    (0..len)
+        .map(|n| {
+            let t = n as f64 / fs;
+            (2.0 * PI * lo * duration / k.ln() * (k.powf(t / duration) - 1.0)).sin()
+        })
+        .collect()
+}
+
 /// The sweep's signals at `level_dbfs` (peak level) for `config`'s rate and band range.
 pub fn signals(config: &FeatureConfig, level_dbfs: f64) -> Vec<SweepSignal> {
     let fs = config.sample_rate_hz as f64;
@@ -83,14 +96,7 @@ pub fn signals(config: &FeatureConfig, level_dbfs: f64) -> Vec<SweepSignal> {
         name: "pink noise".into(),
         samples: to_i16(&pink, peak),
     });
-    let duration = len as f64 / fs;
-    let k = hi / lo;
-    let chirp: Vec<f64> = (0..len)
-        .map(|n| {
-            let t = n as f64 / fs;
-            (2.0 * PI * lo * duration / k.ln() * (k.powf(t / duration) - 1.0)).sin()
-        })
-        .collect();
+    let chirp = log_chirp(lo, hi, fs, len);
     out.push(SweepSignal {
         name: "log chirp".into(),
         samples: to_i16(&chirp, peak),
