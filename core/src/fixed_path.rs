@@ -243,7 +243,8 @@ impl FrameData for i16 {
 }
 
 impl FrameData for i32 {
-    // The FFT keeps 32-bit data within ±(2^29 − 1) (its guard bits).
+    // The FFT keeps 32-bit data within ±(2^29 − 4) (its guard bits); a
+    // windowed sample beyond that is shifted into range by the FFT.
     const SAMPLE_BITS: u32 = 29;
     const HOLDS_CONDITIONED: bool = true;
     const OFFSET_COMPENSATION: bool = false;

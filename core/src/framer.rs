@@ -11,12 +11,18 @@
 //! store, the buffer is transformed in place, and the overlap is put back. RAM
 //! is `FRAME + OVERLAP` elements, not a separate history ring plus FFT buffer.
 
+/// A buffer on a 4-byte boundary, so that the integer FFT can read pairs of
+/// 16-bit values as words.
+#[derive(Clone, Debug)]
+#[repr(C, align(4))]
+struct WordAligned<A>(A);
+
 /// Frame assembly over an FFT-sized buffer of `T`, with the shared samples
 /// kept as `O` between frames (the fixed path keeps raw `i16` samples there
 /// even when its FFT works in `i32`).
 #[derive(Clone, Debug)]
 pub struct Framer<T, O, const FRAME: usize, const OVERLAP: usize> {
-    frame: [T; FRAME],
+    frame: WordAligned<[T; FRAME]>,
     overlap: [O; OVERLAP],
     fill: usize,
     window: usize,
@@ -31,7 +37,7 @@ impl<T: Copy + Default, O: Copy + Default, const FRAME: usize, const OVERLAP: us
     /// `window - hop <= OVERLAP` (the front ends check this once).
     pub fn new(window: usize, hop: usize) -> Self {
         Framer {
-            frame: [T::default(); FRAME],
+            frame: WordAligned([T::default(); FRAME]),
             overlap: [O::default(); OVERLAP],
             fill: 0,
             window,
@@ -56,7 +62,7 @@ impl<T: Copy + Default, O: Copy + Default, const FRAME: usize, const OVERLAP: us
         let want = self.window - self.fill;
         let take = want.min(input.len());
         let (now, rest) = input.split_at(take);
-        for (slot, &s) in self.frame[self.fill..self.fill + take].iter_mut().zip(now) {
+        for (slot, &s) in self.frame.0[self.fill..self.fill + take].iter_mut().zip(now) {
             *slot = convert(s);
         }
         self.fill += take;
@@ -68,7 +74,7 @@ impl<T: Copy + Default, O: Copy + Default, const FRAME: usize, const OVERLAP: us
     /// [`Framer::begin_frame`] before changing it and [`Framer::end_frame`] after.
     #[inline]
     pub fn buffer_mut(&mut self) -> &mut [T; FRAME] {
-        &mut self.frame
+        &mut self.frame.0
     }
 
     /// Saves the samples the next frame shares, converted by `store`.
@@ -77,7 +83,7 @@ impl<T: Copy + Default, O: Copy + Default, const FRAME: usize, const OVERLAP: us
         let keep = self.window - self.hop;
         for (o, &v) in self.overlap[..keep]
             .iter_mut()
-            .zip(&self.frame[self.hop..self.window])
+            .zip(&self.frame.0[self.hop..self.window])
         {
             *o = store(v);
         }
@@ -87,7 +93,7 @@ impl<T: Copy + Default, O: Copy + Default, const FRAME: usize, const OVERLAP: us
     #[inline]
     pub fn end_frame(&mut self, load: impl Fn(O) -> T) {
         let keep = self.window - self.hop;
-        for (v, &o) in self.frame[..keep].iter_mut().zip(&self.overlap[..keep]) {
+        for (v, &o) in self.frame.0[..keep].iter_mut().zip(&self.overlap[..keep]) {
             *v = load(o);
         }
         self.fill = keep;

@@ -8,25 +8,27 @@
 //! `i64`).
 //!
 //! **Passes**: after the bit-reversal permutation, the radix-2 levels run
-//! two at a time (radix 2², one read and one write of the buffer for two
-//! levels); when the number of levels is odd, the first level runs alone.
-//! The first pass needs no multiply (its twiddles are 1 and −i).
+//! two at a time as radix-4 passes (one read and one write of the buffer
+//! for two levels, three complex products per four points); when the number
+//! of levels is odd, the first level runs alone. The first pass needs no
+//! multiply (its twiddles are 1 and −i).
 //!
-//! **Block floating point, one pass per level, shifts from a bound**: every
-//! value stored in the buffer stays within `±LIMIT` (32767 for `i16`,
-//! `2^29 − 1` for `i32`, leaving the guard bits that let butterfly sums
-//! stay inside `i32`). Before each level, its shift (0 to 3 bits) is chosen
-//! from a bound `M` on the magnitudes `|z|` of its inputs: a level maps
-//! `(a, b)` to `a ± W·b`, so `|out| ≤ |a| + |b| ≤ 2M` (plus rounding), and
-//! the shift is the smallest that keeps `2M` within `LIMIT`. Each pass
-//! tracks what it wrote (the largest `re² + im²` of 16-bit data, the OR of
-//! the components of 32-bit data) and hands the next pass that tighter
-//! bound. So no output can overflow (no clamp anywhere), nothing is computed
-//! twice, and a quiet frame is never scaled down. The shifts add up to the
-//! frame's exponent.
+//! **Block floating point, one pass per two levels, shifts from a bound**:
+//! every value stored in the buffer stays within `±LIMIT` (32767 for `i16`,
+//! `2^29 − 4` for `i32`, leaving the guard bits that let butterfly sums
+//! stay inside `i32`). Before each pass, its shift (0 to 3 bits) is chosen
+//! from a bound `M` on the magnitudes `|z|` of its inputs: a radix-4 pass
+//! maps four values to sums `y0 ± y1 ± y2 ± y3` of the rotated inputs, so
+//! `|out| ≤ 4M` (plus the products' rounding), and the shift is the smallest
+//! that keeps that within `LIMIT`. Each pass tracks what it wrote (the
+//! largest `re² + im²` of 16-bit data, the OR of the components of 32-bit
+//! data) and hands the next pass that tighter bound. So no output can
+//! overflow (no clamp anywhere), nothing is computed twice, and a quiet
+//! frame is never scaled down. The shifts add up to the frame's exponent.
 //!
 //! **Rounding**: twiddle products of 16-bit data keep 13 fraction bits;
-//! each level's outputs are rounded once when shifted.
+//! the four terms of an output are summed exactly and rounded once, with
+//! the pass's shift.
 //! Products of 32-bit data are `round(a·b / 2^32)` (the Cortex-M4's
 //! `SMMULR`; on cores without it an exact four-product twin gives the same
 //! bits).
@@ -92,6 +94,12 @@ pub trait BfpSample: Copy + Default + core::fmt::Debug + 'static {
     /// The split step's `W·x · 2^SPLIT_FRAC`, for `|x|` components within
     /// `±2·LIMIT` (differences of two values).
     fn split_rotate(xr: i32, xi: i32, c: Self::Twiddle, s: Self::Twiddle) -> (i32, i32);
+    /// Every column of a radix-4 pass over sub-transforms of `m` points
+    /// (see [`twiddled_columns`]); returns the tracker. The same bits as the
+    /// generic butterflies; a type may run them on packed words.
+    fn radix4_columns(buf: &mut [Self], quarter: &[Self::Twiddle], m: usize, shift: u32) -> u32 {
+        twiddled_columns::<Self>(buf, quarter, m, shift)
+    }
 }
 
 /// 16-bit data, Q15 twiddles: fast.
@@ -184,6 +192,17 @@ impl BfpSample for i16 {
         let total = Self::SPLIT_FRAC + 1 + shift;
         Self::put(((e << Self::SPLIT_FRAC) - t + (1 << (total - 1))) >> total)
     }
+    #[cfg(not(stapes_no_long_multiply))]
+    fn radix4_columns(buf: &mut [i16], quarter: &[i16], m: usize, shift: u32) -> u32 {
+        // Pairs read as words where the buffer is word-aligned (the front
+        // ends' frame buffers are) on a little-endian core.
+        match bytemuck::try_cast_slice_mut::<i16, u32>(buf) {
+            Ok(words) if cfg!(target_endian = "little") => {
+                packed16_columns(words, quarter, m, shift)
+            }
+            _ => twiddled_columns::<i16>(buf, quarter, m, shift),
+        }
+    }
 }
 
 /// `round(a·b / 2^32)` (halves rounded up), exactly.
@@ -240,9 +259,12 @@ impl BfpSample for i32 {
     type Twiddle = i32;
     const ZERO: i32 = 0;
     const ONE: i32 = i32::MAX;
-    const LIMIT: u32 = (1 << 29) - 1;
+    // A radix-4 output sums four terms, each within its input's bound plus
+    // 1 (the products' rounding), and the rounding half of a shift of at
+    // most 3: 4·(2^29 − 4) + 3 + 4 < 2^31.
+    const LIMIT: u32 = (1 << 29) - 4;
     const FRAC: u32 = 0;
-    // The first pass sums four inputs: 4 · (2^29 − 1) < 2^31.
+    // The first pass sums four inputs: 4 · LIMIT < 2^31.
     const FIRST_PASS_MAX: u32 = Self::LIMIT;
     const SPLIT_FRAC: u32 = 0;
 
@@ -346,13 +368,33 @@ pub fn real_fft<P: Precision>(
     buf: &mut [P::Data],
     quarter: &[<P::Data as BfpSample>::Twiddle],
 ) -> i32 {
+    transform::<P::Data>(buf, quarter, <P::Data as BfpSample>::radix4_columns)
+}
+
+/// [`real_fft`] with the generic radix-4 butterflies on every type (the
+/// twin that the packed 16-bit butterflies are tested against).
+#[doc(hidden)]
+pub fn real_fft_generic_butterflies<P: Precision>(
+    buf: &mut [P::Data],
+    quarter: &[<P::Data as BfpSample>::Twiddle],
+) -> i32 {
+    transform::<P::Data>(buf, quarter, twiddled_columns::<P::Data>)
+}
+
+/// The real FFT with the given radix-4 column kernel.
+#[inline(always)]
+fn transform<T: BfpSample>(
+    buf: &mut [T],
+    quarter: &[T::Twiddle],
+    columns: fn(&mut [T], &[T::Twiddle], usize, u32) -> u32,
+) -> i32 {
     let n = buf.len();
     if n < 16 || !n.is_power_of_two() || quarter.len() != n / 4 + 1 {
         return 0;
     }
     let half = n / 2;
     let mut exponent = 0i32;
-    let mut bound = prepare::<P::Data>(buf, &mut exponent);
+    let mut bound = prepare::<T>(buf, &mut exponent);
     bit_reverse_pairs(buf, half);
     let mut m = if half.trailing_zeros() % 2 == 1 {
         bound = first_radix2(buf, bound, &mut exponent);
@@ -362,7 +404,10 @@ pub fn real_fft<P: Precision>(
         4
     };
     while m < half {
-        bound = radix4_pass(buf, quarter, m, bound, &mut exponent);
+        let (s, after) = shift_for(grown4(bound), T::LIMIT);
+        let acc = columns(buf, quarter, m, s);
+        exponent += s as i32;
+        bound = after.min(T::magnitude_bound(acc));
         m *= 4;
     }
     split(buf, quarter, bound, &mut exponent);
@@ -396,13 +441,15 @@ fn prepare<T: BfpSample>(buf: &mut [T], exponent: &mut i32) -> u32 {
 /// Bit-reversal permutation of `half` complex pairs.
 #[inline(never)]
 fn bit_reverse_pairs<T: BfpSample>(buf: &mut [T], half: usize) {
+    let (pairs, _) = buf.as_chunks_mut::<2>();
+    let pairs = &mut pairs[..half];
     let bits = half.trailing_zeros();
     #[cfg(not(stapes_no_long_multiply))]
-    for i in 0..half {
+    for i in 0..pairs.len() {
         // `RBIT` on the Cortex-M4.
         let j = i.reverse_bits() >> (usize::BITS - bits);
         if j > i {
-            swap_pairs(buf, i, j);
+            pairs.swap(i, j);
         }
     }
     #[cfg(stapes_no_long_multiply)]
@@ -410,9 +457,9 @@ fn bit_reverse_pairs<T: BfpSample>(buf: &mut [T], half: usize) {
         // No bit-reverse instruction: count j in reversed order alongside i.
         let _ = bits;
         let mut j = 0usize;
-        for i in 0..half {
+        for i in 0..pairs.len() {
             if j > i {
-                swap_pairs(buf, i, j);
+                pairs.swap(i, j);
             }
             let mut bit = half >> 1;
             while j & bit != 0 {
@@ -421,15 +468,6 @@ fn bit_reverse_pairs<T: BfpSample>(buf: &mut [T], half: usize) {
             }
             j |= bit;
         }
-    }
-}
-
-/// Swaps complex pairs `i < j` (one bounds check for both).
-#[inline(always)]
-fn swap_pairs<T: BfpSample>(buf: &mut [T], i: usize, j: usize) {
-    let (a, b) = buf.split_at_mut(2 * j);
-    if let (Some(a), Some(b)) = (a.get_mut(2 * i..2 * i + 2), b.get_mut(..2)) {
-        a.swap_with_slice(b);
     }
 }
 
@@ -490,114 +528,133 @@ fn first_radix4<T: BfpSample>(buf: &mut [T], bound: u32, exponent: &mut i32) -> 
     after.min(T::magnitude_bound(acc))
 }
 
-/// Two twiddled levels in one pass: sub-transforms of `m` points combine
-/// into transforms of `4m` points (radix 2²), each level with its own shift
-/// (the first from the tracked bound, the second from the first's).
-/// Returns the outputs' magnitude bound.
-fn radix4_pass<T: BfpSample>(
-    buf: &mut [T],
-    quarter: &[T::Twiddle],
-    m: usize,
-    bound: u32,
-    exponent: &mut i32,
-) -> u32 {
-    let (s1, b1) = shift_for(grown(bound), T::LIMIT);
-    let (s2, after) = shift_for(grown(b1), T::LIMIT);
-    let acc = twiddled_columns::<T>(buf, quarter, m, (s1, s2));
-    *exponent += (s1 + s2) as i32;
-    after.min(T::magnitude_bound(acc))
+/// Bound on a radix-4 output's magnitude for inputs within `bound`: the
+/// sum of four magnitudes, each grown by its product's rounding (< 2).
+#[inline]
+fn grown4(bound: u32) -> u64 {
+    4 * bound as u64 + 8
 }
 
-/// Every column of a twiddled pass over sub-transforms of `m` points.
+/// `W^k = (cos, sin)` of `2πk/N` for `0 ≤ k < 3N/4`, from the quarter-wave
+/// table (`q = N/4`).
+#[inline(always)]
+fn twiddle<T: BfpSample>(quarter: &[T::Twiddle], k: usize) -> (T::Twiddle, T::Twiddle) {
+    let q = quarter.len() - 1;
+    if k <= q {
+        (quarter[k], quarter[q - k])
+    } else if k <= 2 * q {
+        (T::neg_twiddle(quarter[2 * q - k]), quarter[k - q])
+    } else {
+        let k = k - 2 * q;
+        (T::neg_twiddle(quarter[k]), T::neg_twiddle(quarter[q - k]))
+    }
+}
+
+/// Two levels in one pass (radix 4): sub-transforms of `m` points combine
+/// into transforms of `4m` points. Each output is `y0 ± y1 ± y2 ± y3` (with
+/// factors `±i`) of the rotated inputs `y_r = W^(r·j)·A_r[j]`, summed
+/// exactly with `FRAC` fraction bits and rounded once with the pass's shift,
+/// chosen from the tracked bound: `|out| ≤ 4·bound` plus the products'
+/// rounding ([`grown4`]). Returns the tracker of what it wrote.
 #[inline(never)]
 fn twiddled_columns<T: BfpSample>(
     buf: &mut [T],
     quarter: &[T::Twiddle],
     m: usize,
-    shifts: (u32, u32),
+    shift: u32,
+) -> u32 {
+    // The shift as a constant: fewer registers live in the butterflies.
+    debug_assert!(shift <= 3, "a radix-4 pass shifts by at most 3");
+    match shift {
+        0 => twiddled_pass::<T, 0>(buf, quarter, m),
+        1 => twiddled_pass::<T, 1>(buf, quarter, m),
+        2 => twiddled_pass::<T, 2>(buf, quarter, m),
+        _ => twiddled_pass::<T, 3>(buf, quarter, m),
+    }
+}
+
+/// [`twiddled_columns`] for one shift.
+#[inline(always)]
+fn twiddled_pass<T: BfpSample, const SHIFT: u32>(
+    buf: &mut [T],
+    quarter: &[T::Twiddle],
+    m: usize,
 ) -> u32 {
     let q = quarter.len() - 1;
-    let st4 = q / m;
+    let step = q / m;
     let one = (T::ONE, T::ZERO);
     // Column 0 has twiddles 1 (exactly: the tables store 1.0 as 1 − 2^-15).
-    let mut acc = column::<T, true>(buf, m, 0, one, one, shifts, 0);
+    let mut acc = column::<T, true, SHIFT>(buf, m, 0, [one; 3], 0);
     for j in 1..m {
-        // W_4m^j in the first quadrant; W_2m^j = (W_4m^j)² in the first or second.
-        let k4 = j * st4;
-        let w4 = (quarter[k4], quarter[q - k4]);
-        let k2 = 2 * k4;
-        let w2 = if k2 <= q {
-            (quarter[k2], quarter[q - k2])
-        } else {
-            (T::neg_twiddle(quarter[2 * q - k2]), quarter[k2 - q])
-        };
-        acc = column::<T, false>(buf, m, j, w2, w4, shifts, acc);
+        // W_4m^(r·j) for r = 1, 2, 3: angles below 3/4 of a turn.
+        let k = j * step;
+        let w = [
+            twiddle::<T>(quarter, k),
+            twiddle::<T>(quarter, 2 * k),
+            twiddle::<T>(quarter, 3 * k),
+        ];
+        acc = column::<T, false, SHIFT>(buf, m, j, w, acc);
     }
     acc
 }
 
-/// The butterflies of column `j` of a radix-2² pass over sub-transforms of
-/// `m` points, in every group; `ONE` skips the multiplies (twiddles 1).
-/// Returns the tracker.
+/// The radix-4 butterflies of column `j` over sub-transforms of `m` points,
+/// in every group; `ONE` skips the multiplies (twiddles 1). After the
+/// bit-reversal permutation a group's four quarters hold the transforms of
+/// the samples `≡ 0, 2, 1, 3 (mod 4)`. Returns the tracker.
 #[inline(always)]
-fn column<T: BfpSample, const ONE: bool>(
+fn column<T: BfpSample, const ONE: bool, const SHIFT: u32>(
     buf: &mut [T],
     m: usize,
     j: usize,
-    (c2, s2): (T::Twiddle, T::Twiddle),
-    (c4, s4): (T::Twiddle, T::Twiddle),
-    (shift1, shift2): (u32, u32),
+    [w1, w2, w3]: [(T::Twiddle, T::Twiddle); 3],
     mut acc: u32,
 ) -> u32 {
     let f = T::FRAC;
-    let (t1, t2) = (f + shift1, f + shift2);
-    let (r1, r2) = ((1i32 << t1) >> 1, (1i32 << t2) >> 1);
-    let rotate = |xr: i32, xi: i32, c, s| {
+    let t = f + SHIFT;
+    let r = (1i32 << t) >> 1;
+    let rotate = |x: &[T], (c, s): (T::Twiddle, T::Twiddle)| {
         if ONE {
-            (xr << f, xi << f)
+            (x[0].get() << f, x[1].get() << f)
         } else {
-            T::rotate(xr, xi, c, s)
+            T::rotate(x[0].get(), x[1].get(), c, s)
         }
     };
     for g in buf.chunks_exact_mut(8 * m) {
         let (p01, p23) = g.split_at_mut(4 * m);
-        let (p0, p1) = p01.split_at_mut(2 * m);
-        let (p2, p3) = p23.split_at_mut(2 * m);
-        let (x0, x1) = (&mut p0[2 * j..2 * j + 2], &mut p1[2 * j..2 * j + 2]);
-        let (x2, x3) = (&mut p2[2 * j..2 * j + 2], &mut p3[2 * j..2 * j + 2]);
-        // Level 1 (transforms of 2m points): a, b from (x0, x1); c, d from (x2, x3).
-        let (u1r, u1i) = rotate(x1[0].get(), x1[1].get(), c2, s2);
-        let (u3r, u3i) = rotate(x3[0].get(), x3[1].get(), c2, s2);
-        let (x0r, x0i) = ((x0[0].get() << f) + r1, (x0[1].get() << f) + r1);
-        let (x2r, x2i) = ((x2[0].get() << f) + r1, (x2[1].get() << f) + r1);
-        let (ar, ai) = ((x0r + u1r) >> t1, (x0i + u1i) >> t1);
-        let (br, bi) = ((x0r - u1r) >> t1, (x0i - u1i) >> t1);
-        let (cr, ci) = ((x2r + u3r) >> t1, (x2i + u3i) >> t1);
-        let (dr, di) = ((x2r - u3r) >> t1, (x2i - u3i) >> t1);
-        // Level 2 (transforms of 4m points): (a, c) with W, (b, d) with −i·W.
-        let (vr, vi) = rotate(cr, ci, c4, s4);
-        let (wr, wi) = rotate(dr, di, c4, s4);
-        let (ar, ai) = ((ar << f) + r2, (ai << f) + r2);
-        let (br, bi) = ((br << f) + r2, (bi << f) + r2);
+        let (p0, p2) = p01.split_at_mut(2 * m);
+        let (p1, p3) = p23.split_at_mut(2 * m);
+        let (x0, x2) = (&mut p0[2 * j..2 * j + 2], &mut p2[2 * j..2 * j + 2]);
+        let (x1, x3) = (&mut p1[2 * j..2 * j + 2], &mut p3[2 * j..2 * j + 2]);
+        // y_r = W^(r·j)·A_r[j]; A_1 sits in the third quarter, A_2 in the second.
+        let (y0r, y0i) = ((x0[0].get() << f) + r, (x0[1].get() << f) + r);
+        let (y1r, y1i) = rotate(x1, w1);
+        let (y2r, y2i) = rotate(x2, w2);
+        let (y3r, y3i) = rotate(x3, w3);
+        let (ar, ai) = (y0r + y2r, y0i + y2i);
+        let (br, bi) = (y0r - y2r, y0i - y2i);
+        let (cr, ci) = (y1r + y3r, y1i + y3i);
+        let (dr, di) = (y1r - y3r, y1i - y3i);
+        // X[j] = a + c, X[j + m] = b − i·d, X[j + 2m] = a − c, X[j + 3m] = b + i·d.
         let out = [
-            (ar + vr) >> t2,
-            (ai + vi) >> t2,
-            (br + wi) >> t2,
-            (bi - wr) >> t2,
-            (ar - vr) >> t2,
-            (ai - vi) >> t2,
-            (br - wi) >> t2,
-            (bi + wr) >> t2,
+            (ar + cr) >> t,
+            (ai + ci) >> t,
+            (br + di) >> t,
+            (bi - dr) >> t,
+            (ar - cr) >> t,
+            (ai - ci) >> t,
+            (br - di) >> t,
+            (bi + dr) >> t,
         ];
         for pair in out.chunks_exact(2) {
             acc = T::track(acc, pair[0], pair[1]);
         }
         x0[0] = T::put(out[0]);
         x0[1] = T::put(out[1]);
-        x1[0] = T::put(out[2]);
-        x1[1] = T::put(out[3]);
-        x2[0] = T::put(out[4]);
-        x2[1] = T::put(out[5]);
+        x2[0] = T::put(out[2]);
+        x2[1] = T::put(out[3]);
+        x1[0] = T::put(out[4]);
+        x1[1] = T::put(out[5]);
         x3[0] = T::put(out[6]);
         x3[1] = T::put(out[7]);
     }
@@ -644,4 +701,95 @@ fn split<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle], bound: u32, expone
     buf[2 * q] = T::split_out(2 * zqr, 0, s);
     buf[2 * q + 1] = T::split_out(-2 * zqi, 0, s);
     *exponent += s as i32;
+}
+
+/// [`twiddled_columns`] for 16-bit data on packed words ([`crate::dsp16`]):
+/// a complex value `(re, im)` is one `u32`, a twiddle `(c, s)` another, and
+/// each 13-fraction-bit product component is one multiply-accumulate
+/// (`SMLAD`/`SMLSDX` on the Cortex-M4). The same bits as the generic
+/// butterflies (tested).
+#[cfg(not(stapes_no_long_multiply))]
+#[inline(never)]
+fn packed16_columns(buf: &mut [u32], quarter: &[i16], m: usize, shift: u32) -> u32 {
+    // The shift as a constant: each output's rounding constant is an
+    // immediate and its low half's shift folds into the packing.
+    debug_assert!(shift <= 3, "a radix-4 pass shifts by at most 3");
+    match shift {
+        0 => packed16_pass::<0>(buf, quarter, m),
+        1 => packed16_pass::<1>(buf, quarter, m),
+        2 => packed16_pass::<2>(buf, quarter, m),
+        _ => packed16_pass::<3>(buf, quarter, m),
+    }
+}
+
+/// [`packed16_columns`] for one shift.
+#[cfg(not(stapes_no_long_multiply))]
+#[inline(always)]
+fn packed16_pass<const SHIFT: u32>(buf: &mut [u32], quarter: &[i16], m: usize) -> u32 {
+    use crate::dsp16::pack;
+    let q = quarter.len() - 1;
+    let step = q / m;
+    let one = pack(i16::MAX as i32, 0);
+    let mut acc = packed16_column::<true, SHIFT>(buf, m, 0, [one; 3], 0);
+    for j in 1..m {
+        let k = j * step;
+        let w = [k, 2 * k, 3 * k].map(|k| {
+            let (c, s) = twiddle::<i16>(quarter, k);
+            pack(c as i32, s as i32)
+        });
+        acc = packed16_column::<false, SHIFT>(buf, m, j, w, acc);
+    }
+    acc
+}
+
+/// One column of [`packed16_columns`] in every group.
+#[cfg(not(stapes_no_long_multiply))]
+#[inline(always)]
+fn packed16_column<const ONE: bool, const SHIFT: u32>(
+    buf: &mut [u32],
+    m: usize,
+    j: usize,
+    [w1, w2, w3]: [u32; 3],
+    mut acc: u32,
+) -> u32 {
+    use crate::dsp16::{cross_multiply_sub, dual_multiply_add, high, low, pack, sum_of_squares};
+    let f = <i16 as BfpSample>::FRAC;
+    let t = f + SHIFT;
+    let r = (1i32 << t) >> 1;
+    // W·x with 13 fraction bits: (c·re + s·im + 2) >> 2, (c·im − s·re + 2) >> 2,
+    // exactly as `<i16 as BfpSample>::rotate`.
+    let rotate = |x: u32, w: u32| {
+        if ONE {
+            (low(x) << f, high(x) << f)
+        } else {
+            (dual_multiply_add(w, x, 2) >> 2, cross_multiply_sub(w, x, 2) >> 2)
+        }
+    };
+    // Pair j of each group's four quarters: words j, j + m, j + 2m, j + 3m.
+    let span = 3 * m + 1;
+    let mut base = j;
+    while base + span <= buf.len() {
+        let g = &mut buf[base..base + span];
+        let (x0, x2, x1, x3) = (g[0], g[m], g[2 * m], g[3 * m]);
+        let (y0r, y0i) = ((low(x0) << f) + r, (high(x0) << f) + r);
+        let (y1r, y1i) = rotate(x1, w1);
+        let (y2r, y2i) = rotate(x2, w2);
+        let (y3r, y3i) = rotate(x3, w3);
+        let (ar, ai) = (y0r + y2r, y0i + y2i);
+        let (br, bi) = (y0r - y2r, y0i - y2i);
+        let (cr, ci) = (y1r + y3r, y1i + y3i);
+        let (dr, di) = (y1r - y3r, y1i - y3i);
+        let out = [
+            pack((ar + cr) >> t, (ai + ci) >> t),
+            pack((br + di) >> t, (bi - dr) >> t),
+            pack((ar - cr) >> t, (ai - ci) >> t),
+            pack((br - di) >> t, (bi + dr) >> t),
+        ];
+        for (k, &v) in out.iter().enumerate() {
+            acc = acc.max(sum_of_squares(v));
+            g[k * m] = v;
+        }
+        base += 4 * m;
+    }
+    acc
 }

@@ -49,7 +49,8 @@
 //! # }
 //! ```
 #![no_std]
-// The only `unsafe` is one Cortex-M4 instruction in `int_fft::mul_high`.
+// The only `unsafe` is single Cortex-M4 DSP instructions (`int_fft::mul_high`,
+// `dsp16`), each behind `cfg(stapes_arm_dsp)` with a portable twin.
 #![deny(unsafe_code)]
 #![deny(missing_docs)]
 
@@ -57,6 +58,7 @@ pub mod blob;
 pub mod conditioning;
 pub mod config;
 pub mod crc32;
+pub mod dsp16;
 pub mod error;
 pub mod fixed_path;
 pub mod fixed_tables;
