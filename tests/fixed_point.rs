@@ -664,3 +664,19 @@ fn packed_word_primitives_match_their_definitions() {
         }
     }
 }
+
+/// The Cortex-M0 form of the 32 × 32 → 64-bit product against `i64`
+/// multiplication on edge and random values.
+#[test]
+fn wide_product_by_halves_is_exact() {
+    use stapes_core::fixed_path::wide_product_by_halves;
+    let mut r = rng(0x64);
+    let edges = [i32::MIN, i32::MIN + 1, -65536, -65535, -32768, -1, 0, 1, 65535, 65536, i32::MAX];
+    let mut values: Vec<i32> = edges.to_vec();
+    values.extend((0..2000).map(|_| r.random::<i32>()));
+    for &a in &values {
+        for &b in values.iter().step_by(7) {
+            assert_eq!(wide_product_by_halves(a, b), a as i64 * b as i64, "{a} * {b}");
+        }
+    }
+}

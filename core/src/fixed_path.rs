@@ -180,7 +180,10 @@ impl FrameData for i16 {
     #[inline(always)]
     fn magnitude(re: i16, im: i16, shift: u32) -> u64 {
         let (re, im) = (re as i32, im as i32);
-        (isqrt_u32((re * re) as u32 + (im * im) as u32) >> shift) as u64
+        // Shifts of 32 or more (offset compensation's) give 0.
+        isqrt_u32((re * re) as u32 + (im * im) as u32)
+            .checked_shr(shift)
+            .unwrap_or(0) as u64
     }
     #[inline(always)]
     fn store_bin(slot: &mut [i16], v: u64) {
@@ -237,8 +240,11 @@ impl FrameData for i16 {
     #[inline(always)]
     fn power(re: i16, im: i16, shift: u32) -> u64 {
         let (re, im) = (re as i32, im as i32);
-        // ≤ 2^31: exact in u32.
-        (((re * re) as u32 + (im * im) as u32) >> shift) as u64
+        // ≤ 2^31: exact in u32 (and shifted in 32 bits: a 64-bit shift is a
+        // library call on Cortex-M0). Shifts of 32 or more give 0.
+        ((re * re) as u32 + (im * im) as u32)
+            .checked_shr(shift)
+            .unwrap_or(0) as u64
     }
 }
 
@@ -258,7 +264,9 @@ impl FrameData for i32 {
     }
     #[inline(always)]
     fn magnitude(re: i32, im: i32, shift: u32) -> u64 {
-        isqrt_u64(Self::power(re, im, 0)) >> shift
+        isqrt_u64(Self::power(re, im, 0))
+            .checked_shr(shift)
+            .unwrap_or(0)
     }
     #[inline(always)]
     fn store_bin(slot: &mut [i32], v: u64) {
@@ -312,8 +320,38 @@ impl FrameData for i32 {
     fn power(re: i32, im: i32, shift: u32) -> u64 {
         let (re, im) = (re as i64, im as i64);
         // Each square ≤ 2^62, their sum ≤ 2^63: exact in u64.
-        ((re * re) as u64 + (im * im) as u64) >> shift
+        ((re * re) as u64 + (im * im) as u64)
+            .checked_shr(shift)
+            .unwrap_or(0)
     }
+}
+
+/// `a · b` as `i64`: one long multiply where the core has it,
+/// [`wide_product_by_halves`] where a 64-bit product would be a library call.
+#[inline(always)]
+pub fn wide_product(a: i32, b: i32) -> i64 {
+    #[cfg(stapes_no_long_multiply)]
+    {
+        wide_product_by_halves(a, b)
+    }
+    #[cfg(not(stapes_no_long_multiply))]
+    {
+        a as i64 * b as i64
+    }
+}
+
+/// `a · b` from four 16 × 16-bit products, each within 32 bits; only their
+/// sum is 64-bit (additions and constant shifts, no library call). Equal to
+/// `a as i64 * b as i64` for every input (tested).
+#[inline(always)]
+pub fn wide_product_by_halves(a: i32, b: i32) -> i64 {
+    let (ah, al) = (a >> 16, (a & 0xffff) as u32);
+    let (bh, bl) = (b >> 16, (b & 0xffff) as u32);
+    // |ah|, |bh| ≤ 2^15 and al, bl < 2^16: each cross product lies within
+    // ±(2^31 − 2^16) (fits i32), al·bl below 2^32 (fits u32).
+    let low = (al * bl) as i64;
+    let mid = (ah * bl as i32) as i64 + (al as i32 * bh) as i64;
+    (((ah * bh) as i64) << 32) + (mid << 16) + low
 }
 
 /// Integer square root (floor) of a `u32`.
@@ -822,15 +860,17 @@ where
         // Spectrum, once per bin, in place: bin k (1 ≤ k < N/2) replaces X[k]
         // at buf[2k], buf[2k + 1]; bin 0 replaces X[0], X[N/2] (both real, at
         // buf[0], buf[1]); bin N/2 is kept aside.
-        let value_of = |re: P::Data, im: P::Data| -> u64 {
+        // A bin's value shifted right by `s` (floor shifts compose, so one
+        // shift by the sum gives the bits of two).
+        let value_of = |re: P::Data, im: P::Data, s: u32| -> u64 {
             if magnitude {
-                <P::Data as FrameData>::magnitude(re, im, shift)
+                <P::Data as FrameData>::magnitude(re, im, s)
             } else {
-                <P::Data as FrameData>::power(re, im, shift)
+                <P::Data as FrameData>::power(re, im, s)
             }
         };
         let zero = P::Data::default();
-        let last = value_of(buf[1], zero);
+        let last = value_of(buf[1], zero, shift);
         // Offset compensation: bins 0 and 1 get d·W(k) back, in i64 (|D| < 2^55),
         // their values in u128; if they outgrow the other bins' 32 bits, the
         // whole frame's values are shifted right by `offset_bin_shift`.
@@ -881,10 +921,11 @@ where
             offset_bins = Some((place(m0, e0), place(m1, e1)));
         }
         let last = last >> offset_bin_shift;
-        let first = value_of(buf[0], zero) >> offset_bin_shift;
+        let total = shift + offset_bin_shift;
+        let first = value_of(buf[0], zero, total);
         <P::Data as FrameData>::store_bin(&mut buf[..2], first);
         for pair in buf[2..].chunks_exact_mut(2) {
-            let v = value_of(pair[0], pair[1]) >> offset_bin_shift;
+            let v = value_of(pair[0], pair[1], total);
             <P::Data as FrameData>::store_bin(pair, v);
         }
         if let Some((v0, v1)) = offset_bins {
@@ -899,14 +940,15 @@ where
 
         let out = &mut self.out[..bands];
         let gains = self.tables.table.band_gains;
-        let k_log = self.tables.params.log2_to_output.to_bits() as i64;
+        let k_log = self.tables.params.log2_to_output.to_bits();
         let mut emit = |b: usize, acc: u64| {
             let level = match log2_q16(acc) {
                 None => floor.to_bits() as i32,
                 Some(l) => {
-                    let log2 = l as i64 + ((energy_exponent as i64) << 16);
+                    // |log2| < 2^31: the energy exponent stays within ±2^14.
+                    let log2 = l + (energy_exponent << 16);
                     // Q16 · Q16 → Q32 output units; to 1/256 units with rounding.
-                    let units = (log2 * k_log + (1 << 23)) >> 24;
+                    let units = (wide_product(log2, k_log) + (1 << 23)) >> 24;
                     let with_gain = units + gains.map_or(0, |g| g[b] as i64);
                     with_gain
                         .max(floor.to_bits() as i64)

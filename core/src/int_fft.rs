@@ -453,23 +453,28 @@ fn bit_reverse_pairs<T: BfpSample>(buf: &mut [T], half: usize) {
         }
     }
     #[cfg(stapes_no_long_multiply)]
-    {
-        // No bit-reverse instruction: count j in reversed order alongside i.
-        let _ = bits;
-        let mut j = 0usize;
-        for i in 0..pairs.len() {
-            if j > i {
-                pairs.swap(i, j);
-            }
-            let mut bit = half >> 1;
-            while j & bit != 0 {
-                j ^= bit;
-                bit >>= 1;
-            }
-            j |= bit;
+    for i in 0..pairs.len() {
+        // No bit-reverse instruction: two lookups in a 256-entry table of
+        // reversed bytes (up to 2^16 pairs).
+        let r = (REVERSED_BYTES[i & 0xff] as usize) << 8 | REVERSED_BYTES[(i >> 8) & 0xff] as usize;
+        let j = r >> (16 - bits);
+        if j > i {
+            pairs.swap(i, j);
         }
     }
 }
+
+/// `REVERSED_BYTES[b]` = the bits of `b` in reverse order.
+#[cfg(stapes_no_long_multiply)]
+static REVERSED_BYTES: [u8; 256] = {
+    let mut t = [0u8; 256];
+    let mut b = 0;
+    while b < 256 {
+        t[b] = (b as u8).reverse_bits();
+        b += 1;
+    }
+    t
+};
 
 /// The first level alone (pairs of points, twiddle 1).
 #[inline(never)]

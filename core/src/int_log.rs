@@ -58,12 +58,26 @@ pub fn log2_q16(x: u64) -> Option<i32> {
     if x == 0 {
         return None;
     }
-    let lz = x.leading_zeros();
-    let int_part = 63 - lz;
-    // Normalise so bit 63 is the leading one; the next bits are the fraction.
-    let norm = x << lz;
-    let index = ((norm >> (63 - INDEX_BITS)) & ((1 << INDEX_BITS) - 1)) as usize;
-    let interp = ((norm >> (63 - INDEX_BITS - INTERP_BITS)) & ((1 << INTERP_BITS) - 1)) as u32;
+    // The leading one's position, and the 22 bits below it (6 for the table
+    // index, 16 for the interpolation), in 32-bit steps: one leading-zero
+    // count and no 64-bit shift (library calls on Cortex-M0).
+    let (hi, lo) = ((x >> 32) as u32, x as u32);
+    let (int_part, bits) = if hi != 0 {
+        let t = 63 - hi.leading_zeros();
+        let s = t - 22; // 10 ..= 41
+        let b = if s < 32 {
+            (lo >> s) | (hi << (32 - s))
+        } else {
+            hi >> (s - 32)
+        };
+        (t, b)
+    } else {
+        let t = 31 - lo.leading_zeros();
+        let b = if t >= 22 { lo >> (t - 22) } else { lo << (22 - t) };
+        (t, b)
+    };
+    let index = ((bits >> INTERP_BITS) & ((1 << INDEX_BITS) - 1)) as usize;
+    let interp = bits & ((1 << INTERP_BITS) - 1);
     let lo = LOG2_TABLE[index];
     let hi = LOG2_TABLE[index + 1];
     let frac = lo + (((hi - lo) * interp + (1 << (INTERP_BITS - 1))) >> INTERP_BITS);
