@@ -568,28 +568,11 @@ fn twiddled_columns<T: BfpSample>(
     m: usize,
     shift: u32,
 ) -> u32 {
-    // The shift as a constant: fewer registers live in the butterflies.
-    debug_assert!(shift <= 3, "a radix-4 pass shifts by at most 3");
-    match shift {
-        0 => twiddled_pass::<T, 0>(buf, quarter, m),
-        1 => twiddled_pass::<T, 1>(buf, quarter, m),
-        2 => twiddled_pass::<T, 2>(buf, quarter, m),
-        _ => twiddled_pass::<T, 3>(buf, quarter, m),
-    }
-}
-
-/// [`twiddled_columns`] for one shift.
-#[inline(always)]
-fn twiddled_pass<T: BfpSample, const SHIFT: u32>(
-    buf: &mut [T],
-    quarter: &[T::Twiddle],
-    m: usize,
-) -> u32 {
     let q = quarter.len() - 1;
     let step = q / m;
     let one = (T::ONE, T::ZERO);
     // Column 0 has twiddles 1 (exactly: the tables store 1.0 as 1 − 2^-15).
-    let mut acc = column::<T, true, SHIFT>(buf, m, 0, [one; 3], 0);
+    let mut acc = column::<T, true>(buf, m, 0, [one; 3], shift, 0);
     for j in 1..m {
         // W_4m^(r·j) for r = 1, 2, 3: angles below 3/4 of a turn.
         let k = j * step;
@@ -598,7 +581,7 @@ fn twiddled_pass<T: BfpSample, const SHIFT: u32>(
             twiddle::<T>(quarter, 2 * k),
             twiddle::<T>(quarter, 3 * k),
         ];
-        acc = column::<T, false, SHIFT>(buf, m, j, w, acc);
+        acc = column::<T, false>(buf, m, j, w, shift, acc);
     }
     acc
 }
@@ -608,15 +591,16 @@ fn twiddled_pass<T: BfpSample, const SHIFT: u32>(
 /// bit-reversal permutation a group's four quarters hold the transforms of
 /// the samples `≡ 0, 2, 1, 3 (mod 4)`. Returns the tracker.
 #[inline(always)]
-fn column<T: BfpSample, const ONE: bool, const SHIFT: u32>(
+fn column<T: BfpSample, const ONE: bool>(
     buf: &mut [T],
     m: usize,
     j: usize,
     [w1, w2, w3]: [(T::Twiddle, T::Twiddle); 3],
+    shift: u32,
     mut acc: u32,
 ) -> u32 {
     let f = T::FRAC;
-    let t = f + SHIFT;
+    let t = f + shift;
     let r = (1i32 << t) >> 1;
     let rotate = |x: &[T], (c, s): (T::Twiddle, T::Twiddle)| {
         if ONE {
@@ -716,33 +700,18 @@ fn split<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle], bound: u32, expone
 #[cfg(not(stapes_no_long_multiply))]
 #[inline(never)]
 fn packed16_columns(buf: &mut [u32], quarter: &[i16], m: usize, shift: u32) -> u32 {
-    // The shift as a constant: each output's rounding constant is an
-    // immediate and its low half's shift folds into the packing.
-    debug_assert!(shift <= 3, "a radix-4 pass shifts by at most 3");
-    match shift {
-        0 => packed16_pass::<0>(buf, quarter, m),
-        1 => packed16_pass::<1>(buf, quarter, m),
-        2 => packed16_pass::<2>(buf, quarter, m),
-        _ => packed16_pass::<3>(buf, quarter, m),
-    }
-}
-
-/// [`packed16_columns`] for one shift.
-#[cfg(not(stapes_no_long_multiply))]
-#[inline(always)]
-fn packed16_pass<const SHIFT: u32>(buf: &mut [u32], quarter: &[i16], m: usize) -> u32 {
     use crate::dsp16::pack;
     let q = quarter.len() - 1;
     let step = q / m;
     let one = pack(i16::MAX as i32, 0);
-    let mut acc = packed16_column::<true, SHIFT>(buf, m, 0, [one; 3], 0);
+    let mut acc = packed16_column::<true>(buf, m, 0, [one; 3], shift, 0);
     for j in 1..m {
         let k = j * step;
         let w = [k, 2 * k, 3 * k].map(|k| {
             let (c, s) = twiddle::<i16>(quarter, k);
             pack(c as i32, s as i32)
         });
-        acc = packed16_column::<false, SHIFT>(buf, m, j, w, acc);
+        acc = packed16_column::<false>(buf, m, j, w, shift, acc);
     }
     acc
 }
@@ -750,16 +719,17 @@ fn packed16_pass<const SHIFT: u32>(buf: &mut [u32], quarter: &[i16], m: usize) -
 /// One column of [`packed16_columns`] in every group.
 #[cfg(not(stapes_no_long_multiply))]
 #[inline(always)]
-fn packed16_column<const ONE: bool, const SHIFT: u32>(
+fn packed16_column<const ONE: bool>(
     buf: &mut [u32],
     m: usize,
     j: usize,
     [w1, w2, w3]: [u32; 3],
+    shift: u32,
     mut acc: u32,
 ) -> u32 {
     use crate::dsp16::{cross_multiply_sub, dual_multiply_add, high, low, pack, sum_of_squares};
     let f = <i16 as BfpSample>::FRAC;
-    let t = f + SHIFT;
+    let t = f + shift;
     let r = (1i32 << t) >> 1;
     // W·x with 13 fraction bits: (c·re + s·im + 2) >> 2, (c·im − s·re + 2) >> 2,
     // exactly as `<i16 as BfpSample>::rotate`.
