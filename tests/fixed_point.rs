@@ -680,3 +680,22 @@ fn wide_product_by_halves_is_exact() {
         }
     }
 }
+
+/// The split step's 32-bit rounding of `(e − t) / 2^(1 + s)` against the
+/// 64-bit expression, on edge and random values and every shift it uses.
+#[test]
+fn halved_difference_matches_64_bit_rounding() {
+    use stapes_core::int_fft::halved_difference_rounded;
+    let mut r = rng(0x5911);
+    let edges = [-(1 << 30) - 7, -(1 << 30), -3, -2, -1, 0, 1, 2, 3, 1 << 30, (1 << 30) + 5];
+    let mut v: Vec<i32> = edges.to_vec();
+    v.extend((0..3000).map(|_| r.random_range(-(1i32 << 30) - (1 << 28)..(1 << 30) + (1 << 28))));
+    for &e in &v {
+        for &t in v.iter().step_by(11) {
+            for s in 0..=3u32 {
+                let want = ((e as i64 - t as i64 + (1i64 << s)) >> (1 + s)) as i32;
+                assert_eq!(halved_difference_rounded(e, t, s), want, "{e} {t} {s}");
+            }
+        }
+    }
+}

@@ -249,7 +249,7 @@ impl FrameData for i16 {
 }
 
 impl FrameData for i32 {
-    // The FFT keeps 32-bit data within ±(2^29 − 4) (its guard bits); a
+    // The FFT keeps 32-bit data within ±(2^29 − 2) (its guard bits); a
     // windowed sample beyond that is shifted into range by the FFT.
     const SAMPLE_BITS: u32 = 29;
     const HOLDS_CONDITIONED: bool = true;
@@ -323,6 +323,93 @@ impl FrameData for i32 {
         ((re * re) as u64 + (im * im) as u64)
             .checked_shr(shift)
             .unwrap_or(0)
+    }
+}
+
+/// Pass 1 over raw samples with offset compensation: their range and their
+/// window-weighted sum. Out of line, so that its few live values stay in
+/// the eight low registers of a Cortex-M0 (used there only: elsewhere the
+/// inline loop measured faster).
+#[inline(never)]
+fn raw_offset_statistics<P: TwiddlesFor>(
+    samples: &[P::Data],
+    window: &[P::WindowCoef],
+) -> (i32, i32, WideSum)
+where
+    P::Data: FrameData,
+{
+    let (mut lo, mut hi) = (i32::MAX, i32::MIN);
+    let mut weighted = WideSum::default();
+    for (v, &win) in samples.iter().zip(window) {
+        let c = v.to_raw() as i32;
+        lo = lo.min(c);
+        hi = hi.max(c);
+        // |c| ≤ 2^15 and a Q15 coefficient: within 2^30.
+        weighted.add(c * P::coef_q15(win));
+    }
+    (lo, hi, weighted)
+}
+
+/// Pass 2 over raw samples: `((c − offset + round) >> down) << up`, windowed.
+/// Out of line on a Cortex-M0 (its eight low registers), inline elsewhere
+/// (measured faster each way).
+#[cfg_attr(stapes_no_long_multiply, inline(never))]
+#[cfg_attr(not(stapes_no_long_multiply), inline(always))]
+fn place_and_window<P: TwiddlesFor>(
+    samples: &mut [P::Data],
+    window: &[P::WindowCoef],
+    offset: i32,
+    (up, down): (u32, u32),
+) where
+    P::Data: FrameData,
+{
+    let round = (1i32 << down) >> 1;
+    for (v, &win) in samples.iter_mut().zip(window) {
+        let c = v.to_raw() as i32;
+        let placed = <P::Data as FrameData>::from_i32((((c - offset) + round) >> down) << up);
+        *v = P::apply_window(placed, win);
+    }
+}
+
+/// A sum of `i32` terms within `±2^30` each, as `i64`: one 64-bit
+/// accumulate where the core has it; on cores where 64-bit additions cost
+/// several instructions, the terms' high and low 16 bits summed apart in
+/// 32 bits (exact for up to 65 537 terms) and joined at the end.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct WideSum {
+    #[cfg(not(stapes_no_long_multiply))]
+    sum: i64,
+    #[cfg(stapes_no_long_multiply)]
+    high: i32,
+    #[cfg(stapes_no_long_multiply)]
+    low: u32,
+}
+
+impl WideSum {
+    /// Adds a term.
+    #[inline(always)]
+    pub fn add(&mut self, p: i32) {
+        #[cfg(not(stapes_no_long_multiply))]
+        {
+            self.sum += p as i64;
+        }
+        #[cfg(stapes_no_long_multiply)]
+        {
+            self.high += p >> 16;
+            self.low += (p & 0xffff) as u32;
+        }
+    }
+    /// The sum.
+    #[inline(always)]
+    pub fn total(self) -> i64 {
+        #[cfg(not(stapes_no_long_multiply))]
+        {
+            self.sum
+        }
+        #[cfg(stapes_no_long_multiply)]
+        {
+            ((self.high as i64) << 16) + self.low as i64
+        }
     }
 }
 
@@ -760,14 +847,15 @@ where
         // DC in the windowed frame). Conditioned samples enter the sum 14
         // bits down, so each product fits i32.
         let mean_shift = if conditioning { 14 } else { 0 };
-        let (mut lo, mut hi, mut weighted) = (i32::MAX, i32::MIN, 0i64);
+        let (mut lo, mut hi) = (i32::MAX, i32::MIN);
+        let mut weighted = WideSum::default();
         let mut mags = 0u32;
         let window = &self.window[..w];
         let mut observe = |c: i32, win: P::WindowCoef| {
             if offset_terms.is_some() {
                 lo = lo.min(c);
                 hi = hi.max(c);
-                weighted += ((c >> mean_shift) * P::coef_q15(win)) as i64;
+                weighted.add((c >> mean_shift) * P::coef_q15(win));
             } else {
                 mags |= c.unsigned_abs();
             }
@@ -787,6 +875,8 @@ where
             if hop >= w {
                 self.frame_start = cond;
             }
+        } else if cfg!(stapes_no_long_multiply) && offset_terms.is_some() {
+            (lo, hi, weighted) = raw_offset_statistics::<P>(&buf[..w], window);
         } else {
             for (v, &win) in buf[..w].iter().zip(window) {
                 observe(v.to_raw() as i32, win);
@@ -797,6 +887,7 @@ where
             // Any offset is exact once added back; this one only needs to be
             // near the mean, so both sides are brought below 2^30 and divided
             // in 32 bits (no 64-bit division, a library call on Cortex-M).
+            let weighted = weighted.total();
             let top = 64 - weighted.unsigned_abs().leading_zeros();
             let k = top.saturating_sub(30);
             let num = (weighted >> k) as i32;
@@ -834,9 +925,7 @@ where
         let place =
             |c: i32| <P::Data as FrameData>::from_i32((((c - offset) + round) >> down) << up);
         if !conditioning {
-            for (v, &win) in buf[..w].iter_mut().zip(window) {
-                *v = P::apply_window(place(v.to_raw() as i32), win);
-            }
+            place_and_window::<P>(&mut buf[..w], window, offset, (up, down));
         } else if keep {
             for (v, &win) in buf[..w].iter_mut().zip(window) {
                 *v = P::apply_window(place(v.get_i32()), win);

@@ -15,7 +15,7 @@
 //!
 //! **Block floating point, one pass per two levels, shifts from a bound**:
 //! every value stored in the buffer stays within `±LIMIT` (32767 for `i16`,
-//! `2^29 − 4` for `i32`, leaving the guard bits that let butterfly sums
+//! `2^29 − 2` for `i32`, leaving the guard bits that let butterfly sums
 //! stay inside `i32`). Before each pass, its shift (0 to 3 bits) is chosen
 //! from a bound `M` on the magnitudes `|z|` of its inputs: a radix-4 pass
 //! maps four values to sums `y0 ± y1 ± y2 ± y3` of the rotated inputs, so
@@ -88,9 +88,10 @@ pub trait BfpSample: Copy + Default + core::fmt::Debug + 'static {
     fn track(acc: u32, re: i32, im: i32) -> u32;
     /// A bound on the magnitude `|z|` of every complex value tracked into `acc`.
     fn magnitude_bound(acc: u32) -> u32;
-    /// A bound on every component tracked into `acc`, where the type can
-    /// exceed what the first pass accepts (0 where it cannot).
-    fn component_bound(acc: u32) -> u32;
+    /// The FFT input's tracker (as [`BfpSample::track`] folds it) and its
+    /// largest component magnitude, where the type can exceed what the first
+    /// pass accepts (0 where it cannot).
+    fn input_bound(buf: &[Self]) -> (u32, u32);
     /// The split step's `W·x · 2^SPLIT_FRAC`, for `|x|` components within
     /// `±2·LIMIT` (differences of two values).
     fn split_rotate(xr: i32, xi: i32, c: Self::Twiddle, s: Self::Twiddle) -> (i32, i32);
@@ -171,8 +172,11 @@ impl BfpSample for i16 {
         crate::fixed_path::isqrt_u32(acc) + 1
     }
     #[inline]
-    fn component_bound(_: u32) -> u32 {
-        0 // every 16-bit value is accepted
+    fn input_bound(buf: &[i16]) -> (u32, u32) {
+        let acc = buf
+            .chunks_exact(2)
+            .fold(0, |acc, p| Self::track(acc, p[0] as i32, p[1] as i32));
+        (acc, 0) // every 16-bit value is accepted
     }
     #[inline(always)]
     fn split_rotate(xr: i32, xi: i32, c: i16, s: i16) -> (i32, i32) {
@@ -261,10 +265,11 @@ impl BfpSample for i32 {
     const ONE: i32 = i32::MAX;
     // A radix-4 output sums four terms, each within its input's bound plus
     // 1 (the products' rounding), and the rounding half of a shift of at
-    // most 3: 4·(2^29 − 4) + 3 + 4 < 2^31.
-    const LIMIT: u32 = (1 << 29) - 4;
+    // most 3: 4·(2^29 − 2) + 3 + 4 = 2^31 − 1. (Samples normalised below
+    // 2^29 reach beyond this only at exactly 2^29 − 1 under a window of 1.)
+    const LIMIT: u32 = (1 << 29) - 2;
     const FRAC: u32 = 0;
-    // The first pass sums four inputs: 4 · LIMIT < 2^31.
+    // The first pass sums four inputs and rounds: 4·LIMIT + 4 < 2^31.
     const FIRST_PASS_MAX: u32 = Self::LIMIT;
     const SPLIT_FRAC: u32 = 0;
 
@@ -306,8 +311,13 @@ impl BfpSample for i32 {
         (((acc as u64 + 1) * 92682) >> 16) as u32 + 1
     }
     #[inline]
-    fn component_bound(acc: u32) -> u32 {
-        acc.saturating_add(1)
+    fn input_bound(buf: &[i32]) -> (u32, u32) {
+        // The largest component exactly (the OR of magnitudes that the
+        // passes track could reach 2^29 − 1 from values well below it, and
+        // shift the whole frame for nothing); it also serves as the tracker
+        // (every component within it, and within the OR of it).
+        let widest = buf.iter().fold(0, |m: u32, v| m.max(v.unsigned_abs()));
+        (widest, widest)
     }
     #[inline(always)]
     fn split_rotate(xr: i32, xi: i32, c: i32, s: i32) -> (i32, i32) {
@@ -315,10 +325,20 @@ impl BfpSample for i32 {
     }
     #[inline(always)]
     fn split_out(e: i32, t: i32, shift: u32) -> i32 {
-        // e − t can reach 4.83·LIMIT: summed in i64.
-        let total = 1 + shift;
-        Self::put(((e as i64 - t as i64 + (1 << (total - 1))) >> total) as i32)
+        Self::put(halved_difference_rounded(e, t, shift))
     }
+}
+
+/// `round((e − t) / 2^(1 + shift))` (halves up) for any `e`, `t`, in 32-bit
+/// steps: `e − t` can exceed `i32` (the split step's reaches 4.83·LIMIT), so
+/// it is taken as `2h + b` with `h = ⌊e/2⌋ − ⌊t/2⌋` and `b ∈ {−1, 0, 1}`;
+/// then `(2h + b + 2^shift) >> (1 + shift) = (h + ⌊(b + 2^shift)/2⌋) >> shift`.
+/// Equal to the 64-bit expression for every input (tested).
+#[inline(always)]
+pub fn halved_difference_rounded(e: i32, t: i32, shift: u32) -> i32 {
+    let h = (e >> 1) - (t >> 1);
+    let b = (e & 1) - (t & 1);
+    (h + ((b + (1 << shift)) >> 1)) >> shift
 }
 
 /// Bound on a level's output magnitudes (before its shift) for input
@@ -418,12 +438,7 @@ fn transform<T: BfpSample>(
 /// component exceeds what the first pass accepts (only 32-bit data can).
 #[inline(never)]
 fn prepare<T: BfpSample>(buf: &mut [T], exponent: &mut i32) -> u32 {
-    let track = |buf: &[T]| {
-        buf.chunks_exact(2)
-            .fold(0, |acc, p| T::track(acc, p[0].get(), p[1].get()))
-    };
-    let acc = track(buf);
-    let widest = T::component_bound(acc);
+    let (acc, widest) = T::input_bound(buf);
     if widest <= T::FIRST_PASS_MAX {
         return T::magnitude_bound(acc);
     }
@@ -435,7 +450,7 @@ fn prepare<T: BfpSample>(buf: &mut [T], exponent: &mut i32) -> u32 {
         *v = T::put_unchecked(v.get() >> shift);
     }
     *exponent += shift as i32;
-    T::magnitude_bound(track(buf))
+    T::magnitude_bound(T::input_bound(buf).0)
 }
 
 /// Bit-reversal permutation of `half` complex pairs.
