@@ -5,4 +5,4 @@
 # written to target/firmware-figures.md) and the budget predictions.
 set -euo pipefail
 cd "$(dirname "$0")/.."
-cargo test -q -p stapes-tests --test firmware_qemu -- --nocapture | grep -E '^\||predicted'
+cargo test -q -p stapes-tests --test firmware_qemu -- --nocapture | grep -E '^\||predicted|fitted costs'

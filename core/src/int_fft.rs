@@ -101,6 +101,11 @@ pub trait BfpSample: Copy + Default + core::fmt::Debug + 'static {
     fn radix4_columns(buf: &mut [Self], quarter: &[Self::Twiddle], m: usize, shift: u32) -> u32 {
         twiddled_columns::<Self>(buf, quarter, m, shift)
     }
+    /// The first two levels' butterflies (see [`first_radix4`]) with the
+    /// shift `s`; returns the tracker. A type may run them on packed words.
+    fn first_radix4_groups(buf: &mut [Self], s: u32) -> u32 {
+        first_radix4_generic::<Self>(buf, s)
+    }
 }
 
 /// 16-bit data, Q15 twiddles: fast.
@@ -205,6 +210,13 @@ impl BfpSample for i16 {
                 packed16_columns(words, quarter, m, shift)
             }
             _ => twiddled_columns::<i16>(buf, quarter, m, shift),
+        }
+    }
+    #[cfg(not(stapes_no_long_multiply))]
+    fn first_radix4_groups(buf: &mut [i16], s: u32) -> u32 {
+        match bytemuck::try_cast_slice_mut::<i16, u32>(buf) {
+            Ok(words) if cfg!(target_endian = "little") => packed16_first_radix4(words, s),
+            _ => first_radix4_generic::<i16>(buf, s),
         }
     }
 }
@@ -388,7 +400,7 @@ pub fn real_fft<P: Precision>(
     buf: &mut [P::Data],
     quarter: &[<P::Data as BfpSample>::Twiddle],
 ) -> i32 {
-    transform::<P::Data>(buf, quarter, <P::Data as BfpSample>::radix4_columns)
+    transform::<P::Data, false>(buf, quarter)
 }
 
 /// [`real_fft`] with the generic radix-4 butterflies on every type (the
@@ -398,16 +410,12 @@ pub fn real_fft_generic_butterflies<P: Precision>(
     buf: &mut [P::Data],
     quarter: &[<P::Data as BfpSample>::Twiddle],
 ) -> i32 {
-    transform::<P::Data>(buf, quarter, twiddled_columns::<P::Data>)
+    transform::<P::Data, true>(buf, quarter)
 }
 
-/// The real FFT with the given radix-4 column kernel.
+/// The real FFT with the type's own butterflies, or the generic ones.
 #[inline(always)]
-fn transform<T: BfpSample>(
-    buf: &mut [T],
-    quarter: &[T::Twiddle],
-    columns: fn(&mut [T], &[T::Twiddle], usize, u32) -> u32,
-) -> i32 {
+fn transform<T: BfpSample, const GENERIC: bool>(buf: &mut [T], quarter: &[T::Twiddle]) -> i32 {
     let n = buf.len();
     if n < 16 || !n.is_power_of_two() || quarter.len() != n / 4 + 1 {
         return 0;
@@ -420,12 +428,16 @@ fn transform<T: BfpSample>(
         bound = first_radix2(buf, bound, &mut exponent);
         2
     } else {
-        bound = first_radix4(buf, bound, &mut exponent);
+        bound = first_radix4::<T, GENERIC>(buf, bound, &mut exponent);
         4
     };
     while m < half {
         let (s, after) = shift_for(grown4(bound), T::LIMIT);
-        let acc = columns(buf, quarter, m, s);
+        let acc = if GENERIC {
+            twiddled_columns::<T>(buf, quarter, m, s)
+        } else {
+            T::radix4_columns(buf, quarter, m, s)
+        };
         exponent += s as i32;
         bound = after.min(T::magnitude_bound(acc));
         m *= 4;
@@ -517,8 +529,24 @@ fn first_radix2<T: BfpSample>(buf: &mut [T], bound: u32, exponent: &mut i32) -> 
 /// `i32` (at most 4 · 32768 for 16-bit data, 4 · LIMIT < 2^31 for 32-bit),
 /// rounded once with the two levels' shift.
 #[inline(never)]
-fn first_radix4<T: BfpSample>(buf: &mut [T], bound: u32, exponent: &mut i32) -> u32 {
+fn first_radix4<T: BfpSample, const GENERIC: bool>(
+    buf: &mut [T],
+    bound: u32,
+    exponent: &mut i32,
+) -> u32 {
     let (s, after) = shift_for(grown(grown(bound) as u32), T::LIMIT);
+    let acc = if GENERIC {
+        first_radix4_generic::<T>(buf, s)
+    } else {
+        T::first_radix4_groups(buf, s)
+    };
+    *exponent += s as i32;
+    after.min(T::magnitude_bound(acc))
+}
+
+/// The butterflies of [`first_radix4`] on any type.
+#[inline(always)]
+fn first_radix4_generic<T: BfpSample>(buf: &mut [T], s: u32) -> u32 {
     let r = (1i32 << s) >> 1;
     let mut acc = 0u32;
     for g in buf.chunks_exact_mut(8) {
@@ -544,8 +572,35 @@ fn first_radix4<T: BfpSample>(buf: &mut [T], bound: u32, exponent: &mut i32) -> 
             *d = T::put(v);
         }
     }
-    *exponent += s as i32;
-    after.min(T::magnitude_bound(acc))
+    acc
+}
+
+/// [`first_radix4_generic`] for 16-bit data on packed words (the same bits).
+#[cfg(not(stapes_no_long_multiply))]
+#[inline(never)]
+fn packed16_first_radix4(words: &mut [u32], s: u32) -> u32 {
+    use crate::dsp16::{high, low, pack, sum_of_squares};
+    let r = (1i32 << s) >> 1;
+    let mut acc = 0u32;
+    for g in words.chunks_exact_mut(4) {
+        let (x0, x1, x2, x3) = (g[0], g[1], g[2], g[3]);
+        let (ar, ai) = (low(x0) + low(x1), high(x0) + high(x1));
+        let (br, bi) = (low(x0) - low(x1), high(x0) - high(x1));
+        let (cr, ci) = (low(x2) + low(x3), high(x2) + high(x3));
+        let (dr, di) = (low(x2) - low(x3), high(x2) - high(x3));
+        let (ar, ai, br, bi) = (ar + r, ai + r, br + r, bi + r);
+        let out = [
+            pack((ar + cr) >> s, (ai + ci) >> s),
+            pack((br + di) >> s, (bi - dr) >> s),
+            pack((ar - cr) >> s, (ai - ci) >> s),
+            pack((br - di) >> s, (bi + dr) >> s),
+        ];
+        for (d, v) in g.iter_mut().zip(out) {
+            acc = acc.max(sum_of_squares(v));
+            *d = v;
+        }
+    }
+    acc
 }
 
 /// Bound on a radix-4 output's magnitude for inputs within `bound`: the
