@@ -366,13 +366,19 @@ fn firmware_frames_equal_the_host_and_figures_are_collected() {
 /// pasting, not by hand-tuning; also the measured stack.
 fn print_fitted_costs(figures: &[Figure]) {
     let find = |preset: &str, arith: &str, core: &str| {
-        figures
-            .iter()
-            .find(|f| f.preset == preset && f.arith == arith && f.core == core && f.form == FilterbankForm::Sparse)
+        figures.iter().find(|f| {
+            f.preset == preset
+                && f.arith == arith
+                && f.core == core
+                && f.form == FilterbankForm::Sparse
+        })
     };
     for core in ["thumbv7em-none-eabihf", "thumbv6m-none-eabi"] {
         for arith in ["f32", "fixed16", "fixed32"] {
-            let (Some(s), Some(d)) = (find("speech16k-40", arith, core), find("dsr8k-23", arith, core)) else {
+            let (Some(s), Some(d)) = (
+                find("speech16k-40", arith, core),
+                find("dsr8k-23", arith, core),
+            ) else {
                 continue;
             };
             let unit = |name: &str| {
@@ -386,7 +392,8 @@ fn print_fitted_costs(figures: &[Figure]) {
             let st = |i: usize| s.stages[i] as f64;
             let dt = |i: usize| d.stages[i] as f64;
             let window = st(1) / sc.window_samples as f64;
-            let conditioned = (dt(1) - window * dc.window_samples as f64) / dc.window_samples as f64;
+            let conditioned =
+                (dt(1) - window * dc.window_samples as f64) / dc.window_samples as f64;
             let bin = st(3) / sh;
             let magnitude = (dt(3) - bin * dh) / dh;
             println!(

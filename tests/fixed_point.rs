@@ -605,7 +605,9 @@ fn packed_16_bit_butterflies_give_the_generic_bits() {
         let mut frames: Vec<Vec<i16>> = vec![
             vec![i16::MIN; n],
             vec![i16::MAX; n],
-            (0..n).map(|i| if i % 2 == 0 { i16::MIN } else { i16::MAX }).collect(),
+            (0..n)
+                .map(|i| if i % 2 == 0 { i16::MIN } else { i16::MAX })
+                .collect(),
         ];
         for level in [1.0f64, 0.3, 0.01, 1e-4] {
             for _ in 0..8 {
@@ -641,16 +643,23 @@ fn packed_16_bit_butterflies_give_the_generic_bits() {
 
 /// The packed-word primitives against plain `i32` arithmetic on the edge
 /// values of `i16` (the definitions of the Armv7E-M instructions, from
-/// memory: SMLAD = lo·lo + hi·hi + acc, SMLSDX = lo·hi' − hi·lo' + acc).
+/// memory: SMLAD = lo·lo + hi·hi + acc, SMLSD = lo·lo − hi·hi + acc,
+/// SMLADX = lo·hi' + hi·lo' + acc, SMLSDX = lo·hi' − hi·lo' + acc).
 #[test]
 fn packed_word_primitives_match_their_definitions() {
-    use stapes_core::dsp16::{cross_multiply_sub, dual_multiply_add, high, low, pack, sum_of_squares};
+    use stapes_core::dsp16::{
+        cross_multiply_add, cross_multiply_sub, dual_multiply_add, dual_multiply_sub, high, low,
+        pack, sum_of_squares,
+    };
     let edges = [i16::MIN, -32767, -12345, -1, 0, 1, 23170, 32767];
     for &a in &edges {
         for &b in &edges {
             let x = pack(a as i32, b as i32);
             assert_eq!((low(x), high(x)), (a as i32, b as i32));
-            assert_eq!(sum_of_squares(x), (a as i32 * a as i32) as u32 + (b as i32 * b as i32) as u32);
+            assert_eq!(
+                sum_of_squares(x),
+                (a as i32 * a as i32) as u32 + (b as i32 * b as i32) as u32
+            );
             for &c in &edges[1..] {
                 for &s in &edges[1..] {
                     let w = pack(c as i32, s as i32);
@@ -659,6 +668,10 @@ fn packed_word_primitives_match_their_definitions() {
                         assert_eq!(dual_multiply_add(w, x, 2) as i64, c * a + s * b + 2);
                     }
                     assert_eq!(cross_multiply_sub(w, x, 2) as i64, c * b - s * a + 2);
+                    assert_eq!(dual_multiply_sub(w, x, 2) as i64, c * a - s * b + 2);
+                    if (c * b + s * a + 2).abs() < 1 << 31 {
+                        assert_eq!(cross_multiply_add(w, x, 2) as i64, c * b + s * a + 2);
+                    }
                 }
             }
         }
@@ -671,12 +684,28 @@ fn packed_word_primitives_match_their_definitions() {
 fn wide_product_by_halves_is_exact() {
     use stapes_core::fixed_path::wide_product_by_halves;
     let mut r = rng(0x64);
-    let edges = [i32::MIN, i32::MIN + 1, -65536, -65535, -32768, -1, 0, 1, 65535, 65536, i32::MAX];
+    let edges = [
+        i32::MIN,
+        i32::MIN + 1,
+        -65536,
+        -65535,
+        -32768,
+        -1,
+        0,
+        1,
+        65535,
+        65536,
+        i32::MAX,
+    ];
     let mut values: Vec<i32> = edges.to_vec();
     values.extend((0..2000).map(|_| r.random::<i32>()));
     for &a in &values {
         for &b in values.iter().step_by(7) {
-            assert_eq!(wide_product_by_halves(a, b), a as i64 * b as i64, "{a} * {b}");
+            assert_eq!(
+                wide_product_by_halves(a, b),
+                a as i64 * b as i64,
+                "{a} * {b}"
+            );
         }
     }
 }
@@ -687,7 +716,19 @@ fn wide_product_by_halves_is_exact() {
 fn halved_difference_matches_64_bit_rounding() {
     use stapes_core::int_fft::halved_difference_rounded;
     let mut r = rng(0x5911);
-    let edges = [-(1 << 30) - 7, -(1 << 30), -3, -2, -1, 0, 1, 2, 3, 1 << 30, (1 << 30) + 5];
+    let edges = [
+        -(1 << 30) - 7,
+        -(1 << 30),
+        -3,
+        -2,
+        -1,
+        0,
+        1,
+        2,
+        3,
+        1 << 30,
+        (1 << 30) + 5,
+    ];
     let mut v: Vec<i32> = edges.to_vec();
     v.extend((0..3000).map(|_| r.random_range(-(1i32 << 30) - (1 << 28)..(1 << 30) + (1 << 28))));
     for &e in &v {

@@ -92,6 +92,64 @@ pub fn cross_multiply_sub(a: u32, b: u32, acc: i32) -> i32 {
     }
 }
 
+/// `low(a)·low(b) − high(a)·high(b) + acc` (`SMLSD`).
+#[inline(always)]
+pub fn dual_multiply_sub(a: u32, b: u32, acc: i32) -> i32 {
+    #[cfg(stapes_arm_dsp)]
+    {
+        let r: i32;
+        // SAFETY: as in `dual_multiply_add`.
+        #[allow(unsafe_code)]
+        unsafe {
+            core::arch::asm!(
+                "smlsd {r}, {a}, {b}, {acc}",
+                r = lateout(reg) r,
+                a = in(reg) a,
+                b = in(reg) b,
+                acc = in(reg) acc,
+                options(pure, nomem, nostack)
+            );
+        }
+        r
+    }
+    #[cfg(not(stapes_arm_dsp))]
+    {
+        low(a)
+            .wrapping_mul(low(b))
+            .wrapping_sub(high(a).wrapping_mul(high(b)))
+            .wrapping_add(acc)
+    }
+}
+
+/// `low(a)·high(b) + high(a)·low(b) + acc` (`SMLADX`).
+#[inline(always)]
+pub fn cross_multiply_add(a: u32, b: u32, acc: i32) -> i32 {
+    #[cfg(stapes_arm_dsp)]
+    {
+        let r: i32;
+        // SAFETY: as in `dual_multiply_add`.
+        #[allow(unsafe_code)]
+        unsafe {
+            core::arch::asm!(
+                "smladx {r}, {a}, {b}, {acc}",
+                r = lateout(reg) r,
+                a = in(reg) a,
+                b = in(reg) b,
+                acc = in(reg) acc,
+                options(pure, nomem, nostack)
+            );
+        }
+        r
+    }
+    #[cfg(not(stapes_arm_dsp))]
+    {
+        low(a)
+            .wrapping_mul(high(b))
+            .wrapping_add(high(a).wrapping_mul(low(b)))
+            .wrapping_add(acc)
+    }
+}
+
 /// `low(x)² + high(x)²` as `u32` (`SMUAD x, x`; at most `2^31`, which the
 /// instruction's wrapped `i32` result also holds as `u32`).
 #[inline(always)]

@@ -62,7 +62,10 @@ impl<T: Copy + Default, O: Copy + Default, const FRAME: usize, const OVERLAP: us
         let want = self.window - self.fill;
         let take = want.min(input.len());
         let (now, rest) = input.split_at(take);
-        for (slot, &s) in self.frame.0[self.fill..self.fill + take].iter_mut().zip(now) {
+        for (slot, &s) in self.frame.0[self.fill..self.fill + take]
+            .iter_mut()
+            .zip(now)
+        {
             *slot = convert(s);
         }
         self.fill += take;

@@ -106,6 +106,11 @@ pub trait BfpSample: Copy + Default + core::fmt::Debug + 'static {
     fn first_radix4_groups(buf: &mut [Self], s: u32) -> u32 {
         first_radix4_generic::<Self>(buf, s)
     }
+    /// The split step's pairs `1 ≤ k < N/4` (see [`split`]) with the shift
+    /// `s`. A type may run them on packed words.
+    fn split_pairs(buf: &mut [Self], quarter: &[Self::Twiddle], s: u32) {
+        split_pairs_generic::<Self>(buf, quarter, s)
+    }
 }
 
 /// 16-bit data, Q15 twiddles: fast.
@@ -185,15 +190,11 @@ impl BfpSample for i16 {
     }
     #[inline(always)]
     fn split_rotate(xr: i32, xi: i32, c: i16, s: i16) -> (i32, i32) {
-        // |x| ≤ 2·LIMIT: each product alone fits i32 (32767 · 65534 < 2^31),
-        // their sum may not, so each is halved (the dropped bit lies 14 bits
-        // below the result's LSB) before the sum is rounded to 12 fraction bits.
+        // |x| ≤ 2·LIMIT, so |c·xr + s·xi| ≤ |W|·|x|·2^15 < 2^31 − 2^17: the
+        // sum fits i32 (each product alone does too); rounded once to 12
+        // fraction bits.
         let (c, s) = (c as i32, s as i32);
-        const R: i32 = 1 << 1;
-        (
-            (((c * xr) >> 1) + ((s * xi) >> 1) + R) >> 2,
-            (((c * xi) >> 1) - ((s * xr) >> 1) + R) >> 2,
-        )
+        ((c * xr + s * xi + 4) >> 3, (c * xi - s * xr + 4) >> 3)
     }
     #[inline(always)]
     fn split_out(e: i32, t: i32, shift: u32) -> i16 {
@@ -217,6 +218,13 @@ impl BfpSample for i16 {
         match bytemuck::try_cast_slice_mut::<i16, u32>(buf) {
             Ok(words) if cfg!(target_endian = "little") => packed16_first_radix4(words, s),
             _ => first_radix4_generic::<i16>(buf, s),
+        }
+    }
+    #[cfg(not(stapes_no_long_multiply))]
+    fn split_pairs(buf: &mut [i16], quarter: &[i16], s: u32) {
+        match bytemuck::try_cast_slice_mut::<i16, u32>(buf) {
+            Ok(words) if cfg!(target_endian = "little") => packed16_split_pairs(words, quarter, s),
+            _ => split_pairs_generic::<i16>(buf, quarter, s),
         }
     }
 }
@@ -442,7 +450,7 @@ fn transform<T: BfpSample, const GENERIC: bool>(buf: &mut [T], quarter: &[T::Twi
         bound = after.min(T::magnitude_bound(acc));
         m *= 4;
     }
-    split(buf, quarter, bound, &mut exponent);
+    split::<T, GENERIC>(buf, quarter, bound, &mut exponent);
     exponent
 }
 
@@ -725,13 +733,39 @@ fn column<T: BfpSample, const ONE: bool>(
 /// `T = i·W^k·O`: `X[k] = E − T`, `X[N/2−k] = conj(E + T)`. Computed from
 /// `2E` and `2T`, with one rounding per output (which also halves).
 #[inline(never)]
-fn split<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle], bound: u32, exponent: &mut i32) {
+fn split<T: BfpSample, const GENERIC: bool>(
+    buf: &mut [T],
+    quarter: &[T::Twiddle],
+    bound: u32,
+    exponent: &mut i32,
+) {
     let half = buf.len() / 2;
     let q = half / 2;
     // |X| ≤ |E| + |O| ≤ √2·√(|E|² + |O|²) = √(|Z[k]|² + |Z[m]|²) ≤ √2·bound
     // (92682 / 2^16 > √2), plus the products' rounding.
     let (s, _) = shift_for(((bound as u64 * 92682) >> 16) + 3, T::LIMIT);
     let f = T::SPLIT_FRAC;
+    if GENERIC {
+        split_pairs_generic::<T>(buf, quarter, s);
+    } else {
+        T::split_pairs(buf, quarter, s);
+    }
+    // k = 0: X[0] = re + im and X[N/2] = re − im of Z[0] (2E = 2·re, 2T = ∓2·im);
+    // k = N/4: X = conj(Z[N/4]) (2T = 0).
+    let (z0r, z0i) = (buf[0].get(), buf[1].get());
+    let (zqr, zqi) = (buf[2 * q].get(), buf[2 * q + 1].get());
+    buf[0] = T::split_out(2 * z0r, (-2 * z0i) << f, s);
+    buf[1] = T::split_out(2 * z0r, (2 * z0i) << f, s);
+    buf[2 * q] = T::split_out(2 * zqr, 0, s);
+    buf[2 * q + 1] = T::split_out(-2 * zqi, 0, s);
+    *exponent += s as i32;
+}
+
+/// The split step's pairs on any type.
+#[inline(always)]
+fn split_pairs_generic<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle], s: u32) {
+    let half = buf.len() / 2;
+    let q = half / 2;
     // Pair k (1 ≤ k < N/4) with m = N/2 − k: Z[k] in the lower half of the
     // buffer, Z[m] in the upper half walked backwards; W^k = (q[k], q[Q − k]).
     let (lower, upper) = buf.split_at_mut(half);
@@ -751,15 +785,35 @@ fn split<T: BfpSample>(buf: &mut [T], quarter: &[T::Twiddle], bound: u32, expone
         zm[0] = T::split_out(er2, -tr2, s);
         zm[1] = T::split_out(-ei2, ti2, s);
     }
-    // k = 0: X[0] = re + im and X[N/2] = re − im of Z[0] (2E = 2·re, 2T = ∓2·im);
-    // k = N/4: X = conj(Z[N/4]) (2T = 0).
-    let (z0r, z0i) = (buf[0].get(), buf[1].get());
-    let (zqr, zqi) = (buf[2 * q].get(), buf[2 * q + 1].get());
-    buf[0] = T::split_out(2 * z0r, (-2 * z0i) << f, s);
-    buf[1] = T::split_out(2 * z0r, (2 * z0i) << f, s);
-    buf[2 * q] = T::split_out(2 * zqr, 0, s);
-    buf[2 * q + 1] = T::split_out(-2 * zqi, 0, s);
-    *exponent += s as i32;
+}
+
+/// [`split_pairs_generic`] for 16-bit data on packed words (the same bits):
+/// with `x = Z[k] − conj(Z[m])`, `c·xr + s·xi` and `c·xi − s·xr` are two
+/// dual multiplies of the packed `Z[k]` and `Z[m]` each.
+#[cfg(not(stapes_no_long_multiply))]
+#[inline(never)]
+fn packed16_split_pairs(words: &mut [u32], quarter: &[i16], s: u32) {
+    use crate::dsp16::{
+        cross_multiply_add, cross_multiply_sub, dual_multiply_add, dual_multiply_sub, high, low,
+        pack,
+    };
+    let q = words.len() / 2;
+    let (lower, upper) = words.split_at_mut(q);
+    let twiddles = quarter[1..q].iter().zip(quarter[1..q].iter().rev());
+    let pairs = lower[1..].iter_mut().zip(upper[1..].iter_mut().rev());
+    let out = |e: i32, t: i32| <i16 as BfpSample>::split_out(e, t, s) as i32;
+    for ((zk, zm), (&c, &sw)) in pairs.zip(twiddles) {
+        let (a, b) = (*zk, *zm);
+        let w = pack(c as i32, sw as i32);
+        let (er2, ei2) = (low(a) + low(b), high(a) - high(b));
+        // c·(ar − br) + s·(ai + bi) and c·(ai + bi) − s·(ar − br), each
+        // within i32 (as in `split_rotate`), rounded once.
+        let ur = dual_multiply_add(w, a, 4).wrapping_sub(dual_multiply_sub(w, b, 0)) >> 3;
+        let ui = cross_multiply_sub(w, a, 4).wrapping_add(cross_multiply_add(w, b, 0)) >> 3;
+        let (tr2, ti2) = (-ui, ur);
+        *zk = pack(out(er2, tr2), out(ei2, ti2));
+        *zm = pack(out(er2, -tr2), out(-ei2, ti2));
+    }
 }
 
 /// [`twiddled_columns`] for 16-bit data on packed words ([`crate::dsp16`]):
@@ -807,7 +861,10 @@ fn packed16_column<const ONE: bool>(
         if ONE {
             (low(x) << f, high(x) << f)
         } else {
-            (dual_multiply_add(w, x, 2) >> 2, cross_multiply_sub(w, x, 2) >> 2)
+            (
+                dual_multiply_add(w, x, 2) >> 2,
+                cross_multiply_sub(w, x, 2) >> 2,
+            )
         }
     };
     // Pair j of each group's four quarters: words j, j + m, j + 2m, j + 3m.

@@ -73,7 +73,11 @@ pub fn log2_q16(x: u64) -> Option<i32> {
         (t, b)
     } else {
         let t = 31 - lo.leading_zeros();
-        let b = if t >= 22 { lo >> (t - 22) } else { lo << (22 - t) };
+        let b = if t >= 22 {
+            lo >> (t - 22)
+        } else {
+            lo << (22 - t)
+        };
         (t, b)
     };
     let index = ((bits >> INTERP_BITS) & ((1 << INDEX_BITS) - 1)) as usize;
