@@ -140,14 +140,14 @@ fn float_and_fixed32_hold_their_tolerances_on_every_clip() {
 /// symmetric zero-padded window offset compensation does not cover). README
 /// states this. Until the arithmetic is fixed, this guards against it getting
 /// worse: the pass counts measured with offset compensation and the one-pass
-/// FFT (165 / 172 / 171 when the corpus was introduced; 178 / 172 / 180 now).
+/// FFT (165 / 172 / 171 when the corpus was introduced; 178 / 173 / 180 now).
 #[test]
 fn fixed16_pass_counts_do_not_regress() {
     let rows = run(&[Arith::Fixed16]);
     for row in &rows {
         let floor = match row.config.as_str() {
             "speech16k-40" => 178,
-            "dsr8k-23" => 172,
+            "dsr8k-23" => 173,
             "tiny16k-10" => 180,
             other => panic!("no recorded figure for {other}"),
         };
