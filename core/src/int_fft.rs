@@ -160,12 +160,12 @@ impl BfpSample for i16 {
     #[inline(always)]
     fn rotate(xr: i32, xi: i32, c: i16, s: i16) -> (i32, i32) {
         // |x| ≤ LIMIT and |c| + |s| ≤ √2·2^15: the sum of two products is
-        // below 1.52·10^9 in magnitude, inside i32. Rounded to FRAC = 13
-        // fraction bits, so the level's own rounding almost never meets a tie
-        // (with few fraction bits, ties rounding up would bias every output).
+        // below 1.52·10^9 in magnitude, inside i32. Truncated to FRAC = 13
+        // fraction bits (a bias of 3/8 of 2^-13, far below the output's one
+        // rounding; with few fraction bits, rounding ties up biased every
+        // output), so that one shift folds into the next addition.
         let (c, s) = (c as i32, s as i32);
-        const R: i32 = 1 << 1;
-        ((c * xr + s * xi + R) >> 2, (c * xi - s * xr + R) >> 2)
+        ((c * xr + s * xi) >> 2, (c * xi - s * xr) >> 2)
     }
     #[inline(always)]
     fn neg_twiddle(t: i16) -> i16 {
@@ -822,22 +822,80 @@ fn packed16_split_pairs(words: &mut [u32], quarter: &[i16], s: u32) {
 /// (`SMLAD`/`SMLSDX` on the Cortex-M4). The same bits as the generic
 /// butterflies (tested).
 #[cfg(not(stapes_no_long_multiply))]
-#[inline(never)]
+#[inline]
 fn packed16_columns(buf: &mut [u32], quarter: &[i16], m: usize, shift: u32) -> u32 {
+    // The shift as a constant for the whole pass (immediates in the loop).
+    match shift {
+        0 => packed16_pass::<0>(buf, quarter, m),
+        1 => packed16_pass::<1>(buf, quarter, m),
+        2 => packed16_pass::<2>(buf, quarter, m),
+        3 => packed16_pass::<3>(buf, quarter, m),
+        _ => twiddled_columns::<i16>(bytemuck::cast_slice_mut(buf), quarter, m, shift),
+    }
+}
+
+/// [`packed16_columns`] for one shift.
+#[cfg(not(stapes_no_long_multiply))]
+#[inline(never)]
+fn packed16_pass<const SHIFT: u32>(buf: &mut [u32], quarter: &[i16], m: usize) -> u32 {
     use crate::dsp16::pack;
     let q = quarter.len() - 1;
     let step = q / m;
     let one = pack(i16::MAX as i32, 0);
-    let mut acc = packed16_column::<true>(buf, m, 0, [one; 3], shift, 0);
-    for j in 1..m {
-        let k = j * step;
-        let w = [k, 2 * k, 3 * k].map(|k| {
-            let (c, s) = twiddle::<i16>(quarter, k);
-            pack(c as i32, s as i32)
-        });
-        acc = packed16_column::<false>(buf, m, j, w, shift, acc);
+    let mut acc = packed16_column_out_of_line::<true>(buf, m, 0, [one; 3], SHIFT, 0);
+    #[cfg(stapes_arm_dsp)]
+    let mut kernel = arm_dsp_column::PassKernel::new(buf.len(), m);
+    let word = |c: i16, s: i16| pack(c as i32, s as i32);
+    let table = &quarter[..=q];
+    // k = j·step < q for the columns j = 1 .. m; the branches say which
+    // quadrant 2k and 3k lie in.
+    for (j, k) in (step..q).step_by(step.max(1)).enumerate() {
+        let w1 = word(table[k], table[q - k]);
+        let k2 = 2 * k;
+        let w2 = if k2 <= q {
+            word(table[k2], table[q - k2])
+        } else {
+            word(-table[2 * q - k2], table[k2 - q])
+        };
+        let k3 = 3 * k;
+        let w3 = if k3 <= q {
+            word(table[k3], table[q - k3])
+        } else if k3 <= 2 * q {
+            word(-table[2 * q - k3], table[k3 - q])
+        } else {
+            let k3 = k3 - 2 * q;
+            word(-table[k3], -table[q - k3])
+        };
+        let w = [w1, w2, w3];
+        #[cfg(stapes_arm_dsp)]
+        if let Some(a) = kernel.run::<SHIFT>(buf, j + 1, w, acc) {
+            acc = a;
+            continue;
+        }
+        // Elsewhere the twin; on the Cortex-M4 only if the kernel declined
+        // (it does not for the passes the FFT makes), out of line.
+        acc = if cfg!(stapes_arm_dsp) {
+            packed16_column_out_of_line::<false>(buf, m, j + 1, w, SHIFT, acc)
+        } else {
+            packed16_column::<false>(buf, m, j + 1, w, SHIFT, acc)
+        };
     }
     acc
+}
+
+/// [`packed16_column`] as one function for every shift (less flash where
+/// speed does not matter).
+#[cfg(not(stapes_no_long_multiply))]
+#[inline(never)]
+fn packed16_column_out_of_line<const ONE: bool>(
+    buf: &mut [u32],
+    m: usize,
+    j: usize,
+    w: [u32; 3],
+    shift: u32,
+    acc: u32,
+) -> u32 {
+    packed16_column::<ONE>(buf, m, j, w, shift, acc)
 }
 
 /// One column of [`packed16_columns`] in every group.
@@ -855,15 +913,15 @@ fn packed16_column<const ONE: bool>(
     let f = <i16 as BfpSample>::FRAC;
     let t = f + shift;
     let r = (1i32 << t) >> 1;
-    // W·x with 13 fraction bits: (c·re + s·im + 2) >> 2, (c·im − s·re + 2) >> 2,
+    // W·x with 13 fraction bits: (c·re + s·im) >> 2, (c·im − s·re) >> 2,
     // exactly as `<i16 as BfpSample>::rotate`.
     let rotate = |x: u32, w: u32| {
         if ONE {
             (low(x) << f, high(x) << f)
         } else {
             (
-                dual_multiply_add(w, x, 2) >> 2,
-                cross_multiply_sub(w, x, 2) >> 2,
+                dual_multiply_add(w, x, 0) >> 2,
+                cross_multiply_sub(w, x, 0) >> 2,
             )
         }
     };
@@ -894,4 +952,165 @@ fn packed16_column<const ONE: bool>(
         base += 4 * m;
     }
     acc
+}
+
+/// The twiddled radix-4 column in Armv7E-M assembly.
+#[cfg(stapes_arm_dsp)]
+mod arm_dsp_column {
+    /// A pass's group count, for the hand-scheduled column loop (the twin
+    /// of [`super::packed16_column`]: the same bits, checked on the board
+    /// against the host frame by frame).
+    pub(super) struct PassKernel {
+        m: usize,
+        groups: usize,
+        len: usize,
+        ctx: [u32; 4],
+    }
+
+    impl PassKernel {
+        /// For a pass over `len` words with sub-transforms of `m` points.
+        #[inline(always)]
+        pub(super) fn new(len: usize, m: usize) -> Self {
+            let groups = if m == 0 { 0 } else { len / (4 * m) };
+            PassKernel { m, groups, len, ctx: [0; 4] }
+        }
+
+        /// Runs column `j` over every group; `None` (nothing done) when
+        /// the column does not fit.
+        #[inline(always)]
+        pub(super) fn run<const SHIFT: u32>(
+            &mut self,
+            buf: &mut [u32],
+            j: usize,
+            [w1, w2, w3]: [u32; 3],
+            acc: u32,
+        ) -> Option<u32> {
+            let (m, groups) = (self.m, self.groups);
+            // Group g reads and writes words j + 4mg + {0, m, 2m, 3m}: all
+            // inside the buffer when j < m and 4m·groups ≤ len.
+            if buf.len() != self.len || groups == 0 || j >= m || SHIFT > 3 {
+                return None;
+            }
+            let start = buf[j..].as_mut_ptr();
+            // One past the last group's start (never dereferenced).
+            let end = start.wrapping_add(4 * m * groups);
+            self.ctx = [w1, w2, w3, end as u32];
+            Some(run::<SHIFT>(start, m, &mut self.ctx, acc))
+        }
+    }
+
+    /// The loop for one shift. `ctx` = `[w1, w2, w3, end]`.
+    ///
+    /// Per group, with `st` = `4m` bytes: `x0 = [p]`, `x2 = [p + st]`
+    /// (the quarter holding A₂), `x1 = [p + 2st]` (A₁), `x3 = [p + 3st]`;
+    /// `4·y_r = SMUAD/SMUSDX(w_r, x_r)`, `y_r = 4·y_r >> 2` (truncated, as
+    /// the twin), `y0 = (x0 << 13) + R`; then the 4-point DFT, each output
+    /// `>> t` (t = 13 + SHIFT) and packed, its `re² + im²` folded into the
+    /// running maximum `acc`. Values wrap in 32 bits only where the final
+    /// result is in range (so they are exact).
+    #[inline(always)]
+    fn run<const SHIFT: u32>(start: *mut u32, m: usize, ctx: &mut [u32; 4], acc: u32) -> u32 {
+        let mut acc = acc;
+        let st = 4 * m;
+        // SAFETY: `PassKernel::run` checked that every group's four words
+        // lie in the buffer; the loop runs while p < end (at least once:
+        // one group).
+        // Only registers, the buffer's words and `ctx` are touched.
+        #[allow(unsafe_code)]
+        unsafe {
+            core::arch::asm!(
+                "2:",
+                "add    {t6}, {p}, {st}, lsl #1",
+                "ldr    {t0}, [{t6}]",
+                "ldr    {t1}, [{tw}]",
+                "smuad  {t2}, {t1}, {t0}",
+                "smusdx {t0}, {t1}, {t0}",
+                "ldr    {t1}, [{t6}, {st}]",
+                "ldr    {t3}, [{tw}, #8]",
+                "smuad  {t4}, {t3}, {t1}",
+                "smusdx {t1}, {t3}, {t1}",
+                "asr    {t2}, {t2}, #2",
+                "add    {t3}, {t2}, {t4}, asr #2",   // cr
+                "sub    {t2}, {t2}, {t4}, asr #2",   // dr
+                "asr    {t0}, {t0}, #2",
+                "add    {t4}, {t0}, {t1}, asr #2",   // ci
+                "sub    {t0}, {t0}, {t1}, asr #2",   // di
+                "ldr    {t1}, [{p}, {st}]",           // x2
+                "ldr    {t5}, [{tw}, #4]",            // w2
+                "smuad  {t6}, {t5}, {t1}",
+                "smusdx {t1}, {t5}, {t1}",
+                "ldr    {t5}, [{p}]",                 // x0
+                "lsl    {t7}, {t5}, #16",
+                "asr    {t7}, {t7}, #3",
+                "add    {t7}, {t7}, #{r}",            // y0r
+                "asr    {t6}, {t6}, #2",              // y2r
+                "add    {t6}, {t7}, {t6}",            // ar
+                "rsb    {t7}, {t6}, {t7}, lsl #1",    // br = 2·y0r − ar
+                "add    {t6}, {t6}, {t3}",            // X0r = ar + cr
+                "sub    {t3}, {t6}, {t3}, lsl #1",    // X2r = ar − cr
+                "add    {t7}, {t7}, {t0}",            // X1r = br + di
+                "sub    {t0}, {t7}, {t0}, lsl #1",    // X3r = br − di
+                "asr    {t5}, {t5}, #16",
+                "lsl    {t5}, {t5}, #13",
+                "add    {t5}, {t5}, #{r}",            // y0i
+                "asr    {t1}, {t1}, #2",              // y2i
+                "add    {t1}, {t5}, {t1}",            // ai
+                "rsb    {t5}, {t1}, {t5}, lsl #1",    // bi = 2·y0i − ai
+                "add    {t1}, {t1}, {t4}",            // X0i = ai + ci
+                "sub    {t4}, {t1}, {t4}, lsl #1",    // X2i = ai − ci
+                "sub    {t5}, {t5}, {t2}",            // X1i = bi − dr
+                "add    {t2}, {t5}, {t2}, lsl #1",    // X3i = bi + dr
+                "asr    {t6}, {t6}, #{t}",
+                "pkhbt  {t6}, {t6}, {t1}, lsl #{u}",  // X0
+                "asr    {t7}, {t7}, #{t}",
+                "pkhbt  {t7}, {t7}, {t5}, lsl #{u}",  // X1
+                "asr    {t3}, {t3}, #{t}",
+                "pkhbt  {t3}, {t3}, {t4}, lsl #{u}",  // X2
+                "asr    {t0}, {t0}, #{t}",
+                "pkhbt  {t0}, {t0}, {t2}, lsl #{u}",  // X3
+                "str    {t6}, [{p}]",
+                "str    {t7}, [{p}, {st}]",
+                "str    {t3}, [{p}, {st}, lsl #1]",
+                "add    {t1}, {p}, {st}, lsl #1",
+                "str    {t0}, [{t1}, {st}]",
+                "smuad  {t6}, {t6}, {t6}",
+                "cmp    {t6}, {acc}",
+                "it     hi",
+                "movhi  {acc}, {t6}",
+                "smuad  {t7}, {t7}, {t7}",
+                "cmp    {t7}, {acc}",
+                "it     hi",
+                "movhi  {acc}, {t7}",
+                "smuad  {t3}, {t3}, {t3}",
+                "cmp    {t3}, {acc}",
+                "it     hi",
+                "movhi  {acc}, {t3}",
+                "smuad  {t0}, {t0}, {t0}",
+                "cmp    {t0}, {acc}",
+                "it     hi",
+                "movhi  {acc}, {t0}",
+                "add    {p}, {p}, {st}, lsl #2",
+                "ldr    {t1}, [{tw}, #12]",
+                "cmp    {p}, {t1}",
+                "blo    2b",
+                p = inout(reg) start => _,
+                st = in(reg) st,
+                tw = in(reg) ctx.as_mut_ptr(),
+                acc = inout(reg) acc,
+                t0 = out(reg) _,
+                t1 = out(reg) _,
+                t2 = out(reg) _,
+                t3 = out(reg) _,
+                t4 = out(reg) _,
+                t5 = out(reg) _,
+                t6 = out(reg) _,
+                t7 = out(reg) _,
+                r = const 1u32 << (12 + SHIFT),
+                t = const 13 + SHIFT,
+                u = const 3 - SHIFT,
+                options(nostack)
+            );
+        }
+        acc
+    }
 }
