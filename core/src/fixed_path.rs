@@ -364,10 +364,11 @@ fn place_and_window<P: TwiddlesFor>(
     P::Data: FrameData,
 {
     let round = (1i32 << down) >> 1;
+    let up = up + P::WINDOW_PRESHIFT;
     for (v, &win) in samples.iter_mut().zip(window) {
         let c = v.to_raw() as i32;
         let placed = <P::Data as FrameData>::from_i32((((c - offset) + round) >> down) << up);
-        *v = P::apply_window(placed, win);
+        *v = P::apply_window_preshifted(placed, win);
     }
 }
 
@@ -600,6 +601,11 @@ pub trait TwiddlesFor: Precision {
     fn window<'a>(tables: &FixedTables<'a>) -> &'a [Self::WindowCoef];
     /// `round(x · w)` for a normalised sample and a window coefficient, saturated.
     fn apply_window(x: Self::Data, w: Self::WindowCoef) -> Self::Data;
+    /// Left shift [`TwiddlesFor::apply_window_preshifted`] expects of its
+    /// input (folded into the normalisation's own shift).
+    const WINDOW_PRESHIFT: u32;
+    /// [`TwiddlesFor::apply_window`] of `x_pre >> WINDOW_PRESHIFT`.
+    fn apply_window_preshifted(x_pre: Self::Data, w: Self::WindowCoef) -> Self::Data;
     /// The coefficient in Q15.
     fn coef_q15(w: Self::WindowCoef) -> i32;
 }
@@ -615,6 +621,11 @@ impl TwiddlesFor for crate::int_fft::Fixed16 {
     }
     #[inline(always)]
     fn apply_window(x: i16, w: i16) -> i16 {
+        x.mul_q15(w)
+    }
+    const WINDOW_PRESHIFT: u32 = 0;
+    #[inline(always)]
+    fn apply_window_preshifted(x: i16, w: i16) -> i16 {
         x.mul_q15(w)
     }
     #[inline(always)]
@@ -634,8 +645,16 @@ impl TwiddlesFor for crate::int_fft::Fixed32 {
     }
     #[inline(always)]
     fn apply_window(x: i32, w: i32) -> i32 {
-        // |x| < 2^31, |w| < 2^31: the product fits i64; rounded once.
-        ((x as i64 * w as i64 + (1 << 30)) >> 31) as i32
+        // round(x·w / 2^31), halves up: for |x| < 2^30 (placed samples are
+        // below 2^29), exactly round(2x·w / 2^32), one `SMMULR` on the
+        // Cortex-M4 (and no 64-bit product on the Cortex-M0).
+        debug_assert!(x.unsigned_abs() < 1 << 30, "window input {x}");
+        crate::int_fft::mul_high(x << 1, w)
+    }
+    const WINDOW_PRESHIFT: u32 = 1;
+    #[inline(always)]
+    fn apply_window_preshifted(x2: i32, w: i32) -> i32 {
+        crate::int_fft::mul_high(x2, w)
     }
     #[inline(always)]
     fn coef_q15(w: i32) -> i32 {

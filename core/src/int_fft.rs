@@ -972,7 +972,12 @@ mod arm_dsp_column {
         #[inline(always)]
         pub(super) fn new(len: usize, m: usize) -> Self {
             let groups = if m == 0 { 0 } else { len / (4 * m) };
-            PassKernel { m, groups, len, ctx: [0; 4] }
+            PassKernel {
+                m,
+                groups,
+                len,
+                ctx: [0; 4],
+            }
         }
 
         /// Runs column `j` over every group; `None` (nothing done) when
