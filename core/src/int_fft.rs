@@ -223,7 +223,13 @@ impl BfpSample for i16 {
     #[cfg(not(stapes_no_long_multiply))]
     fn split_pairs(buf: &mut [i16], quarter: &[i16], s: u32) {
         match bytemuck::try_cast_slice_mut::<i16, u32>(buf) {
-            Ok(words) if cfg!(target_endian = "little") => packed16_split_pairs(words, quarter, s),
+            Ok(words) if cfg!(target_endian = "little") => {
+                #[cfg(stapes_arm_dsp)]
+                if arm_dsp_split::split_pairs(words, quarter, s) {
+                    return;
+                }
+                packed16_split_pairs(words, quarter, s)
+            }
             _ => split_pairs_generic::<i16>(buf, quarter, s),
         }
     }
@@ -1117,5 +1123,104 @@ mod arm_dsp_column {
             );
         }
         acc
+    }
+}
+
+/// The split step's pairs in Armv7E-M assembly: the twin of
+/// [`packed16_split_pairs`] (the same bits; the board's frames are checked
+/// against the host's, which run the twin).
+#[cfg(stapes_arm_dsp)]
+mod arm_dsp_split {
+    /// Runs the pairs `1 ≤ k < N/4`; `false` (nothing done) for a shift
+    /// beyond 3 or lengths that do not match.
+    #[inline(always)]
+    pub(super) fn split_pairs(words: &mut [u32], quarter: &[i16], s: u32) -> bool {
+        let q = words.len() / 2;
+        if q < 2 || quarter.len() != q + 1 || words.len() != 2 * q {
+            return false;
+        }
+        match s {
+            0 => run::<0>(words, quarter, q),
+            1 => run::<1>(words, quarter, q),
+            2 => run::<2>(words, quarter, q),
+            3 => run::<3>(words, quarter, q),
+            _ => return false,
+        }
+        true
+    }
+
+    /// Per pair: `a = Z[k]`, `b = Z[N/2 − k]`, `w = (q[k], q[Q − k])`;
+    /// `u = (SMUAD(w, a) − SMUSD(w, b) + 4) >> 3`,
+    /// `v = (SMUSDX(w, a) + SMUADX(w, b) + 4) >> 3`, `E = (re a + re b, im a − im b)`;
+    /// `Z[k] = ((E·2^12 + (v, −u) + R) >> T)`, `Z[N/2 − k] = ((E·2^12)·(1, −1) + (−v, −u) + R) >> T`
+    /// with `T = 13 + SHIFT`, `R = 2^(T − 1)` (as [`super::packed16_split_pairs`]).
+    #[inline(never)]
+    fn run<const SHIFT: u32>(words: &mut [u32], quarter: &[i16], q: usize) {
+        let lower = words[1..].as_mut_ptr();
+        let upper = words[2 * q - 1..].as_mut_ptr();
+        let cos = quarter[1..].as_ptr();
+        let sin = quarter[q - 1..].as_ptr();
+        let count = q - 1;
+        // SAFETY: k runs over 1 ..= q − 1: words k and 2q − k (q + 1 ..= 2q − 1)
+        // and quarter entries k and q − k (1 ..= q − 1) lie inside the
+        // slices; only those words are written.
+        #[allow(unsafe_code)]
+        unsafe {
+            core::arch::asm!(
+                "2:",
+                "ldr    {a}, [{pk}]",
+                "ldr    {b}, [{pm}]",
+                "ldrh   {t1}, [{tc}], #2",
+                "ldrh   {t2}, [{ts}], #-2",
+                "pkhbt  {w}, {t1}, {t2}, lsl #16",
+                "smuad  {t1}, {w}, {a}",
+                "smusd  {t2}, {w}, {b}",
+                "sub    {t1}, {t1}, {t2}",
+                "add    {t1}, {t1}, #4",
+                "asr    {t1}, {t1}, #3",            // u
+                "smusdx {t2}, {w}, {a}",
+                "smuadx {t3}, {w}, {b}",
+                "add    {t2}, {t2}, {t3}",
+                "add    {t2}, {t2}, #4",
+                "asr    {t2}, {t2}, #3",            // v
+                "sxth   {t3}, {a}",
+                "sxtah  {t3}, {t3}, {b}",           // E re
+                "asr    {t4}, {a}, #16",
+                "sub    {t4}, {t4}, {b}, asr #16",  // E im
+                "lsl    {t3}, {t3}, #12",
+                "add    {t3}, {t3}, #{r}",
+                "lsl    {t4}, {t4}, #12",
+                "add    {a}, {t3}, {t2}",           // Z[k] re
+                "sub    {b}, {t3}, {t2}",           // Z[m] re
+                "sub    {w}, {t4}, {t1}",
+                "add    {w}, {w}, #{r}",            // Z[k] im
+                "add    {t3}, {t4}, {t1}",
+                "rsb    {t3}, {t3}, #{r}",          // Z[m] im
+                "asr    {a}, {a}, #{t}",
+                "pkhbt  {a}, {a}, {w}, lsl #{u}",
+                "asr    {b}, {b}, #{t}",
+                "pkhbt  {b}, {b}, {t3}, lsl #{u}",
+                "str    {a}, [{pk}], #4",
+                "str    {b}, [{pm}], #-4",
+                "subs   {n}, {n}, #1",
+                "bne    2b",
+                pk = inout(reg) lower => _,
+                pm = inout(reg) upper => _,
+                tc = inout(reg) cos => _,
+                ts = inout(reg) sin => _,
+                n = inout(reg) count => _,
+                a = out(reg) _,
+                b = out(reg) _,
+                w = out(reg) _,
+                t1 = out(reg) _,
+                t2 = out(reg) _,
+                t3 = out(reg) _,
+                t4 = out(reg) _,
+                r = const 1u32 << (12 + SHIFT),
+                t = const 13 + SHIFT,
+                u = const 3 - SHIFT,
+                options(nostack)
+            );
+        }
     }
 }
