@@ -216,7 +216,13 @@ impl BfpSample for i16 {
     #[cfg(not(stapes_no_long_multiply))]
     fn first_radix4_groups(buf: &mut [i16], s: u32) -> u32 {
         match bytemuck::try_cast_slice_mut::<i16, u32>(buf) {
-            Ok(words) if cfg!(target_endian = "little") => packed16_first_radix4(words, s),
+            Ok(words) if cfg!(target_endian = "little") => {
+                #[cfg(stapes_arm_dsp)]
+                if let Some(acc) = arm_dsp_first::first_radix4(words, s) {
+                    return acc;
+                }
+                packed16_first_radix4(words, s)
+            }
             _ => first_radix4_generic::<i16>(buf, s),
         }
     }
@@ -1222,5 +1228,120 @@ mod arm_dsp_split {
                 options(nostack)
             );
         }
+    }
+}
+
+/// The first radix-4 pass in Armv7E-M assembly: the twin of
+/// [`packed16_first_radix4`] (the same bits; the board's frames are checked
+/// against the host's, which run the twin).
+#[cfg(stapes_arm_dsp)]
+mod arm_dsp_first {
+    /// All groups of four words; `None` (nothing done) for a shift outside
+    /// 1 ..= 3 or a length that is not a positive multiple of 4.
+    #[inline(always)]
+    pub(super) fn first_radix4(words: &mut [u32], s: u32) -> Option<u32> {
+        if words.is_empty() || words.len() % 4 != 0 {
+            return None;
+        }
+        // (No shift at all, for quiet input, is left to the twin: an
+        // immediate shift of 0 has no encoding.)
+        Some(match s {
+            1 => run::<1>(words),
+            2 => run::<2>(words),
+            3 => run::<3>(words),
+            _ => return None,
+        })
+    }
+
+    /// Per group `x0..x3`: `a, b = x0 ± x1`, `c, d = x2 ± x3` (componentwise,
+    /// exact), `R = 2^SHIFT / 2` added to `a` and `b`; outputs `a + c`,
+    /// `b − i·d`, `a − c`, `b + i·d`, each component `>> SHIFT`, packed; the
+    /// running maximum of `re² + im²` returned.
+    #[inline(never)]
+    fn run<const SHIFT: u32>(words: &mut [u32]) -> u32 {
+        let start = words.as_mut_ptr();
+        let end = start.wrapping_add(words.len());
+        let mut acc = 0u32;
+        // SAFETY: the loop visits groups of four words from `start` while
+        // p < end, and `words.len()` is a positive multiple of 4.
+        #[allow(unsafe_code)]
+        unsafe {
+            core::arch::asm!(
+                "2:",
+                "ldrd   {x0}, {x1}, [{p}]",
+                "ldrd   {x2}, {x3}, [{p}, #8]",
+                "sxth   {c}, {x0}",
+                "sxth   {d}, {x1}",
+                "add    {a}, {c}, {d}",               // ar
+                "sub    {b}, {c}, {d}",               // br
+                "asr    {c}, {x0}, #16",
+                "add    {d}, {c}, {x1}, asr #16",     // ai
+                "sub    {c}, {c}, {x1}, asr #16",     // bi
+                "add    {a}, {a}, #{r}",
+                "add    {b}, {b}, #{r}",
+                "add    {d}, {d}, #{r}",
+                "add    {c}, {c}, #{r}",
+                "sxth   {x0}, {x2}",
+                "sxth   {x1}, {x3}",
+                "sub    {x1}, {x0}, {x1}",            // dr
+                "rsb    {x0}, {x1}, {x0}, lsl #1",    // cr = 2·lo(x2) − dr
+                "asr    {x2}, {x2}, #16",
+                "sub    {x3}, {x2}, {x3}, asr #16",   // di
+                "rsb    {x2}, {x3}, {x2}, lsl #1",    // ci
+                "add    {a}, {a}, {x0}",              // X0r
+                "sub    {x0}, {a}, {x0}, lsl #1",     // X2r
+                "add    {d}, {d}, {x2}",              // X0i
+                "sub    {x2}, {d}, {x2}, lsl #1",     // X2i
+                "add    {b}, {b}, {x3}",              // X1r = br + di
+                "sub    {x3}, {b}, {x3}, lsl #1",     // X3r = br − di
+                "sub    {c}, {c}, {x1}",              // X1i = bi − dr
+                "add    {x1}, {c}, {x1}, lsl #1",     // X3i = bi + dr
+                "asr    {a}, {a}, #{s}",
+                "pkhbt  {a}, {a}, {d}, lsl #{u}",     // X0
+                "asr    {b}, {b}, #{s}",
+                "pkhbt  {b}, {b}, {c}, lsl #{u}",     // X1
+                "asr    {x0}, {x0}, #{s}",
+                "pkhbt  {x0}, {x0}, {x2}, lsl #{u}",  // X2
+                "asr    {x3}, {x3}, #{s}",
+                "pkhbt  {x3}, {x3}, {x1}, lsl #{u}",  // X3
+                "strd   {a}, {b}, [{p}]",
+                "strd   {x0}, {x3}, [{p}, #8]",
+                "smuad  {d}, {a}, {a}",
+                "cmp    {d}, {acc}",
+                "it     hi",
+                "movhi  {acc}, {d}",
+                "smuad  {c}, {b}, {b}",
+                "cmp    {c}, {acc}",
+                "it     hi",
+                "movhi  {acc}, {c}",
+                "smuad  {x2}, {x0}, {x0}",
+                "cmp    {x2}, {acc}",
+                "it     hi",
+                "movhi  {acc}, {x2}",
+                "smuad  {x1}, {x3}, {x3}",
+                "cmp    {x1}, {acc}",
+                "it     hi",
+                "movhi  {acc}, {x1}",
+                "add    {p}, {p}, #16",
+                "cmp    {p}, {end}",
+                "blo    2b",
+                p = inout(reg) start => _,
+                end = in(reg) end,
+                acc = inout(reg) acc,
+                x0 = out(reg) _,
+                x1 = out(reg) _,
+                x2 = out(reg) _,
+                x3 = out(reg) _,
+                a = out(reg) _,
+                b = out(reg) _,
+                c = out(reg) _,
+                d = out(reg) _,
+                r = const (1u32 << SHIFT) >> 1,
+                s = const SHIFT,
+                u = const 16 - SHIFT,
+                options(nostack)
+            );
+        }
+        acc
     }
 }
