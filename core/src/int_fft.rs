@@ -175,11 +175,13 @@ impl BfpSample for i16 {
     fn track(acc: u32, re: i32, im: i32) -> u32 {
         // |re|, |im| ≤ 32768 (the input may hold −32768): each square ≤ 2^30,
         // their sum ≤ 2^31, summed in u32.
-        acc.max((re * re) as u32 + (im * im) as u32)
+        fold_square(acc, (re * re) as u32 + (im * im) as u32)
     }
     #[inline]
     fn magnitude_bound(acc: u32) -> u32 {
-        crate::fixed_path::isqrt_u32(acc) + 1
+        // Every folded re² + im² is at most (its top 16 bits)·2^16 + 0xffff.
+        let top = (acc & 0xffff).max(acc >> 16);
+        crate::fixed_path::isqrt_u32((top << 16) | 0xffff) + 1
     }
     #[inline]
     fn input_bound(buf: &[i16]) -> (u32, u32) {
@@ -371,6 +373,18 @@ pub fn halved_difference_rounded(e: i32, t: i32, shift: u32) -> i32 {
     let h = (e >> 1) - (t >> 1);
     let b = (e & 1) - (t & 1);
     (h + ((b + (1 << shift)) >> 1)) >> shift
+}
+
+/// Folds a 16-bit value's `re² + im²` (at most `2^31`) into a tracker that
+/// keeps the largest top half (`sq >> 16`, at most `2^15`) in either of its
+/// two 16-bit lanes: the Cortex-M4 loops keep a running maximum per lane
+/// with `USUB16`/`SEL`, the portable code in the low lane; the bound is the
+/// larger lane ([`BfpSample::magnitude_bound`]). Dropping the low 16 bits
+/// of a square loosens the bound by less than 2^-15 of itself.
+#[inline(always)]
+pub fn fold_square(acc: u32, sq: u32) -> u32 {
+    let low = (acc & 0xffff).max(sq >> 16);
+    (acc & 0xffff_0000) | low
 }
 
 /// Bound on a level's output magnitudes (before its shift) for input
@@ -616,7 +630,7 @@ fn packed16_first_radix4(words: &mut [u32], s: u32) -> u32 {
             pack((br - di) >> s, (bi + dr) >> s),
         ];
         for (d, v) in g.iter_mut().zip(out) {
-            acc = acc.max(sum_of_squares(v));
+            acc = fold_square(acc, sum_of_squares(v));
             *d = v;
         }
     }
@@ -854,9 +868,14 @@ fn packed16_pass<const SHIFT: u32>(buf: &mut [u32], quarter: &[i16], m: usize) -
     let q = quarter.len() - 1;
     let step = q / m;
     let one = pack(i16::MAX as i32, 0);
-    let mut acc = packed16_column_out_of_line::<true>(buf, m, 0, [one; 3], SHIFT, 0);
     #[cfg(stapes_arm_dsp)]
     let mut kernel = arm_dsp_column::PassKernel::new(buf.len(), m);
+    #[cfg(stapes_arm_dsp)]
+    let first = kernel.run_first::<SHIFT>(buf, 0);
+    #[cfg(not(stapes_arm_dsp))]
+    let first = None;
+    let mut acc =
+        first.unwrap_or_else(|| packed16_column_out_of_line::<true>(buf, m, 0, [one; 3], SHIFT, 0));
     let word = |c: i16, s: i16| pack(c as i32, s as i32);
     let table = &quarter[..=q];
     // k = j·step < q for the columns j = 1 .. m; the branches say which
@@ -958,7 +977,7 @@ fn packed16_column<const ONE: bool>(
             pack((br - di) >> t, (bi + dr) >> t),
         ];
         for (k, &v) in out.iter().enumerate() {
-            acc = acc.max(sum_of_squares(v));
+            acc = fold_square(acc, sum_of_squares(v));
             g[k * m] = v;
         }
         base += 4 * m;
@@ -980,6 +999,22 @@ mod arm_dsp_column {
     }
 
     impl PassKernel {
+        /// Column 0 (twiddles 1) over every group: the same loop with the
+        /// twiddle 2^14 and one bit less dropped from the products, so each
+        /// `y = x·2^13` exactly, as the twin's; `None` as for [`PassKernel::run`].
+        #[inline(always)]
+        pub(super) fn run_first<const SHIFT: u32>(&mut self, buf: &mut [u32], acc: u32) -> Option<u32> {
+            let (m, groups) = (self.m, self.groups);
+            if buf.len() != self.len || groups == 0 || m == 0 || SHIFT > 3 {
+                return None;
+            }
+            let start = buf.as_mut_ptr();
+            let end = start.wrapping_add(4 * m * groups);
+            let one = 1u32 << 14;
+            self.ctx = [one, one, one, end as u32];
+            Some(run::<SHIFT, 1>(start, m, &mut self.ctx, acc))
+        }
+
         /// For a pass over `len` words with sub-transforms of `m` points.
         #[inline(always)]
         pub(super) fn new(len: usize, m: usize) -> Self {
@@ -1012,7 +1047,7 @@ mod arm_dsp_column {
             // One past the last group's start (never dereferenced).
             let end = start.wrapping_add(4 * m * groups);
             self.ctx = [w1, w2, w3, end as u32];
-            Some(run::<SHIFT>(start, m, &mut self.ctx, acc))
+            Some(run::<SHIFT, 2>(start, m, &mut self.ctx, acc))
         }
     }
 
@@ -1023,10 +1058,15 @@ mod arm_dsp_column {
     /// `4·y_r = SMUAD/SMUSDX(w_r, x_r)`, `y_r = 4·y_r >> 2` (truncated, as
     /// the twin), `y0 = (x0 << 13) + R`; then the 4-point DFT, each output
     /// `>> t` (t = 13 + SHIFT) and packed, its `re² + im²` folded into the
-    /// running maximum `acc`. Values wrap in 32 bits only where the final
+    /// tracker `acc` ([`super::fold_square`], per lane). Values wrap in 32 bits only where the final
     /// result is in range (so they are exact).
     #[inline(always)]
-    fn run<const SHIFT: u32>(start: *mut u32, m: usize, ctx: &mut [u32; 4], acc: u32) -> u32 {
+    fn run<const SHIFT: u32, const Q: u32>(
+        start: *mut u32,
+        m: usize,
+        ctx: &mut [u32; 4],
+        acc: u32,
+    ) -> u32 {
         let mut acc = acc;
         let st = 4 * m;
         // SAFETY: `PassKernel::run` checked that every group's four words
@@ -1046,12 +1086,12 @@ mod arm_dsp_column {
                 "ldr    {t3}, [{tw}, #8]",
                 "smuad  {t4}, {t3}, {t1}",
                 "smusdx {t1}, {t3}, {t1}",
-                "asr    {t2}, {t2}, #2",
-                "add    {t3}, {t2}, {t4}, asr #2",   // cr
-                "sub    {t2}, {t2}, {t4}, asr #2",   // dr
-                "asr    {t0}, {t0}, #2",
-                "add    {t4}, {t0}, {t1}, asr #2",   // ci
-                "sub    {t0}, {t0}, {t1}, asr #2",   // di
+                "asr    {t2}, {t2}, #{q}",
+                "add    {t3}, {t2}, {t4}, asr #{q}",   // cr
+                "sub    {t2}, {t2}, {t4}, asr #{q}",   // dr
+                "asr    {t0}, {t0}, #{q}",
+                "add    {t4}, {t0}, {t1}, asr #{q}",   // ci
+                "sub    {t0}, {t0}, {t1}, asr #{q}",   // di
                 "ldr    {t1}, [{p}, {st}]",           // x2
                 "ldr    {t5}, [{tw}, #4]",            // w2
                 "smuad  {t6}, {t5}, {t1}",
@@ -1060,7 +1100,7 @@ mod arm_dsp_column {
                 "lsl    {t7}, {t5}, #16",
                 "asr    {t7}, {t7}, #3",
                 "add    {t7}, {t7}, #{r}",            // y0r
-                "asr    {t6}, {t6}, #2",              // y2r
+                "asr    {t6}, {t6}, #{q}",              // y2r
                 "add    {t6}, {t7}, {t6}",            // ar
                 "rsb    {t7}, {t6}, {t7}, lsl #1",    // br = 2·y0r − ar
                 "add    {t6}, {t6}, {t3}",            // X0r = ar + cr
@@ -1070,7 +1110,7 @@ mod arm_dsp_column {
                 "asr    {t5}, {t5}, #16",
                 "lsl    {t5}, {t5}, #13",
                 "add    {t5}, {t5}, #{r}",            // y0i
-                "asr    {t1}, {t1}, #2",              // y2i
+                "asr    {t1}, {t1}, #{q}",              // y2i
                 "add    {t1}, {t5}, {t1}",            // ai
                 "rsb    {t5}, {t1}, {t5}, lsl #1",    // bi = 2·y0i − ai
                 "add    {t1}, {t1}, {t4}",            // X0i = ai + ci
@@ -1090,22 +1130,16 @@ mod arm_dsp_column {
                 "str    {t3}, [{p}, {st}, lsl #1]",
                 "add    {t1}, {p}, {st}, lsl #1",
                 "str    {t0}, [{t1}, {st}]",
-                "smuad  {t6}, {t6}, {t6}",
-                "cmp    {t6}, {acc}",
-                "it     hi",
-                "movhi  {acc}, {t6}",
+                "smuad  {t6}, {t6}, {t6}",            // re² + im² of each output
                 "smuad  {t7}, {t7}, {t7}",
-                "cmp    {t7}, {acc}",
-                "it     hi",
-                "movhi  {acc}, {t7}",
                 "smuad  {t3}, {t3}, {t3}",
-                "cmp    {t3}, {acc}",
-                "it     hi",
-                "movhi  {acc}, {t3}",
                 "smuad  {t0}, {t0}, {t0}",
-                "cmp    {t0}, {acc}",
-                "it     hi",
-                "movhi  {acc}, {t0}",
+                "pkhtb  {t6}, {t7}, {t6}, asr #16",   // top halves, two per word
+                "pkhtb  {t3}, {t0}, {t3}, asr #16",
+                "usub16 {t7}, {t6}, {acc}",           // lane-wise maximum
+                "sel    {acc}, {t6}, {acc}",
+                "usub16 {t7}, {t3}, {acc}",
+                "sel    {acc}, {t3}, {acc}",
                 "add    {p}, {p}, {st}, lsl #2",
                 "ldr    {t1}, [{tw}, #12]",
                 "cmp    {p}, {t1}",
@@ -1125,6 +1159,7 @@ mod arm_dsp_column {
                 r = const 1u32 << (12 + SHIFT),
                 t = const 13 + SHIFT,
                 u = const 3 - SHIFT,
+                q = const Q,
                 options(nostack)
             );
         }
@@ -1256,7 +1291,8 @@ mod arm_dsp_first {
     /// Per group `x0..x3`: `a, b = x0 ± x1`, `c, d = x2 ± x3` (componentwise,
     /// exact), `R = 2^SHIFT / 2` added to `a` and `b`; outputs `a + c`,
     /// `b − i·d`, `a − c`, `b + i·d`, each component `>> SHIFT`, packed; the
-    /// running maximum of `re² + im²` returned.
+    /// outputs' `re² + im²` folded into the returned tracker
+    /// ([`super::fold_square`], per lane).
     #[inline(never)]
     fn run<const SHIFT: u32>(words: &mut [u32]) -> u32 {
         let start = words.as_mut_ptr();
@@ -1307,21 +1343,15 @@ mod arm_dsp_first {
                 "strd   {a}, {b}, [{p}]",
                 "strd   {x0}, {x3}, [{p}, #8]",
                 "smuad  {d}, {a}, {a}",
-                "cmp    {d}, {acc}",
-                "it     hi",
-                "movhi  {acc}, {d}",
                 "smuad  {c}, {b}, {b}",
-                "cmp    {c}, {acc}",
-                "it     hi",
-                "movhi  {acc}, {c}",
                 "smuad  {x2}, {x0}, {x0}",
-                "cmp    {x2}, {acc}",
-                "it     hi",
-                "movhi  {acc}, {x2}",
                 "smuad  {x1}, {x3}, {x3}",
-                "cmp    {x1}, {acc}",
-                "it     hi",
-                "movhi  {acc}, {x1}",
+                "pkhtb  {d}, {c}, {d}, asr #16",
+                "pkhtb  {x2}, {x1}, {x2}, asr #16",
+                "usub16 {c}, {d}, {acc}",
+                "sel    {acc}, {d}, {acc}",
+                "usub16 {c}, {x2}, {acc}",
+                "sel    {acc}, {x2}, {acc}",
                 "add    {p}, {p}, #16",
                 "cmp    {p}, {end}",
                 "blo    2b",
