@@ -396,12 +396,16 @@ fn print_fitted_costs(figures: &[Figure]) {
                 (dt(1) - window * dc.window_samples as f64) / dc.window_samples as f64;
             let bin = st(3) / sh;
             let magnitude = (dt(3) - bin * dh) / dh;
+            let fft = st(2) / (sh * sh.log2());
+            // dsr8k-23's N/2 = 128 points take an odd number of levels.
+            let odd_level = (dt(2) - fft * dh * dh.log2()) / dh;
             println!(
-                "fitted costs {core} {arith}: c({:.2}, {:.2}, {:.2}, {:.2}, {:.2}, {:.2}, {:.2}, {:.2}); stack {} B",
+                "fitted costs {core} {arith}: c({:.2}, {:.2}, {:.2}, {:.2}, {:.2}, {:.2}, {:.2}, {:.2}, {:.2}); stack {} B",
                 st(0) / sc.hop_samples as f64,
                 window,
                 conditioned,
-                st(2) / (sh * sh.log2()),
+                fft,
+                odd_level,
                 bin,
                 magnitude,
                 st(4) / sw,

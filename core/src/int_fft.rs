@@ -1003,7 +1003,11 @@ mod arm_dsp_column {
         /// twiddle 2^14 and one bit less dropped from the products, so each
         /// `y = x·2^13` exactly, as the twin's; `None` as for [`PassKernel::run`].
         #[inline(always)]
-        pub(super) fn run_first<const SHIFT: u32>(&mut self, buf: &mut [u32], acc: u32) -> Option<u32> {
+        pub(super) fn run_first<const SHIFT: u32>(
+            &mut self,
+            buf: &mut [u32],
+            acc: u32,
+        ) -> Option<u32> {
             let (m, groups) = (self.m, self.groups);
             if buf.len() != self.len || groups == 0 || m == 0 || SHIFT > 3 {
                 return None;
