@@ -1279,7 +1279,7 @@ mod arm_dsp_first {
     /// 1 ..= 3 or a length that is not a positive multiple of 4.
     #[inline(always)]
     pub(super) fn first_radix4(words: &mut [u32], s: u32) -> Option<u32> {
-        if words.is_empty() || words.len() % 4 != 0 {
+        if words.is_empty() || !words.len().is_multiple_of(4) {
             return None;
         }
         // (No shift at all, for quiet input, is left to the twin: an

@@ -49,8 +49,9 @@
 //! # }
 //! ```
 #![no_std]
-// The only `unsafe` is single Cortex-M4 DSP instructions (`int_fft::mul_high`,
-// `dsp16`), each behind `cfg(stapes_arm_dsp)` with a portable twin.
+// The only `unsafe` is Cortex-M4 inline assembly behind `cfg(stapes_arm_dsp)`
+// (`int_fft::mul_high`, `dsp16`, three FFT loops in `int_fft`), each with a
+// portable twin that gives the same bits.
 #![deny(unsafe_code)]
 #![deny(missing_docs)]
 
