@@ -33,122 +33,59 @@ pub fn pack(lo: i32, hi: i32) -> u32 {
     (lo as u32 & 0xffff) | ((hi as u32) << 16)
 }
 
-/// `low(a)·low(b) + high(a)·high(b) + acc` (`SMLAD`).
-#[inline(always)]
-pub fn dual_multiply_add(a: u32, b: u32, acc: i32) -> i32 {
-    #[cfg(stapes_arm_dsp)]
-    {
-        let r: i32;
-        // SAFETY: one register-only instruction: no memory, stack or flags
-        // read (it may set the sticky Q flag, which nothing reads).
-        #[allow(unsafe_code)]
-        unsafe {
-            core::arch::asm!(
-                "smlad {r}, {a}, {b}, {acc}",
-                r = lateout(reg) r,
-                a = in(reg) a,
-                b = in(reg) b,
-                acc = in(reg) acc,
-                options(pure, nomem, nostack)
-            );
+/// One dual 16-bit multiply-accumulate: the Armv7E-M instruction on
+/// `thumbv7em`, the portable expression elsewhere (the same bits).
+macro_rules! dual_multiply {
+    ($(#[$doc:meta])* $name:ident, $instr:literal, |$a:ident, $b:ident, $acc:ident| $portable:expr) => {
+        $(#[$doc])*
+        #[inline(always)]
+        pub fn $name($a: u32, $b: u32, $acc: i32) -> i32 {
+            #[cfg(stapes_arm_dsp)]
+            {
+                let r: i32;
+                // SAFETY: one register-only instruction: no memory, stack or
+                // flags read (it may set the sticky Q flag, which nothing reads).
+                #[allow(unsafe_code)]
+                unsafe {
+                    core::arch::asm!(
+                        concat!($instr, " {r}, {a}, {b}, {acc}"),
+                        r = lateout(reg) r,
+                        a = in(reg) $a,
+                        b = in(reg) $b,
+                        acc = in(reg) $acc,
+                        options(pure, nomem, nostack)
+                    );
+                }
+                r
+            }
+            #[cfg(not(stapes_arm_dsp))]
+            {
+                $portable
+            }
         }
-        r
-    }
-    #[cfg(not(stapes_arm_dsp))]
-    {
-        low(a)
-            .wrapping_mul(low(b))
-            .wrapping_add(high(a).wrapping_mul(high(b)))
-            .wrapping_add(acc)
-    }
+    };
 }
 
-/// `low(a)·high(b) − high(a)·low(b) + acc` (`SMLSDX`).
-#[inline(always)]
-pub fn cross_multiply_sub(a: u32, b: u32, acc: i32) -> i32 {
-    #[cfg(stapes_arm_dsp)]
-    {
-        let r: i32;
-        // SAFETY: as in `dual_multiply_add`.
-        #[allow(unsafe_code)]
-        unsafe {
-            core::arch::asm!(
-                "smlsdx {r}, {a}, {b}, {acc}",
-                r = lateout(reg) r,
-                a = in(reg) a,
-                b = in(reg) b,
-                acc = in(reg) acc,
-                options(pure, nomem, nostack)
-            );
-        }
-        r
-    }
-    #[cfg(not(stapes_arm_dsp))]
-    {
-        low(a)
-            .wrapping_mul(high(b))
-            .wrapping_sub(high(a).wrapping_mul(low(b)))
-            .wrapping_add(acc)
-    }
-}
-
-/// `low(a)·low(b) − high(a)·high(b) + acc` (`SMLSD`).
-#[inline(always)]
-pub fn dual_multiply_sub(a: u32, b: u32, acc: i32) -> i32 {
-    #[cfg(stapes_arm_dsp)]
-    {
-        let r: i32;
-        // SAFETY: as in `dual_multiply_add`.
-        #[allow(unsafe_code)]
-        unsafe {
-            core::arch::asm!(
-                "smlsd {r}, {a}, {b}, {acc}",
-                r = lateout(reg) r,
-                a = in(reg) a,
-                b = in(reg) b,
-                acc = in(reg) acc,
-                options(pure, nomem, nostack)
-            );
-        }
-        r
-    }
-    #[cfg(not(stapes_arm_dsp))]
-    {
-        low(a)
-            .wrapping_mul(low(b))
-            .wrapping_sub(high(a).wrapping_mul(high(b)))
-            .wrapping_add(acc)
-    }
-}
-
-/// `low(a)·high(b) + high(a)·low(b) + acc` (`SMLADX`).
-#[inline(always)]
-pub fn cross_multiply_add(a: u32, b: u32, acc: i32) -> i32 {
-    #[cfg(stapes_arm_dsp)]
-    {
-        let r: i32;
-        // SAFETY: as in `dual_multiply_add`.
-        #[allow(unsafe_code)]
-        unsafe {
-            core::arch::asm!(
-                "smladx {r}, {a}, {b}, {acc}",
-                r = lateout(reg) r,
-                a = in(reg) a,
-                b = in(reg) b,
-                acc = in(reg) acc,
-                options(pure, nomem, nostack)
-            );
-        }
-        r
-    }
-    #[cfg(not(stapes_arm_dsp))]
-    {
-        low(a)
-            .wrapping_mul(high(b))
-            .wrapping_add(high(a).wrapping_mul(low(b)))
-            .wrapping_add(acc)
-    }
-}
+dual_multiply!(
+    /// `low(a)·low(b) + high(a)·high(b) + acc` (`SMLAD`).
+    dual_multiply_add, "smlad",
+    |a, b, acc| low(a).wrapping_mul(low(b)).wrapping_add(high(a).wrapping_mul(high(b))).wrapping_add(acc)
+);
+dual_multiply!(
+    /// `low(a)·high(b) − high(a)·low(b) + acc` (`SMLSDX`).
+    cross_multiply_sub, "smlsdx",
+    |a, b, acc| low(a).wrapping_mul(high(b)).wrapping_sub(high(a).wrapping_mul(low(b))).wrapping_add(acc)
+);
+dual_multiply!(
+    /// `low(a)·low(b) − high(a)·high(b) + acc` (`SMLSD`).
+    dual_multiply_sub, "smlsd",
+    |a, b, acc| low(a).wrapping_mul(low(b)).wrapping_sub(high(a).wrapping_mul(high(b))).wrapping_add(acc)
+);
+dual_multiply!(
+    /// `low(a)·high(b) + high(a)·low(b) + acc` (`SMLADX`).
+    cross_multiply_add, "smladx",
+    |a, b, acc| low(a).wrapping_mul(high(b)).wrapping_add(high(a).wrapping_mul(low(b))).wrapping_add(acc)
+);
 
 /// `low(x)² + high(x)²` as `u32` (`SMUAD x, x`; at most `2^31`, which the
 /// instruction's wrapped `i32` result also holds as `u32`).
