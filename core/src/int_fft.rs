@@ -185,6 +185,12 @@ impl BfpSample for i16 {
     }
     #[inline]
     fn input_bound(buf: &[i16]) -> (u32, u32) {
+        #[cfg(stapes_arm_dsp)]
+        if let Ok(words) = bytemuck::try_cast_slice::<i16, u32>(buf) {
+            if let Some(acc) = arm_dsp_scan::input_tracker(words) {
+                return (acc, 0);
+            }
+        }
         let acc = buf
             .chunks_exact(2)
             .fold(0, |acc, p| Self::track(acc, p[0] as i32, p[1] as i32));
@@ -505,6 +511,10 @@ fn bit_reverse_pairs<T: BfpSample>(buf: &mut [T], half: usize) {
     let (pairs, _) = buf.as_chunks_mut::<2>();
     let pairs = &mut pairs[..half];
     let bits = half.trailing_zeros();
+    #[cfg(stapes_arm_dsp)]
+    if core::mem::size_of::<[T; 2]>() == 4 && arm_dsp_scan::bit_reverse_words(pairs, bits) {
+        return;
+    }
     #[cfg(not(stapes_no_long_multiply))]
     for i in 0..pairs.len() {
         // `RBIT` on the Cortex-M4.
@@ -1377,5 +1387,103 @@ mod arm_dsp_first {
             );
         }
         acc
+    }
+}
+
+/// The FFT's input scan and bit reversal in Armv7E-M assembly: twins of the
+/// portable fold in `<i16 as BfpSample>::input_bound` and the loop in
+/// [`bit_reverse_pairs`] (the same results; the board's frames are checked
+/// against the host's).
+#[cfg(stapes_arm_dsp)]
+mod arm_dsp_scan {
+    /// Bit-reversal permutation of 4-byte pairs (16-bit data), `bits` =
+    /// log2 of their count: one `RBIT` per even index `i`, since
+    /// rev(i + 1) = rev(i) + count/2. `false` (nothing done) for fewer than
+    /// 4 pairs or pairs off a word boundary.
+    #[inline(always)]
+    pub(super) fn bit_reverse_words<T>(pairs: &mut [[T; 2]], bits: u32) -> bool {
+        let half = pairs.len();
+        if core::mem::size_of::<[T; 2]>() != 4 || half < 4 || half != 1 << bits {
+            return false;
+        }
+        let base = pairs.as_mut_ptr() as *mut u32;
+        if !(base as usize).is_multiple_of(4) {
+            return false;
+        }
+        // SAFETY: every index i and j = rev(i) is below `half` (a power of
+        // two), so each word access lies in `pairs` (4 bytes per pair, on a
+        // word boundary); pairs are swapped whole.
+        #[allow(unsafe_code)]
+        unsafe {
+            core::arch::asm!(
+                "2:",
+                "rbit   {j}, {i}",
+                "lsr    {j}, {j}, {sh}",
+                "cmp    {j}, {i}",
+                "bls    3f",
+                "ldr    {a}, [{base}, {i}, lsl #2]",
+                "ldr    {b}, [{base}, {j}, lsl #2]",
+                "str    {b}, [{base}, {i}, lsl #2]",
+                "str    {a}, [{base}, {j}, lsl #2]",
+                "3:",
+                "add    {j}, {j}, {top}",
+                "add    {i}, {i}, #1",
+                "cmp    {j}, {i}",
+                "bls    4f",
+                "ldr    {a}, [{base}, {i}, lsl #2]",
+                "ldr    {b}, [{base}, {j}, lsl #2]",
+                "str    {b}, [{base}, {i}, lsl #2]",
+                "str    {a}, [{base}, {j}, lsl #2]",
+                "4:",
+                "add    {i}, {i}, #1",
+                "cmp    {i}, {half}",
+                "blo    2b",
+                base = in(reg) base,
+                i = inout(reg) 0usize => _,
+                sh = in(reg) 32 - bits,
+                top = in(reg) half / 2,
+                half = in(reg) half,
+                j = out(reg) _,
+                a = out(reg) _,
+                b = out(reg) _,
+                options(nostack)
+            );
+        }
+        true
+    }
+
+    /// [`super::fold_square`] of every word's `re² + im²`, two words per
+    /// step, one per lane; `None` for an empty or odd-length slice.
+    #[inline(never)]
+    pub(super) fn input_tracker(words: &[u32]) -> Option<u32> {
+        if words.is_empty() || !words.len().is_multiple_of(2) {
+            return None;
+        }
+        let start = words.as_ptr();
+        let end = start.wrapping_add(words.len());
+        let mut acc = 0u32;
+        // SAFETY: reads words [start, end) two at a time (the length is a
+        // positive even number); writes nothing.
+        #[allow(unsafe_code)]
+        unsafe {
+            core::arch::asm!(
+                "2:",
+                "ldrd   {x}, {y}, [{p}], #8",
+                "smuad  {x}, {x}, {x}",
+                "smuad  {y}, {y}, {y}",
+                "pkhtb  {x}, {y}, {x}, asr #16",
+                "usub16 {y}, {x}, {acc}",
+                "sel    {acc}, {x}, {acc}",
+                "cmp    {p}, {end}",
+                "blo    2b",
+                p = inout(reg) start => _,
+                end = in(reg) end,
+                acc = inout(reg) acc,
+                x = out(reg) _,
+                y = out(reg) _,
+                options(nostack, readonly)
+            );
+        }
+        Some(acc)
     }
 }
