@@ -1003,7 +1003,9 @@ mod arm_dsp_column {
     /// against the host frame by frame).
     pub(super) struct PassKernel {
         m: usize,
-        groups: usize,
+        /// Words from a column's first group start to one past its last
+        /// (0 when the pass has no whole group).
+        span: usize,
         len: usize,
         ctx: [u32; 4],
     }
@@ -1018,15 +1020,14 @@ mod arm_dsp_column {
             buf: &mut [u32],
             acc: u32,
         ) -> Option<u32> {
-            let (m, groups) = (self.m, self.groups);
-            if buf.len() != self.len || groups == 0 || m == 0 || SHIFT > 3 {
+            if buf.len() != self.len || self.span == 0 || SHIFT > 3 {
                 return None;
             }
             let start = buf.as_mut_ptr();
-            let end = start.wrapping_add(4 * m * groups);
+            let end = start.wrapping_add(self.span);
             let one = 1u32 << 14;
             self.ctx = [one, one, one, end as u32];
-            Some(run::<SHIFT, 1>(start, m, &mut self.ctx, acc))
+            Some(run::<SHIFT, 1>(start, self.m, &mut self.ctx, acc))
         }
 
         /// For a pass over `len` words with sub-transforms of `m` points.
@@ -1035,7 +1036,7 @@ mod arm_dsp_column {
             let groups = if m == 0 { 0 } else { len / (4 * m) };
             PassKernel {
                 m,
-                groups,
+                span: 4 * m * groups,
                 len,
                 ctx: [0; 4],
             }
@@ -1051,17 +1052,16 @@ mod arm_dsp_column {
             [w1, w2, w3]: [u32; 3],
             acc: u32,
         ) -> Option<u32> {
-            let (m, groups) = (self.m, self.groups);
             // Group g reads and writes words j + 4mg + {0, m, 2m, 3m}: all
-            // inside the buffer when j < m and 4m·groups ≤ len.
-            if buf.len() != self.len || groups == 0 || j >= m || SHIFT > 3 {
+            // inside the buffer when j < m and span = 4m·groups ≤ len.
+            if buf.len() != self.len || self.span == 0 || j >= self.m || SHIFT > 3 {
                 return None;
             }
-            let start = buf[j..].as_mut_ptr();
+            let start = buf.as_mut_ptr().wrapping_add(j);
             // One past the last group's start (never dereferenced).
-            let end = start.wrapping_add(4 * m * groups);
+            let end = start.wrapping_add(self.span);
             self.ctx = [w1, w2, w3, end as u32];
-            Some(run::<SHIFT, 2>(start, m, &mut self.ctx, acc))
+            Some(run::<SHIFT, 2>(start, self.m, &mut self.ctx, acc))
         }
     }
 
