@@ -400,6 +400,21 @@ impl WideSum {
             self.low += (p & 0xffff) as u32;
         }
     }
+    /// A sum holding `total`.
+    #[inline(always)]
+    pub fn from_total(total: i64) -> Self {
+        let mut s = WideSum::default();
+        #[cfg(not(stapes_no_long_multiply))]
+        {
+            s.sum = total;
+        }
+        #[cfg(stapes_no_long_multiply)]
+        {
+            s.high = (total >> 16) as i32;
+            s.low = (total & 0xffff) as u32;
+        }
+        s
+    }
     /// The sum.
     #[inline(always)]
     pub fn total(self) -> i64 {
@@ -601,6 +616,16 @@ pub trait TwiddlesFor: Precision {
     fn window<'a>(tables: &FixedTables<'a>) -> &'a [Self::WindowCoef];
     /// `round(x · w)` for a normalised sample and a window coefficient, saturated.
     fn apply_window(x: Self::Data, w: Self::WindowCoef) -> Self::Data;
+    /// Pass 1's range and window-weighted sum of raw samples (see
+    /// [`raw_offset_statistics`]) by a faster route where the target has
+    /// one: `None` to take the portable loop. The same values either way.
+    fn raw_statistics_fast(
+        samples: &[Self::Data],
+        window: &[Self::WindowCoef],
+    ) -> Option<(i32, i32, i64)> {
+        let _ = (samples, window);
+        None
+    }
     /// Left shift [`TwiddlesFor::apply_window_preshifted`] expects of its
     /// input (folded into the normalisation's own shift).
     const WINDOW_PRESHIFT: u32;
@@ -613,6 +638,10 @@ pub trait TwiddlesFor: Precision {
 impl TwiddlesFor for crate::int_fft::Fixed16 {
     type WindowCoef = i16;
     const WIDE: bool = false;
+    #[cfg(stapes_arm_dsp)]
+    fn raw_statistics_fast(samples: &[i16], window: &[i16]) -> Option<(i32, i32, i64)> {
+        arm_dsp_statistics::raw_statistics(samples, window)
+    }
     fn quarter_wave<'a>(tables: &FixedTables<'a>) -> &'a [i16] {
         tables.twiddles_q15
     }
@@ -894,6 +923,11 @@ where
             if hop >= w {
                 self.frame_start = cond;
             }
+        } else if let (Some(_), Some((l, h, sum))) =
+            (offset_terms, P::raw_statistics_fast(&buf[..w], window))
+        {
+            (lo, hi) = (l, h);
+            weighted = WideSum::from_total(sum);
         } else if cfg!(stapes_no_long_multiply) && offset_terms.is_some() {
             (lo, hi, weighted) = raw_offset_statistics::<P>(&buf[..w], window);
         } else {
@@ -1121,5 +1155,57 @@ where
         probe.mark(Stage::Mel);
         self.framer.end_frame(<P::Data as FrameData>::from_raw);
         probe.mark(Stage::Log);
+    }
+}
+
+/// Pass 1 over raw 16-bit samples in Armv7E-M assembly, two samples per
+/// word: lane-wise maximum and minimum (`SSUB16`/`SEL`) and the
+/// window-weighted sum in 64 bits (`SMLALD`), exactly the values of the
+/// portable loop (the board's frames are checked against the host's).
+#[cfg(stapes_arm_dsp)]
+mod arm_dsp_statistics {
+    /// `(min, max, Σ c·w)`; `None` for an empty or odd-length frame, or
+    /// samples or coefficients off a word boundary.
+    #[inline(never)]
+    pub(super) fn raw_statistics(samples: &[i16], window: &[i16]) -> Option<(i32, i32, i64)> {
+        let n = samples.len();
+        if n == 0 || !n.is_multiple_of(2) || window.len() < n {
+            return None;
+        }
+        let xs = bytemuck::try_cast_slice::<i16, u32>(samples).ok()?;
+        let ws = bytemuck::try_cast_slice::<i16, u32>(&window[..n]).ok()?;
+        let (mut hi, mut lo) = (0x8000_8000u32, 0x7fff_7fffu32);
+        let (mut sum_lo, mut sum_hi) = (0u32, 0u32);
+        // SAFETY: reads the n/2 words of each slice (n even, positive);
+        // writes nothing.
+        #[allow(unsafe_code)]
+        unsafe {
+            core::arch::asm!(
+                "2:",
+                "ldr    {x}, [{px}], #4",
+                "ldr    {w}, [{pw}], #4",
+                "smlald {sl}, {sh}, {x}, {w}",
+                "ssub16 {w}, {x}, {hi}",
+                "sel    {hi}, {x}, {hi}",
+                "ssub16 {w}, {lo}, {x}",
+                "sel    {lo}, {x}, {lo}",
+                "subs   {k}, {k}, #1",
+                "bne    2b",
+                px = inout(reg) xs.as_ptr() => _,
+                pw = inout(reg) ws.as_ptr() => _,
+                k = inout(reg) xs.len() => _,
+                hi = inout(reg) hi,
+                lo = inout(reg) lo,
+                sl = inout(reg) sum_lo,
+                sh = inout(reg) sum_hi,
+                x = out(reg) _,
+                w = out(reg) _,
+                options(nostack, readonly)
+            );
+        }
+        let lane = |v: u32, k: u32| ((v >> (16 * k)) as u16 as i16) as i32;
+        let max = lane(hi, 0).max(lane(hi, 1));
+        let min = lane(lo, 0).min(lane(lo, 1));
+        Some((min, max, ((sum_hi as u64) << 32 | sum_lo as u64) as i64))
     }
 }
