@@ -30,7 +30,7 @@ pub const OVERLAP_SAMPLES: usize = 120;
 /// Mel bands per frame.
 pub const BANDS: usize = 23;
 
-pub static WINDOW_F32: [f32; 200] = [
+pub static WINDOW_F32: stapes_core::table::WordAligned<[f32; 200]> = stapes_core::table::WordAligned([
     0.08, 0.08022927, 0.080916844, 0.08206205, 0.08366373, 0.08572031,
     0.088229716, 0.09118945, 0.09459658, 0.098447695, 0.102738954, 0.10746609,
     0.112624384, 0.11820869, 0.12421345, 0.13063268, 0.13745996, 0.14468852,
@@ -65,8 +65,8 @@ pub static WINDOW_F32: [f32; 200] = [
     0.11820869, 0.112624384, 0.10746609, 0.102738954, 0.098447695, 0.09459658,
     0.09118945, 0.088229716, 0.08572031, 0.08366373, 0.08206205, 0.080916844,
     0.08022927, 0.08,
-];
-pub static WINDOW_Q15: [i16; 200] = [
+]);
+pub static WINDOW_Q15: stapes_core::table::WordAligned<[i16; 200]> = stapes_core::table::WordAligned([
     2621, 2629, 2651, 2689, 2741, 2809, 2891, 2988, 3100, 3226, 3367, 3521,
     3690, 3873, 4070, 4281, 4504, 4741, 4991, 5253, 5528, 5815, 6114, 6424,
     6746, 7078, 7422, 7775, 8138, 8511, 8893, 9283, 9682, 10089, 10504, 10926,
@@ -84,8 +84,8 @@ pub static WINDOW_Q15: [i16; 200] = [
     9283, 8893, 8511, 8138, 7775, 7422, 7078, 6746, 6424, 6114, 5815, 5528,
     5253, 4991, 4741, 4504, 4281, 4070, 3873, 3690, 3521, 3367, 3226, 3100,
     2988, 2891, 2809, 2741, 2689, 2651, 2629, 2621,
-];
-pub static WINDOW_Q31: [i32; 200] = [
+]);
+pub static WINDOW_Q31: stapes_core::table::WordAligned<[i32; 200]> = stapes_core::table::WordAligned([
     171798692, 172291043, 173767607, 176226911, 179666503, 184082955, 189471866, 195827862,
     203144608, 211414810, 220630226, 230781667, 241859017, 253851231, 266746357, 280531539,
     295193037, 310716236, 327085661, 344284997, 362297096, 381104006, 400686979, 421026493,
@@ -111,7 +111,7 @@ pub static WINDOW_Q31: [i32; 200] = [
     421026493, 400686979, 381104006, 362297096, 344284997, 327085661, 310716236, 295193037,
     280531539, 266746357, 253851231, 241859017, 230781667, 220630226, 211414810, 203144608,
     195827862, 189471866, 184082955, 179666503, 176226911, 173767607, 172291043, 171798692,
-];
+]);
 pub static SPARSE_SPANS: [[u16; 2]; 23] = [
     [2, 5], [4, 5], [6, 6], [8, 6], [11, 6], [13, 7], [16, 7], [19, 8],
     [22, 9], [26, 9], [30, 9], [34, 10], [38, 11], [43, 12], [48, 13], [54, 13],
@@ -220,7 +220,7 @@ pub static FIXED_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = stape
     table: TABLE_Q15_SPARSE,
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &TWIDDLES_Q31,
-    window_q31: &WINDOW_Q31,
+    window_q31: &WINDOW_Q31.0,
     params: FIXED_PARAMS,
 };
 
@@ -238,14 +238,14 @@ pub static FIXED32_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = sta
     table: TABLE_Q15_SPARSE,
     twiddles_q15: &[],
     twiddles_q31: &TWIDDLES_Q31,
-    window_q31: &WINDOW_Q31,
+    window_q31: &WINDOW_Q31.0,
     params: FIXED_PARAMS,
 };
 
 /// F32 weights, sparse filterbank.
 pub static TABLE_F32_SPARSE: stapes_core::table::TableView<'static, f32> = stapes_core::table::TableView {
     fingerprint: FINGERPRINT,
-    window: &WINDOW_F32,
+    window: &WINDOW_F32.0,
     filterbank: stapes_core::table::Filterbank::Sparse { spans: &SPARSE_SPANS, weights: &SPARSE_WEIGHTS_F32 },
     band_gains: None,
 };
@@ -253,7 +253,7 @@ pub static TABLE_F32_SPARSE: stapes_core::table::TableView<'static, f32> = stape
 /// Q15 weights, sparse filterbank.
 pub static TABLE_Q15_SPARSE: stapes_core::table::TableView<'static, i16> = stapes_core::table::TableView {
     fingerprint: FINGERPRINT,
-    window: &WINDOW_Q15,
+    window: &WINDOW_Q15.0,
     filterbank: stapes_core::table::Filterbank::Sparse { spans: &SPARSE_SPANS, weights: &SPARSE_WEIGHTS_Q15 },
     band_gains: None,
 };

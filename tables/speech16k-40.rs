@@ -30,7 +30,7 @@ pub const OVERLAP_SAMPLES: usize = 352;
 /// Mel bands per frame.
 pub const BANDS: usize = 40;
 
-pub static WINDOW_F32: [f32; 512] = [
+pub static WINDOW_F32: stapes_core::table::WordAligned<[f32; 512]> = stapes_core::table::WordAligned([
     0.0, 3.764908e-5, 0.00015059065, 0.0003388077, 0.0006022719, 0.00094094354,
     0.0013547717, 0.0018436939, 0.0024076367, 0.003046515, 0.0037602326, 0.0045486824,
     0.005411745, 0.0063492907, 0.0073611788, 0.008447256, 0.00960736, 0.010841315,
@@ -117,8 +117,8 @@ pub static WINDOW_F32: [f32; 512] = [
     0.0073611788, 0.0063492907, 0.005411745, 0.0045486824, 0.0037602326, 0.003046515,
     0.0024076367, 0.0018436939, 0.0013547717, 0.00094094354, 0.0006022719, 0.0003388077,
     0.00015059065, 3.764908e-5,
-];
-pub static WINDOW_Q15: [i16; 512] = [
+]);
+pub static WINDOW_Q15: stapes_core::table::WordAligned<[i16; 512]> = stapes_core::table::WordAligned([
     0, 1, 5, 11, 20, 31, 44, 60, 79, 100, 123, 149,
     177, 208, 241, 277, 315, 355, 398, 443, 491, 541, 593, 648,
     705, 765, 827, 891, 958, 1027, 1098, 1171, 1247, 1325, 1406, 1488,
@@ -162,8 +162,8 @@ pub static WINDOW_Q15: [i16; 512] = [
     1247, 1171, 1098, 1027, 958, 891, 827, 765, 705, 648, 593, 541,
     491, 443, 398, 355, 315, 277, 241, 208, 177, 149, 123, 100,
     79, 60, 44, 31, 20, 11, 5, 1,
-];
-pub static WINDOW_Q31: [i32; 512] = [
+]);
+pub static WINDOW_Q31: stapes_core::table::WordAligned<[i32; 512]> = stapes_core::table::WordAligned([
     0, 80851, 323391, 727584, 1293369, 2020661, 2909350, 3959303,
     5170360, 6542341, 8075038, 9768221, 11621634, 13634998, 15808011, 18140345,
     20631648, 23281546, 26089639, 29055505, 32178697, 35458744, 38895153, 42487406,
@@ -228,7 +228,7 @@ pub static WINDOW_Q31: [i32; 512] = [
     46234962, 42487406, 38895153, 35458744, 32178697, 29055505, 26089639, 23281546,
     20631648, 18140345, 15808011, 13634998, 11621634, 9768221, 8075038, 6542341,
     5170360, 3959303, 2909350, 2020661, 1293369, 727584, 323391, 80851,
-];
+]);
 pub static SPARSE_SPANS: [[u16; 2]; 40] = [
     [1, 3], [3, 3], [4, 3], [6, 3], [7, 4], [9, 4], [11, 5], [13, 5],
     [16, 4], [18, 5], [20, 6], [23, 6], [26, 6], [29, 6], [32, 7], [35, 8],
@@ -483,7 +483,7 @@ pub static FIXED_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = stape
     table: TABLE_Q15_SPARSE,
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &TWIDDLES_Q31,
-    window_q31: &WINDOW_Q31,
+    window_q31: &WINDOW_Q31.0,
     params: FIXED_PARAMS,
 };
 
@@ -501,7 +501,7 @@ pub static FIXED32_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = sta
     table: TABLE_Q15_SPARSE,
     twiddles_q15: &[],
     twiddles_q31: &TWIDDLES_Q31,
-    window_q31: &WINDOW_Q31,
+    window_q31: &WINDOW_Q31.0,
     params: FIXED_PARAMS,
 };
 
@@ -510,7 +510,7 @@ pub static FIXED_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = stap
     table: TABLE_Q15_COMPACT,
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &TWIDDLES_Q31,
-    window_q31: &WINDOW_Q31,
+    window_q31: &WINDOW_Q31.0,
     params: FIXED_PARAMS,
 };
 
@@ -528,14 +528,14 @@ pub static FIXED32_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = st
     table: TABLE_Q15_COMPACT,
     twiddles_q15: &[],
     twiddles_q31: &TWIDDLES_Q31,
-    window_q31: &WINDOW_Q31,
+    window_q31: &WINDOW_Q31.0,
     params: FIXED_PARAMS,
 };
 
 /// F32 weights, sparse filterbank.
 pub static TABLE_F32_SPARSE: stapes_core::table::TableView<'static, f32> = stapes_core::table::TableView {
     fingerprint: FINGERPRINT,
-    window: &WINDOW_F32,
+    window: &WINDOW_F32.0,
     filterbank: stapes_core::table::Filterbank::Sparse { spans: &SPARSE_SPANS, weights: &SPARSE_WEIGHTS_F32 },
     band_gains: None,
 };
@@ -543,7 +543,7 @@ pub static TABLE_F32_SPARSE: stapes_core::table::TableView<'static, f32> = stape
 /// F32 weights, compact filterbank.
 pub static TABLE_F32_COMPACT: stapes_core::table::TableView<'static, f32> = stapes_core::table::TableView {
     fingerprint: FINGERPRINT,
-    window: &WINDOW_F32,
+    window: &WINDOW_F32.0,
     filterbank: stapes_core::table::Filterbank::Compact { segment_starts: &COMPACT_SEGMENT_STARTS, weights: &COMPACT_WEIGHTS_F32 },
     band_gains: None,
 };
@@ -551,7 +551,7 @@ pub static TABLE_F32_COMPACT: stapes_core::table::TableView<'static, f32> = stap
 /// Q15 weights, sparse filterbank.
 pub static TABLE_Q15_SPARSE: stapes_core::table::TableView<'static, i16> = stapes_core::table::TableView {
     fingerprint: FINGERPRINT,
-    window: &WINDOW_Q15,
+    window: &WINDOW_Q15.0,
     filterbank: stapes_core::table::Filterbank::Sparse { spans: &SPARSE_SPANS, weights: &SPARSE_WEIGHTS_Q15 },
     band_gains: None,
 };
@@ -559,7 +559,7 @@ pub static TABLE_Q15_SPARSE: stapes_core::table::TableView<'static, i16> = stape
 /// Q15 weights, compact filterbank.
 pub static TABLE_Q15_COMPACT: stapes_core::table::TableView<'static, i16> = stapes_core::table::TableView {
     fingerprint: FINGERPRINT,
-    window: &WINDOW_Q15,
+    window: &WINDOW_Q15.0,
     filterbank: stapes_core::table::Filterbank::Compact { segment_starts: &COMPACT_SEGMENT_STARTS, weights: &COMPACT_WEIGHTS_Q15 },
     band_gains: None,
 };

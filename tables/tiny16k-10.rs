@@ -30,7 +30,7 @@ pub const OVERLAP_SAMPLES: usize = 96;
 /// Mel bands per frame.
 pub const BANDS: usize = 10;
 
-pub static WINDOW_F32: [f32; 256] = [
+pub static WINDOW_F32: stapes_core::table::WordAligned<[f32; 256]> = stapes_core::table::WordAligned([
     0.0, 0.00015059065, 0.0006022719, 0.0013547717, 0.0024076367, 0.0037602326,
     0.005411745, 0.0073611788, 0.00960736, 0.012148935, 0.014984373, 0.018111967,
     0.021529833, 0.02523591, 0.029227968, 0.0335036, 0.038060233, 0.042895123,
@@ -74,8 +74,8 @@ pub static WINDOW_F32: [f32; 256] = [
     0.038060233, 0.0335036, 0.029227968, 0.02523591, 0.021529833, 0.018111967,
     0.014984373, 0.012148935, 0.00960736, 0.0073611788, 0.005411745, 0.0037602326,
     0.0024076367, 0.0013547717, 0.0006022719, 0.00015059065,
-];
-pub static WINDOW_Q15: [i16; 256] = [
+]);
+pub static WINDOW_Q15: stapes_core::table::WordAligned<[i16; 256]> = stapes_core::table::WordAligned([
     0, 5, 20, 44, 79, 123, 177, 241, 315, 398, 491, 593,
     705, 827, 958, 1098, 1247, 1406, 1573, 1749, 1935, 2128, 2331, 2542,
     2761, 2989, 3224, 3468, 3719, 3978, 4244, 4518, 4799, 5087, 5381, 5682,
@@ -98,8 +98,8 @@ pub static WINDOW_Q15: [i16; 256] = [
     3719, 3468, 3224, 2989, 2761, 2542, 2331, 2128, 1935, 1749, 1573, 1406,
     1247, 1098, 958, 827, 705, 593, 491, 398, 315, 241, 177, 123,
     79, 44, 20, 5,
-];
-pub static WINDOW_Q31: [i32; 256] = [
+]);
+pub static WINDOW_Q31: stapes_core::table::WordAligned<[i32; 256]> = stapes_core::table::WordAligned([
     0, 323391, 1293369, 2909350, 5170360, 8075038, 11621634, 15808011,
     20631648, 26089639, 32178697, 38895153, 46234962, 54193703, 62766582, 71948434,
     81733730, 92116573, 103090712, 114649534, 126786077, 139493031, 152762742, 166587216,
@@ -132,7 +132,7 @@ pub static WINDOW_Q31: [i32; 256] = [
     180958126, 166587216, 152762742, 139493031, 126786077, 114649534, 103090712, 92116573,
     81733730, 71948434, 62766582, 54193703, 46234962, 38895153, 32178697, 26089639,
     20631648, 15808011, 11621634, 8075038, 5170360, 2909350, 1293369, 323391,
-];
+]);
 pub static SPARSE_SPANS: [[u16; 2]; 10] = [
     [1, 6], [4, 8], [7, 11], [12, 13], [18, 16], [25, 21], [34, 26], [46, 32],
     [60, 40], [78, 50],
@@ -271,7 +271,7 @@ pub static FIXED_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = stape
     table: TABLE_Q15_SPARSE,
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &TWIDDLES_Q31,
-    window_q31: &WINDOW_Q31,
+    window_q31: &WINDOW_Q31.0,
     params: FIXED_PARAMS,
 };
 
@@ -289,7 +289,7 @@ pub static FIXED32_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = sta
     table: TABLE_Q15_SPARSE,
     twiddles_q15: &[],
     twiddles_q31: &TWIDDLES_Q31,
-    window_q31: &WINDOW_Q31,
+    window_q31: &WINDOW_Q31.0,
     params: FIXED_PARAMS,
 };
 
@@ -298,7 +298,7 @@ pub static FIXED_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = stap
     table: TABLE_Q15_COMPACT,
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &TWIDDLES_Q31,
-    window_q31: &WINDOW_Q31,
+    window_q31: &WINDOW_Q31.0,
     params: FIXED_PARAMS,
 };
 
@@ -316,14 +316,14 @@ pub static FIXED32_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = st
     table: TABLE_Q15_COMPACT,
     twiddles_q15: &[],
     twiddles_q31: &TWIDDLES_Q31,
-    window_q31: &WINDOW_Q31,
+    window_q31: &WINDOW_Q31.0,
     params: FIXED_PARAMS,
 };
 
 /// F32 weights, sparse filterbank.
 pub static TABLE_F32_SPARSE: stapes_core::table::TableView<'static, f32> = stapes_core::table::TableView {
     fingerprint: FINGERPRINT,
-    window: &WINDOW_F32,
+    window: &WINDOW_F32.0,
     filterbank: stapes_core::table::Filterbank::Sparse { spans: &SPARSE_SPANS, weights: &SPARSE_WEIGHTS_F32 },
     band_gains: None,
 };
@@ -331,7 +331,7 @@ pub static TABLE_F32_SPARSE: stapes_core::table::TableView<'static, f32> = stape
 /// F32 weights, compact filterbank.
 pub static TABLE_F32_COMPACT: stapes_core::table::TableView<'static, f32> = stapes_core::table::TableView {
     fingerprint: FINGERPRINT,
-    window: &WINDOW_F32,
+    window: &WINDOW_F32.0,
     filterbank: stapes_core::table::Filterbank::Compact { segment_starts: &COMPACT_SEGMENT_STARTS, weights: &COMPACT_WEIGHTS_F32 },
     band_gains: None,
 };
@@ -339,7 +339,7 @@ pub static TABLE_F32_COMPACT: stapes_core::table::TableView<'static, f32> = stap
 /// Q15 weights, sparse filterbank.
 pub static TABLE_Q15_SPARSE: stapes_core::table::TableView<'static, i16> = stapes_core::table::TableView {
     fingerprint: FINGERPRINT,
-    window: &WINDOW_Q15,
+    window: &WINDOW_Q15.0,
     filterbank: stapes_core::table::Filterbank::Sparse { spans: &SPARSE_SPANS, weights: &SPARSE_WEIGHTS_Q15 },
     band_gains: None,
 };
@@ -347,7 +347,7 @@ pub static TABLE_Q15_SPARSE: stapes_core::table::TableView<'static, i16> = stape
 /// Q15 weights, compact filterbank.
 pub static TABLE_Q15_COMPACT: stapes_core::table::TableView<'static, i16> = stapes_core::table::TableView {
     fingerprint: FINGERPRINT,
-    window: &WINDOW_Q15,
+    window: &WINDOW_Q15.0,
     filterbank: stapes_core::table::Filterbank::Compact { segment_starts: &COMPACT_SEGMENT_STARTS, weights: &COMPACT_WEIGHTS_Q15 },
     band_gains: None,
 };

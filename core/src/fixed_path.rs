@@ -363,6 +363,9 @@ fn place_and_window<P: TwiddlesFor>(
 ) where
     P::Data: FrameData,
 {
+    if P::place_and_window_fast(samples, window, offset, (up, down)) {
+        return;
+    }
     let round = (1i32 << down) >> 1;
     let up = up + P::WINDOW_PRESHIFT;
     for (v, &win) in samples.iter_mut().zip(window) {
@@ -626,6 +629,17 @@ pub trait TwiddlesFor: Precision {
         let _ = (samples, window);
         None
     }
+    /// [`place_and_window`] by a faster route where the target has one;
+    /// `false` (nothing done) to take the portable loop. The same values.
+    fn place_and_window_fast(
+        samples: &mut [Self::Data],
+        window: &[Self::WindowCoef],
+        offset: i32,
+        shifts: (u32, u32),
+    ) -> bool {
+        let _ = (samples, window, offset, shifts);
+        false
+    }
     /// Left shift [`TwiddlesFor::apply_window_preshifted`] expects of its
     /// input (folded into the normalisation's own shift).
     const WINDOW_PRESHIFT: u32;
@@ -641,6 +655,15 @@ impl TwiddlesFor for crate::int_fft::Fixed16 {
     #[cfg(stapes_arm_dsp)]
     fn raw_statistics_fast(samples: &[i16], window: &[i16]) -> Option<(i32, i32, i64)> {
         arm_dsp_statistics::raw_statistics(samples, window)
+    }
+    #[cfg(stapes_arm_dsp)]
+    fn place_and_window_fast(
+        samples: &mut [i16],
+        window: &[i16],
+        offset: i32,
+        shifts: (u32, u32),
+    ) -> bool {
+        arm_dsp_statistics::place_and_window(samples, window, offset, shifts)
     }
     fn quarter_wave<'a>(tables: &FixedTables<'a>) -> &'a [i16] {
         tables.twiddles_q15
@@ -1207,5 +1230,67 @@ mod arm_dsp_statistics {
         let max = lane(hi, 0).max(lane(hi, 1));
         let min = lane(lo, 0).min(lane(lo, 1));
         Some((min, max, ((sum_hi as u64) << 32 | sum_lo as u64) as i64))
+    }
+
+    /// Pass 2 over raw 16-bit samples with no right shift (`down = 0`):
+    /// `round((c − d)·2^up·w / 2^15)` as `round((c − d)·w / 2^(15 − up))`,
+    /// two samples per word (`SSUB16`, `SMULBB`/`SMULTT`). The portable
+    /// loop's values exactly: |c − d| < 2^(15 − up) there, so the packed
+    /// difference cannot wrap. `false` (nothing done) otherwise.
+    #[inline(never)]
+    pub(super) fn place_and_window(
+        samples: &mut [i16],
+        window: &[i16],
+        offset: i32,
+        (up, down): (u32, u32),
+    ) -> bool {
+        let n = samples.len();
+        if down != 0 || up > 14 || n == 0 || !n.is_multiple_of(2) || window.len() < n {
+            return false;
+        }
+        if !(offset as i16 as i32 == offset) {
+            return false;
+        }
+        let Ok(ws) = bytemuck::try_cast_slice::<i16, u32>(&window[..n]) else {
+            return false;
+        };
+        let Ok(xs) = bytemuck::try_cast_slice_mut::<i16, u32>(samples) else {
+            return false;
+        };
+        let dd = (offset as u32 & 0xffff) * 0x1_0001;
+        let (round, shift) = (1u32 << (14 - up), 15 - up);
+        // SAFETY: reads and rewrites the n/2 words of `xs`, reads those of
+        // `ws` (n even, positive).
+        #[allow(unsafe_code)]
+        unsafe {
+            core::arch::asm!(
+                "2:",
+                "ldr    {x}, [{px}]",
+                "ldr    {w}, [{pw}], #4",
+                "ssub16 {x}, {x}, {dd}",
+                "smulbb {a}, {x}, {w}",
+                "smultt {b}, {x}, {w}",
+                "add    {a}, {a}, {r}",
+                "add    {b}, {b}, {r}",
+                "asr    {a}, {a}, {s}",
+                "asr    {b}, {b}, {s}",
+                "pkhbt  {a}, {a}, {b}, lsl #16",
+                "str    {a}, [{px}], #4",
+                "subs   {k}, {k}, #1",
+                "bne    2b",
+                px = inout(reg) xs.as_mut_ptr() => _,
+                pw = inout(reg) ws.as_ptr() => _,
+                k = inout(reg) xs.len() => _,
+                dd = in(reg) dd,
+                r = in(reg) round,
+                s = in(reg) shift,
+                x = out(reg) _,
+                w = out(reg) _,
+                a = out(reg) _,
+                b = out(reg) _,
+                options(nostack)
+            );
+        }
+        true
     }
 }

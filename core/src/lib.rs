@@ -51,7 +51,7 @@
 #![no_std]
 // The only `unsafe` is Cortex-M4 inline assembly behind `cfg(stapes_arm_dsp)`
 // (`int_fft::mul_high`, `dsp16`, the FFT loops in `int_fft`, the window
-// stage's first pass in `fixed_path`), each with a portable twin that gives
+// stage's passes in `fixed_path`), each with a portable twin that gives
 // the same bits.
 #![deny(unsafe_code)]
 #![deny(missing_docs)]

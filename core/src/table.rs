@@ -258,3 +258,9 @@ impl<'a, W: WeightType> TableView<'a, W> {
         Ok(())
     }
 }
+
+/// A table on a 4-byte boundary (generated windows are: the Cortex-M4 front
+/// end reads their 16-bit coefficients two per word).
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[repr(C, align(4))]
+pub struct WordAligned<T>(pub T);

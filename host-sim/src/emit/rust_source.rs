@@ -15,12 +15,23 @@ fn array<T>(
     per_line: usize,
     fmt: impl Fn(&T) -> String,
 ) {
-    let _ = writeln!(out, "pub static {name}: [{ty}; {}] = [", items.len());
+    // Windows on a word boundary: the Cortex-M4 front end reads their
+    // 16-bit coefficients two at a time (`stapes_core::table::WordAligned`).
+    let aligned = name.starts_with("WINDOW_");
+    if aligned {
+        let _ = writeln!(
+            out,
+            "pub static {name}: stapes_core::table::WordAligned<[{ty}; {}]> = stapes_core::table::WordAligned([",
+            items.len()
+        );
+    } else {
+        let _ = writeln!(out, "pub static {name}: [{ty}; {}] = [", items.len());
+    }
     for chunk in items.chunks(per_line.max(1)) {
         let line: Vec<String> = chunk.iter().map(&fmt).collect();
         let _ = writeln!(out, "    {},", line.join(", "));
     }
-    let _ = writeln!(out, "];");
+    let _ = writeln!(out, "{}", if aligned { "]);" } else { "];" });
 }
 
 fn f32_literal(v: &f32) -> String {
@@ -223,7 +234,7 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
                     format!("Fixed-point tables, {lower} filterbank."),
                     "&TWIDDLES_Q15",
                     "&TWIDDLES_Q31",
-                    "&WINDOW_Q31",
+                    "&WINDOW_Q31.0",
                 ),
                 (
                     format!("FIXED16_{name}"),
@@ -241,7 +252,7 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
                     ),
                     "&[]",
                     "&TWIDDLES_Q31",
-                    "&WINDOW_Q31",
+                    "&WINDOW_Q31.0",
                 ),
             ] {
                 let _ = writeln!(s);
@@ -291,7 +302,7 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
                 "pub static TABLE_{suffix}_{form_name}: stapes_core::table::TableView<'static, {ty}> = stapes_core::table::TableView {{"
             );
             let _ = writeln!(s, "    fingerprint: FINGERPRINT,");
-            let _ = writeln!(s, "    window: &WINDOW_{suffix},");
+            let _ = writeln!(s, "    window: &WINDOW_{suffix}.0,");
             let _ = writeln!(s, "    filterbank: {filterbank},");
             let _ = writeln!(s, "    band_gains: {gains},");
             let _ = writeln!(s, "}};");
