@@ -188,6 +188,8 @@ pub enum BlobError {
     BigEndianTarget,
     /// The tables do not fit the configuration.
     Table(TableError),
+    /// The fixed-point sections hold values no generator writes.
+    FixedContents(FixedTableError),
 }
 
 impl From<TableError> for BlobError {
@@ -257,6 +259,7 @@ impl fmt::Display for BlobError {
                 "table blobs are little-endian and read in place; this target is big-endian"
             ),
             BlobError::Table(e) => write!(f, "table blob: {e}"),
+            BlobError::FixedContents(e) => write!(f, "table blob: {e}"),
         }
     }
 }
@@ -431,6 +434,7 @@ impl<'a> TableBlob<'a> {
             FixedTableError::WindowQ31 { .. } => BlobError::BadSectionLength {
                 kind: SectionKind::WindowQ31,
             },
+            other => BlobError::FixedContents(other),
         })?;
         Ok(tables)
     }

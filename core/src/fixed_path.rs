@@ -156,6 +156,16 @@ pub trait FrameData: BfpSample {
     fn from_i32(v: i32) -> Self;
     /// The value as `i32`.
     fn get_i32(self) -> i32;
+    /// Saves the raw samples the next frame shares, before the FFT.
+    #[inline(always)]
+    fn save_shared<const F: usize, const O: usize>(framer: &mut Framer<Self, i16, F, O>) {
+        framer.begin_frame(Self::to_raw);
+    }
+    /// Puts the shared samples back, after the frame.
+    #[inline(always)]
+    fn restore_shared<const F: usize, const O: usize>(framer: &mut Framer<Self, i16, F, O>) {
+        framer.end_frame(Self::from_raw);
+    }
     /// Stores a bin value (a power `< 2^32` for 16-bit data, `< 2^64` for
     /// 32-bit data) in a pair of slots.
     fn store_bin(slot: &mut [Self], v: u64);
@@ -163,10 +173,88 @@ pub trait FrameData: BfpSample {
     fn load_bin(slot: &[Self]) -> u64;
     /// `v · w` for a bin value and a Q15 weight (`w ≤ 2^15`).
     fn weigh(v: u64, w: u32) -> u64;
+    /// Bins in place from re/im pairs: power or magnitude, shifted right by
+    /// `shift` (see [`spectrum_pairs`]).
+    #[inline(always)]
+    fn spectrum_pairs(pairs: &mut [Self], shift: u32, magnitude: bool) {
+        if magnitude {
+            for pair in pairs.chunks_exact_mut(2) {
+                let v = Self::magnitude(pair[0], pair[1], shift);
+                Self::store_bin(pair, v);
+            }
+        } else {
+            for pair in pairs.chunks_exact_mut(2) {
+                let v = Self::power(pair[0], pair[1], shift);
+                Self::store_bin(pair, v);
+            }
+        }
+    }
+    /// `Σ weights[i] · bin[i]` over the bins stored in `slots` (two elements
+    /// each) and as many non-negative Q15 weights (the table check refuses
+    /// negative ones).
+    #[inline(always)]
+    fn weighted_bins(slots: &[Self], weights: &[i16]) -> u64 {
+        weights
+            .iter()
+            .zip(slots.chunks_exact(2))
+            .fold(0u64, |acc, (&w, slot)| acc + Self::weigh(Self::load_bin(slot), w as u32))
+    }
 }
 
 impl FrameData for i16 {
     const SAMPLE_BITS: u32 = 15;
+    #[inline(always)]
+    fn spectrum_pairs(pairs: &mut [i16], shift: u32, magnitude: bool) {
+        // A pair is one word (the buffer is word-aligned): `re² + im²` is
+        // one SMUAD on the Cortex-M4, and the bin is stored back as the word
+        // `store_bin` writes as two halves.
+        let Ok(words) = bytemuck::try_cast_slice_mut::<i16, u32>(pairs) else {
+            if magnitude {
+                for pair in pairs.chunks_exact_mut(2) {
+                    let v = Self::magnitude(pair[0], pair[1], shift);
+                    Self::store_bin(pair, v);
+                }
+            } else {
+                for pair in pairs.chunks_exact_mut(2) {
+                    let v = Self::power(pair[0], pair[1], shift);
+                    Self::store_bin(pair, v);
+                }
+            }
+            return;
+        };
+        if shift >= 32 {
+            // Every value is below 2^32: shifted out.
+            words.fill(0);
+        } else if magnitude {
+            for w in words.iter_mut() {
+                *w = isqrt_u32(crate::dsp16::sum_of_squares(*w)) >> shift;
+            }
+        } else {
+            for w in words.iter_mut() {
+                *w = crate::dsp16::sum_of_squares(*w) >> shift;
+            }
+        }
+    }
+    #[inline(always)]
+    fn weighted_bins(slots: &[i16], weights: &[i16]) -> u64 {
+        // Cortex-M4: a hand-scheduled loop over the bins as words (UMLAL).
+        #[cfg(stapes_arm_dsp)]
+        if let Some(sum) = arm_dsp_mel::weighted_bins(slots, weights) {
+            return sum;
+        }
+        weights.iter().zip(slots.chunks_exact(2)).fold(0u64, |acc, (&w, slot)| {
+            acc + Self::weigh(Self::load_bin(slot), w as u32)
+        })
+    }
+    // Raw samples are the frame's own type: a block copy.
+    #[inline(always)]
+    fn save_shared<const F: usize, const O: usize>(framer: &mut Framer<i16, i16, F, O>) {
+        framer.begin_frame_unconverted();
+    }
+    #[inline(always)]
+    fn restore_shared<const F: usize, const O: usize>(framer: &mut Framer<i16, i16, F, O>) {
+        framer.end_frame_unconverted();
+    }
     const HOLDS_CONDITIONED: bool = false;
     const OFFSET_COMPENSATION: bool = true;
     #[inline(always)]
@@ -324,6 +412,126 @@ impl FrameData for i32 {
             .checked_shr(shift)
             .unwrap_or(0)
     }
+}
+
+/// The sparse filterbank's band energies from the spectrum in `buf` (bin
+/// `k < N/2` at `buf[2k..2k + 2]`, bin `N/2` as `last`). Out of line: the
+/// loop keeps its accumulator and pointers in registers.
+#[inline(never)]
+fn sparse_energies<D: FrameData>(
+    spans: &[[u16; 2]],
+    weights: &[i16],
+    buf: &[D],
+    last: u64,
+    energies: &mut [u64],
+) {
+    let half = buf.len() / 2;
+    let mut offset = 0;
+    for (e, &[first, count]) in energies.iter_mut().zip(spans) {
+        let (first, count) = (first as usize, count as usize);
+        let ws = &weights[offset..offset + count];
+        offset += count;
+        // Bins below N/2 from the buffer (no per-bin branch), bin N/2 from `last`.
+        let inside = count.min(half.saturating_sub(first));
+        let mut acc = D::weighted_bins(&buf[2 * first..2 * (first + inside)], &ws[..inside]);
+        if let Some(&wt) = ws.get(inside) {
+            acc += D::weigh(last, wt as u32);
+        }
+        *e = acc;
+    }
+}
+
+/// The compact filterbank's band energies: each segment's bins feed the
+/// rising side of the band above and, with `1 − w`, the falling side of the
+/// band below.
+#[inline(never)]
+fn compact_energies<D: FrameData>(
+    segment_starts: &[u16],
+    weights: &[i16],
+    buf: &[D],
+    last: u64,
+    energies: &mut [u64],
+) {
+    let half = buf.len() / 2;
+    let bands = energies.len();
+    let base = segment_starts[0] as usize;
+    let mut carry = 0u64; // falling side of the band below
+    for seg in 0..=bands {
+        let lo = segment_starts[seg] as usize;
+        let hi = segment_starts[seg + 1] as usize;
+        let ws = &weights[lo - base..hi - base];
+        let inside = ws.len().min(half.saturating_sub(lo));
+        let slots = buf[2 * lo..2 * (lo + inside)].chunks_exact(2);
+        let (mut rising, mut falling) =
+            ws[..inside].iter().zip(slots).fold((0u64, 0u64), |(r, f), (&wt, slot)| {
+                let (v, wt) = (D::load_bin(slot), wt as u32);
+                (r + D::weigh(v, wt), f + D::weigh(v, 32768 - wt))
+            });
+        if let Some(&wt) = ws.get(inside) {
+            let wt = wt as u32;
+            rising += D::weigh(last, wt);
+            falling += D::weigh(last, 32768 - wt);
+        }
+        if seg > 0 {
+            energies[seg - 1] = carry + falling;
+        }
+        carry = rising;
+    }
+}
+
+/// The log stage: each band's output in 1/256 units, the log of
+/// `energy · 2^exponent` scaled by `k_log` (Q16 log2 → Q32 output units),
+/// plus the band's gain, at or above `floor` and within `i16`.
+///
+/// `k_log` is one of [`log2_to_output_q16`](crate::fixed_tables::log2_to_output_q16)'s
+/// values, within `[2^15, 2^20]` (the table check refuses others), so
+/// a log2 clamped to ±2^26 (1024 octaves, far beyond any energy) changes no
+/// output (either side already saturates) and every sum fits `i32`.
+#[inline(never)]
+fn log_levels(
+    energies: &[u64],
+    exponent: i32,
+    k_log: i32,
+    gains: Option<&[i16]>,
+    floor: i16,
+    out: &mut [I8F8],
+) {
+    const LOG2_LIMIT: i32 = 1 << 26;
+    let level = |energy: u64, gain: i16| -> i16 {
+        match log2_q16(energy) {
+            None => floor,
+            Some(l) => {
+                // |l| < 2^22 and |exponent| ≤ 2^14: the sum fits i32.
+                let log2 = (l + (exponent << 16)).clamp(-LOG2_LIMIT, LOG2_LIMIT);
+                // Q16 · Q16 → Q32 output units; to 1/256 units with
+                // rounding: |units| ≤ 2^26 · 2^20 / 2^24 = 2^22.
+                let units = ((log2 as i64 * k_log as i64 + (1 << 23)) >> 24) as i32;
+                (units + gain as i32).clamp(floor as i32, i16::MAX as i32) as i16
+            }
+        }
+    };
+    match gains {
+        None => {
+            for (o, &e) in out.iter_mut().zip(energies) {
+                *o = I8F8::from_bits(level(e, 0));
+            }
+        }
+        Some(gains) => {
+            for ((o, &e), &g) in out.iter_mut().zip(energies).zip(gains) {
+                *o = I8F8::from_bits(level(e, g));
+            }
+        }
+    }
+}
+
+/// Bins 1 .. N/2 in place (`pairs` holds X[1], X[2], … as re/im pairs): each
+/// pair becomes its power or magnitude shifted right by `shift`. Out of line,
+/// with the kind chosen once outside the loop, so that the loop keeps its few
+/// values in registers (inside the frame function the Cortex-M0 spilled
+/// them: 27 instructions per bin).
+#[inline(never)]
+fn spectrum_pairs<D: FrameData>(pairs: &mut [D], shift: u32, magnitude: bool) {
+    D::spectrum_pairs(pairs, shift, magnitude);
 }
 
 /// Pass 1 over raw samples with offset compensation: their range and their
@@ -592,6 +800,9 @@ pub struct FixedFrontEnd<
     window: &'t [P::WindowCoef],
     framer: Framer<P::Data, i16, FFT, OVERLAP>,
     frame_start: IntConditioner,
+    /// The frame's band energies: `E[b] = energies[b] · 2^e` for the frame's
+    /// exponent `e` (Q15 weights times the shifted bins).
+    energies: [u64; BANDS],
     out: [I8F8; BANDS],
     fraction_bits: u32,
     spectrum_shift: u32,
@@ -834,6 +1045,7 @@ where
             window: P::window(&tables),
             framer: Framer::new(config.window_samples as usize, config.hop_samples as usize),
             frame_start: conditioner,
+            energies: [0; BANDS],
             out: [I8F8::ZERO; BANDS],
             fraction_bits: if conditioner.active() {
                 CONDITIONING_FRACTION_BITS
@@ -903,7 +1115,7 @@ where
         let bands = self.config.bands as usize;
         let floor = self.tables.params.floor;
         probe.start();
-        self.framer.begin_frame(<P::Data as FrameData>::to_raw);
+        <P::Data as FrameData>::save_shared(&mut self.framer);
         let buf = &mut self.framer.buffer_mut()[..n];
 
         // Pass 1: the OR of the conditioned samples' magnitudes (its bit length
@@ -980,7 +1192,7 @@ where
         if silent {
             // Digital silence: every band is exactly the floor.
             self.out[..bands].fill(floor);
-            self.framer.end_frame(<P::Data as FrameData>::from_raw);
+            <P::Data as FrameData>::restore_shared(&mut self.framer);
             for stage in Stage::ALL {
                 probe.mark(stage);
             }
@@ -1020,7 +1232,6 @@ where
         // True spectrum = X_int · 2^e_x in full-scale units.
         let e_x = fft_exponent - 15 - self.fraction_bits as i32 - norm;
         let shift = self.spectrum_shift;
-        let half = n / 2;
         let magnitude = self.config.spectrum == SpectrumKind::Magnitude;
         // Spectrum, once per bin, in place: bin k (1 ≤ k < N/2) replaces X[k]
         // at buf[2k], buf[2k + 1]; bin 0 replaces X[0], X[N/2] (both real, at
@@ -1089,10 +1300,7 @@ where
         let total = shift + offset_bin_shift;
         let first = value_of(buf[0], zero, total);
         <P::Data as FrameData>::store_bin(&mut buf[..2], first);
-        for pair in buf[2..].chunks_exact_mut(2) {
-            let v = value_of(pair[0], pair[1], total);
-            <P::Data as FrameData>::store_bin(pair, v);
-        }
+        spectrum_pairs(&mut buf[2..], total, magnitude);
         if let Some((v0, v1)) = offset_bins {
             <P::Data as FrameData>::store_bin(&mut buf[..2], v0);
             <P::Data as FrameData>::store_bin(&mut buf[2..4], v1);
@@ -1103,81 +1311,76 @@ where
         let energy_exponent =
             if magnitude { e_x } else { 2 * e_x } + shift as i32 + offset_bin_shift as i32 - 15;
 
-        let out = &mut self.out[..bands];
-        let gains = self.tables.table.band_gains;
-        let k_log = self.tables.params.log2_to_output.to_bits();
-        let mut emit = |b: usize, acc: u64| {
-            let level = match log2_q16(acc) {
-                None => floor.to_bits() as i32,
-                Some(l) => {
-                    // |log2| < 2^31: the energy exponent stays within ±2^14.
-                    let log2 = l + (energy_exponent << 16);
-                    // Q16 · Q16 → Q32 output units; to 1/256 units with rounding.
-                    let units = (wide_product(log2, k_log) + (1 << 23)) >> 24;
-                    let with_gain = units + gains.map_or(0, |g| g[b] as i64);
-                    with_gain
-                        .max(floor.to_bits() as i64)
-                        .clamp(i16::MIN as i64, i16::MAX as i64) as i32
-                }
-            };
-            out[b] = I8F8::from_bits(level as i16);
-        };
-        // The bins from `first` on, as many as `ws` has weights: those below
-        // N/2 from the buffer (no per-bin branch), bin N/2 from `last`.
-        let split_at = |first: usize, ws: &'t [i16]| {
-            let in_buf = ws.len().min(half.saturating_sub(first));
-            let (inside, beyond) = ws.split_at(in_buf);
-            let slots = buf[2 * first..2 * (first + in_buf)].chunks_exact(2);
-            (inside.iter().zip(slots), beyond.first())
-        };
-        let load = <P::Data as FrameData>::load_bin;
-        let weigh = <P::Data as FrameData>::weigh;
+        let energies = &mut self.energies[..bands];
         match self.tables.table.filterbank {
             Filterbank::Sparse { spans, weights } => {
-                let mut offset = 0;
-                for (b, &[first, count]) in spans.iter().enumerate() {
-                    let (first, count) = (first as usize, count as usize);
-                    let (inside, beyond) = split_at(first, &weights[offset..offset + count]);
-                    let mut acc = inside.fold(0u64, |acc, (&wt, slot)| {
-                        acc + weigh(load(slot), wt.max(0) as u32)
-                    });
-                    if let Some(&wt) = beyond {
-                        acc += weigh(last, wt.max(0) as u32);
-                    }
-                    offset += count;
-                    emit(b, acc);
-                }
+                sparse_energies::<P::Data>(spans, weights, buf, last, energies)
             }
             Filterbank::Compact {
                 segment_starts,
                 weights,
-            } => {
-                let base = segment_starts[0] as usize;
-                let mut carry = 0u64; // falling side of the band below
-                for seg in 0..=bands {
-                    let lo = segment_starts[seg] as usize;
-                    let hi = segment_starts[seg + 1] as usize;
-                    let (inside, beyond) = split_at(lo, &weights[lo - base..hi - base]);
-                    let mut sums = inside.fold((0u64, 0u64), |(rising, falling), (&wt, slot)| {
-                        let (v, wt) = (load(slot), wt.max(0) as u32);
-                        (rising + weigh(v, wt), falling + weigh(v, 32768 - wt))
-                    });
-                    if let Some(&wt) = beyond {
-                        let wt = wt.max(0) as u32;
-                        sums = (sums.0 + weigh(last, wt), sums.1 + weigh(last, 32768 - wt));
-                    }
-                    let (rising, falling) = sums;
-                    if seg > 0 {
-                        emit(seg - 1, carry + falling);
-                    }
-                    carry = rising;
-                }
+            } => compact_energies::<P::Data>(segment_starts, weights, buf, last, energies),
+        }
+        probe.mark(Stage::Mel);
+        log_levels(
+            energies,
+            energy_exponent,
+            self.tables.params.log2_to_output.to_bits(),
+            self.tables.table.band_gains,
+            floor.to_bits(),
+            &mut self.out[..bands],
+        );
+        <P::Data as FrameData>::restore_shared(&mut self.framer);
+        probe.mark(Stage::Log);
+    }
+}
+
+/// Cortex-M4: the filterbank's weighted sum of 16-bit data's bins.
+#[cfg(stapes_arm_dsp)]
+#[allow(unsafe_code)]
+mod arm_dsp_mel {
+    /// `Σ w·bin`, two weights per turn (LDRH, LDR, UMLAL); `None` when the
+    /// bins are off a word boundary or the counts differ.
+    #[inline(always)]
+    pub(super) fn weighted_bins(slots: &[i16], weights: &[i16]) -> Option<u64> {
+        let bins = bytemuck::try_cast_slice::<i16, u32>(slots).ok()?;
+        if bins.len() != weights.len() {
+            return None;
+        }
+        let pairs = weights.len() / 2;
+        let (mut lo, mut hi) = (0u32, 0u32);
+        if pairs > 0 {
+            // SAFETY: reads 2·pairs halfwords of `weights` and as many words of
+            // `bins` (both at least that long); writes nothing.
+            unsafe {
+                core::arch::asm!(
+                    "2:",
+                    "ldrh  {t0}, [{pw}], #2",
+                    "ldrh  {t1}, [{pw}], #2",
+                    "ldr   {b0}, [{pb}], #4",
+                    "ldr   {b1}, [{pb}], #4",
+                    "umlal {lo}, {hi}, {b0}, {t0}",
+                    "umlal {lo}, {hi}, {b1}, {t1}",
+                    "subs  {k}, {k}, #1",
+                    "bne   2b",
+                    pw = inout(reg) weights.as_ptr() => _,
+                    pb = inout(reg) bins.as_ptr() => _,
+                    k = inout(reg) pairs => _,
+                    lo = inout(reg) lo,
+                    hi = inout(reg) hi,
+                    t0 = out(reg) _,
+                    t1 = out(reg) _,
+                    b0 = out(reg) _,
+                    b1 = out(reg) _,
+                    options(nostack, readonly)
+                );
             }
         }
-        // The log is taken band by band inside the mel loop.
-        probe.mark(Stage::Mel);
-        self.framer.end_frame(<P::Data as FrameData>::from_raw);
-        probe.mark(Stage::Log);
+        let mut sum = (hi as u64) << 32 | lo as u64;
+        if weights.len() % 2 == 1 {
+            sum += bins[2 * pairs] as u64 * weights[2 * pairs] as u16 as u64;
+        }
+        Some(sum)
     }
 }
 

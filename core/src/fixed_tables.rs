@@ -6,7 +6,7 @@ use core::fmt;
 
 use fixed::types::{I1F15, I1F31, I8F8, I16F16};
 
-use crate::config::FeatureConfig;
+use crate::config::{FeatureConfig, LogKind};
 use crate::table::{TableError, TableView};
 
 /// Constants of the fixed path, each in a visible Q format.
@@ -22,6 +22,16 @@ pub struct FixedParams {
     pub floor: I8F8,
     /// Output units per unit of `log2`: `10·log10(2)` for dB, `ln 2` for natural log.
     pub log2_to_output: I16F16,
+}
+
+/// `log2_to_output` in Q16 for a log kind: `round(10·log10(2) · 2^16)` for
+/// dB and `round(ln 2 · 2^16)` for the natural log. The generator computes
+/// them in `f64`; a test keeps the two in step.
+pub const fn log2_to_output_q16(kind: LogKind) -> i32 {
+    match kind {
+        LogKind::Decibel => 197_283,
+        LogKind::Natural => 45_426,
+    }
 }
 
 impl FixedParams {
@@ -86,6 +96,18 @@ pub enum FixedTableError {
         /// Entries needed (`window_samples`).
         expected: usize,
     },
+    /// A Q15 filterbank weight is negative.
+    NegativeWeight {
+        /// Position in the weight array.
+        index: usize,
+    },
+    /// The log scale constant is not the configuration's.
+    LogScale {
+        /// Q16 value found.
+        found: i32,
+        /// Q16 value the configuration's log kind needs.
+        expected: i32,
+    },
 }
 
 impl From<TableError> for FixedTableError {
@@ -105,6 +127,15 @@ impl fmt::Display for FixedTableError {
             FixedTableError::WindowQ31 { found, expected } => write!(
                 f,
                 "Q31 window has {found} entries where the configuration needs {expected}: regenerate the table"
+            ),
+            FixedTableError::NegativeWeight { index } => write!(
+                f,
+                "filterbank weight {index} is negative: the table is corrupt, regenerate it"
+            ),
+            FixedTableError::LogScale { found, expected } => write!(
+                f,
+                "log scale constant is {found} (Q16) where the configuration's log needs {expected}: \
+                 the table is corrupt or for another configuration, regenerate it"
             ),
         }
     }
@@ -127,6 +158,22 @@ impl FixedTables<'_> {
         let found = self.window_q31.len();
         if found != 0 && found != expected {
             return Err(FixedTableError::WindowQ31 { found, expected });
+        }
+        // The mel loops read weights as unsigned.
+        let weights = match self.table.filterbank {
+            crate::table::Filterbank::Sparse { weights, .. }
+            | crate::table::Filterbank::Compact { weights, .. } => weights,
+        };
+        if let Some(index) = weights.iter().position(|&w| w < 0) {
+            return Err(FixedTableError::NegativeWeight { index });
+        }
+        // The log stage's arithmetic relies on this exact constant.
+        let (found, expected) = (
+            self.params.log2_to_output.to_bits(),
+            log2_to_output_q16(config.log),
+        );
+        if found != expected {
+            return Err(FixedTableError::LogScale { found, expected });
         }
         Ok(())
     }

@@ -128,7 +128,7 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
         let n = self.config.fft_points as usize;
         let bands = self.config.bands as usize;
         probe.start();
-        self.framer.begin_frame(|v| v);
+        self.framer.begin_frame_unconverted();
         {
             let buf = &mut self.framer.buffer_mut()[..n];
             window::apply_f32(buf, self.table.window);
@@ -146,7 +146,7 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
             probe.mark(Stage::Mel);
             log::log_f32(self.config.log, self.floor, out);
         }
-        self.framer.end_frame(|v| v);
+        self.framer.end_frame_unconverted();
         probe.mark(Stage::Log);
     }
 }

@@ -23,7 +23,7 @@ struct WordAligned<A>(A);
 #[derive(Clone, Debug)]
 pub struct Framer<T, O, const FRAME: usize, const OVERLAP: usize> {
     frame: WordAligned<[T; FRAME]>,
-    overlap: [O; OVERLAP],
+    overlap: WordAligned<[O; OVERLAP]>,
     fill: usize,
     window: usize,
     hop: usize,
@@ -38,7 +38,7 @@ impl<T: Copy + Default, O: Copy + Default, const FRAME: usize, const OVERLAP: us
     pub fn new(window: usize, hop: usize) -> Self {
         Framer {
             frame: WordAligned([T::default(); FRAME]),
-            overlap: [O::default(); OVERLAP],
+            overlap: WordAligned([O::default(); OVERLAP]),
             fill: 0,
             window,
             hop,
@@ -84,7 +84,7 @@ impl<T: Copy + Default, O: Copy + Default, const FRAME: usize, const OVERLAP: us
     #[inline]
     pub fn begin_frame(&mut self, store: impl Fn(T) -> O) {
         let keep = self.window - self.hop;
-        for (o, &v) in self.overlap[..keep]
+        for (o, &v) in self.overlap.0[..keep]
             .iter_mut()
             .zip(&self.frame.0[self.hop..self.window])
         {
@@ -96,9 +96,27 @@ impl<T: Copy + Default, O: Copy + Default, const FRAME: usize, const OVERLAP: us
     #[inline]
     pub fn end_frame(&mut self, load: impl Fn(O) -> T) {
         let keep = self.window - self.hop;
-        for (v, &o) in self.frame.0[..keep].iter_mut().zip(&self.overlap[..keep]) {
+        for (v, &o) in self.frame.0[..keep].iter_mut().zip(&self.overlap.0[..keep]) {
             *v = load(o);
         }
+        self.fill = keep;
+    }
+}
+
+impl<T: Copy + Default, const FRAME: usize, const OVERLAP: usize> Framer<T, T, FRAME, OVERLAP> {
+    /// [`Framer::begin_frame`] when the shared samples are kept as they are:
+    /// a block copy ([`crate::block_copy`]).
+    #[inline]
+    pub fn begin_frame_unconverted(&mut self) {
+        let keep = self.window - self.hop;
+        crate::block_copy::copy(&mut self.overlap.0[..keep], &self.frame.0[self.hop..self.window]);
+    }
+
+    /// [`Framer::end_frame`] when the shared samples are kept as they are.
+    #[inline]
+    pub fn end_frame_unconverted(&mut self) {
+        let keep = self.window - self.hop;
+        crate::block_copy::copy(&mut self.frame.0[..keep], &self.overlap.0[..keep]);
         self.fill = keep;
     }
 }

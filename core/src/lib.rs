@@ -52,11 +52,13 @@
 // The only `unsafe` is Cortex-M4 inline assembly behind `cfg(stapes_arm_dsp)`
 // (`int_fft::mul_high`, `dsp16`, the FFT loops in `int_fft`, the window
 // stage's passes in `fixed_path`), each with a portable twin that gives
-// the same bits.
+// the same bits, and the framer's block copy (`block_copy`) on every
+// Cortex-M, whose twin is `copy_from_slice`.
 #![deny(unsafe_code)]
 #![deny(missing_docs)]
 
 pub mod blob;
+pub mod block_copy;
 pub mod conditioning;
 pub mod config;
 pub mod crc32;
