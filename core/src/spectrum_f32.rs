@@ -89,9 +89,42 @@ pub fn spectrum_in_place(buf: &mut [f32], kind: SpectrumKind) -> &[f32] {
     buf[half] = nyquist * nyquist;
     let spectrum = &mut buf[..=half];
     if kind == SpectrumKind::Magnitude {
-        for p in spectrum.iter_mut() {
-            *p = libm::sqrtf(*p);
-        }
+        sqrt_in_place(spectrum);
     }
     spectrum
+}
+
+/// Replaces each value by its correctly rounded square root (IEEE 754): the
+/// FPU's instruction where the target has one (`libm::sqrtf` is a software
+/// routine of about 60 instructions on a Cortex-M4F), `libm::sqrtf`
+/// elsewhere. Both give the same bits for every input, as IEEE 754 requires.
+#[inline]
+pub fn sqrt_in_place(values: &mut [f32]) {
+    #[cfg(stapes_arm_fpu)]
+    if !values.is_empty() {
+        // Stable Rust names no FPU register class for these targets, so the
+        // loop saves and restores the one register it uses.
+        // SAFETY: reads and writes exactly `values` (non-empty), one word at
+        // a time; s0 is pushed to the stack before and popped after.
+        #[allow(unsafe_code)]
+        unsafe {
+            core::arch::asm!(
+                ".fpu fpv4-sp-d16",
+                "vpush {{s0}}",
+                "2:",
+                "vldr s0, [{p}]",
+                "vsqrt.f32 s0, s0",
+                "vstmia {p}!, {{s0}}",
+                "subs {n}, {n}, #1",
+                "bne 2b",
+                "vpop {{s0}}",
+                p = inout(reg) values.as_mut_ptr() => _,
+                n = inout(reg) values.len() => _,
+            );
+        }
+        return;
+    }
+    for v in values.iter_mut() {
+        *v = libm::sqrtf(*v);
+    }
 }
