@@ -55,7 +55,7 @@ use crate::fixed_tables::FixedTables;
 use crate::frame::Frame;
 use crate::framer::Framer;
 use crate::int_fft::{BfpSample, Precision, real_fft};
-use crate::int_log::log2_q16;
+use crate::int_log::{log2_operand, log2_q16_of_operand};
 use crate::probe::{Stage, StageProbe};
 use crate::table::Filterbank;
 
@@ -415,19 +415,21 @@ impl FrameData for i32 {
 }
 
 /// The sparse filterbank's band energies from the spectrum in `buf` (bin
-/// `k < N/2` at `buf[2k..2k + 2]`, bin `N/2` as `last`). Out of line: the
-/// loop keeps its accumulator and pointers in registers.
+/// `k < N/2` at `buf[2k..2k + 2]`, bin `N/2` as `last`), each handed to
+/// `emit` with its band's index as soon as it is summed (so no energies are
+/// stored). Out of line: the loop keeps its accumulator and pointers in
+/// registers.
 #[inline(never)]
 fn sparse_energies<D: FrameData>(
     spans: &[[u16; 2]],
     weights: &[i16],
     buf: &[D],
     last: u64,
-    energies: &mut [u64],
+    mut emit: impl FnMut(usize, u64),
 ) {
     let half = buf.len() / 2;
     let mut offset = 0;
-    for (e, &[first, count]) in energies.iter_mut().zip(spans) {
+    for (b, &[first, count]) in spans.iter().enumerate() {
         let (first, count) = (first as usize, count as usize);
         let ws = &weights[offset..offset + count];
         offset += count;
@@ -437,23 +439,23 @@ fn sparse_energies<D: FrameData>(
         if let Some(&wt) = ws.get(inside) {
             acc += D::weigh(last, wt as u32);
         }
-        *e = acc;
+        emit(b, acc);
     }
 }
 
-/// The compact filterbank's band energies: each segment's bins feed the
-/// rising side of the band above and, with `1 − w`, the falling side of the
-/// band below.
+/// The compact filterbank's band energies, handed to `emit` as in
+/// [`sparse_energies`]: each segment's bins feed the rising side of the band
+/// above and, with `1 − w`, the falling side of the band below.
 #[inline(never)]
 fn compact_energies<D: FrameData>(
     segment_starts: &[u16],
     weights: &[i16],
     buf: &[D],
     last: u64,
-    energies: &mut [u64],
+    bands: usize,
+    mut emit: impl FnMut(usize, u64),
 ) {
     let half = buf.len() / 2;
-    let bands = energies.len();
     let base = segment_starts[0] as usize;
     let mut carry = 0u64; // falling side of the band below
     for seg in 0..=bands {
@@ -473,54 +475,43 @@ fn compact_energies<D: FrameData>(
             falling += D::weigh(last, 32768 - wt);
         }
         if seg > 0 {
-            energies[seg - 1] = carry + falling;
+            emit(seg - 1, carry + falling);
         }
         carry = rising;
     }
 }
 
-/// The log stage: each band's output in 1/256 units, the log of
+/// The log stage: a band's output in 1/256 units, the log of
 /// `energy · 2^exponent` scaled by `k_log` (Q16 log2 → Q32 output units),
 /// plus the band's gain, at or above `floor` and within `i16`.
 ///
 /// `k_log` is one of [`log2_to_output_q16`](crate::fixed_tables::log2_to_output_q16)'s
-/// values, within `[2^15, 2^20]` (the table check refuses others), so
-/// a log2 clamped to ±2^26 (1024 octaves, far beyond any energy) changes no
+/// values, within `[2^15, 2^20]` (the table check refuses others), so a
+/// log2 clamped to ±2^26 (1024 octaves, far beyond any energy) changes no
 /// output (either side already saturates) and every sum fits `i32`.
-#[inline(never)]
-fn log_levels(
-    energies: &[u64],
+struct LogLevels<'t> {
     exponent: i32,
     k_log: i32,
-    gains: Option<&[i16]>,
+    gains: Option<&'t [i16]>,
     floor: i16,
-    out: &mut [I8F8],
-) {
-    const LOG2_LIMIT: i32 = 1 << 26;
-    let level = |energy: u64, gain: i16| -> i16 {
-        match log2_q16(energy) {
-            None => floor,
-            Some(l) => {
-                // |l| < 2^22 and |exponent| ≤ 2^14: the sum fits i32.
-                let log2 = (l + (exponent << 16)).clamp(-LOG2_LIMIT, LOG2_LIMIT);
-                // Q16 · Q16 → Q32 output units; to 1/256 units with
-                // rounding: |units| ≤ 2^26 · 2^20 / 2^24 = 2^22.
-                let units = ((log2 as i64 * k_log as i64 + (1 << 23)) >> 24) as i32;
-                (units + gain as i32).clamp(floor as i32, i16::MAX as i32) as i16
-            }
-        }
-    };
-    match gains {
-        None => {
-            for (o, &e) in out.iter_mut().zip(energies) {
-                *o = I8F8::from_bits(level(e, 0));
-            }
-        }
-        Some(gains) => {
-            for ((o, &e), &g) in out.iter_mut().zip(energies).zip(gains) {
-                *o = I8F8::from_bits(level(e, g));
-            }
-        }
+}
+
+impl LogLevels<'_> {
+    #[inline(always)]
+    fn level(&self, band: usize, energy: u64) -> I8F8 {
+        const LOG2_LIMIT: i32 = 1 << 26;
+        let Some(operand) = log2_operand(energy) else {
+            return I8F8::from_bits(self.floor);
+        };
+        let gain = self.gains.map_or(0, |g| g[band]);
+        // |log2| < 2^22 and |exponent| ≤ 2^14: the sum fits i32.
+        let log2 = (log2_q16_of_operand(operand) + (self.exponent << 16))
+            .clamp(-LOG2_LIMIT, LOG2_LIMIT);
+        // Q16 · Q16 → Q32 output units; to 1/256 units with rounding:
+        // |units| ≤ 2^26 · 2^20 / 2^24 = 2^22.
+        let units = ((log2 as i64 * self.k_log as i64 + (1 << 23)) >> 24) as i32;
+        let level = (units + gain as i32).clamp(self.floor as i32, i16::MAX as i32);
+        I8F8::from_bits(level as i16)
     }
 }
 
@@ -800,9 +791,6 @@ pub struct FixedFrontEnd<
     window: &'t [P::WindowCoef],
     framer: Framer<P::Data, i16, FFT, OVERLAP>,
     frame_start: IntConditioner,
-    /// The frame's band energies: `E[b] = energies[b] · 2^e` for the frame's
-    /// exponent `e` (Q15 weights times the shifted bins).
-    energies: [u64; BANDS],
     out: [I8F8; BANDS],
     fraction_bits: u32,
     spectrum_shift: u32,
@@ -1045,7 +1033,6 @@ where
             window: P::window(&tables),
             framer: Framer::new(config.window_samples as usize, config.hop_samples as usize),
             frame_start: conditioner,
-            energies: [0; BANDS],
             out: [I8F8::ZERO; BANDS],
             fraction_bits: if conditioner.active() {
                 CONDITIONING_FRACTION_BITS
@@ -1311,25 +1298,26 @@ where
         let energy_exponent =
             if magnitude { e_x } else { 2 * e_x } + shift as i32 + offset_bin_shift as i32 - 15;
 
-        let energies = &mut self.energies[..bands];
+        let levels = LogLevels {
+            exponent: energy_exponent,
+            k_log: self.tables.params.log2_to_output.to_bits(),
+            gains: self.tables.table.band_gains,
+            floor: floor.to_bits(),
+        };
+        let out = &mut self.out[..bands];
+        // Each band's log is taken as soon as its energy is summed (so no
+        // energies are stored: 8 bytes per band of RAM saved).
+        let emit = |b: usize, e: u64| out[b] = levels.level(b, e);
         match self.tables.table.filterbank {
             Filterbank::Sparse { spans, weights } => {
-                sparse_energies::<P::Data>(spans, weights, buf, last, energies)
+                sparse_energies::<P::Data>(spans, weights, buf, last, emit)
             }
             Filterbank::Compact {
                 segment_starts,
                 weights,
-            } => compact_energies::<P::Data>(segment_starts, weights, buf, last, energies),
+            } => compact_energies::<P::Data>(segment_starts, weights, buf, last, bands, emit),
         }
         probe.mark(Stage::Mel);
-        log_levels(
-            energies,
-            energy_exponent,
-            self.tables.params.log2_to_output.to_bits(),
-            self.tables.table.band_gains,
-            floor.to_bits(),
-            &mut self.out[..bands],
-        );
         <P::Data as FrameData>::restore_shared(&mut self.framer);
         probe.mark(Stage::Log);
     }

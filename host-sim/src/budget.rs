@@ -71,16 +71,16 @@ impl Budget {
 /// `None` for the f32 path on Cortex-M0, which has no FPU.
 fn code_bytes(core: Core, arith: Arith) -> Option<usize> {
     match (core, arith) {
-        // 37 616 − 4 176 tables − 512 · 30.4 (microfft for 512 points).
-        (Core::CortexM4F, Arith::F32) => Some(17_875),
-        // 33 464 − 2 442 tables (the Cortex-M4 loops come in four shifts).
-        (Core::CortexM4F, Arith::Fixed16) => Some(31_022),
-        // 26 784 − 4 748 tables.
-        (Core::CortexM4F, Arith::Fixed32) => Some(22_036),
-        // 24 400 − 2 442 tables.
-        (Core::CortexM0, Arith::Fixed16) => Some(21_958),
-        // 27 824 − 4 748 tables.
-        (Core::CortexM0, Arith::Fixed32) => Some(23_076),
+        // 35 072 − 4 176 tables − 512 · 30.4 (microfft for 512 points).
+        (Core::CortexM4F, Arith::F32) => Some(15_331),
+        // 32 416 − 2 442 tables (the Cortex-M4 loops come in four shifts).
+        (Core::CortexM4F, Arith::Fixed16) => Some(29_974),
+        // 27 016 − 4 748 tables.
+        (Core::CortexM4F, Arith::Fixed32) => Some(22_268),
+        // 23 760 − 2 442 tables.
+        (Core::CortexM0, Arith::Fixed16) => Some(21_318),
+        // 28 264 − 4 748 tables.
+        (Core::CortexM0, Arith::Fixed32) => Some(23_516),
         (Core::CortexM0, Arith::F32) => None,
     }
 }
@@ -208,19 +208,19 @@ fn instruction_costs(core: Core, arith: Arith) -> Option<InstructionCosts> {
     };
     match (core, arith) {
         (Core::CortexM4F, Arith::F32) => {
-            Some(c(6.46, 6.10, 1.49, 10.69, -2.50, 5.46, 56.51, 7.27, 79.83))
+            Some(c(6.62, 4.94, 0.97, 10.69, -2.46, 5.46, 5.20, 7.40, 46.92))
         }
         (Core::CortexM4F, Arith::Fixed16) => Some(c(
-            3.38, 13.23, 86.72, 14.61, 23.19, 7.53, 39.98, 16.89, 20.23,
+            3.44, 11.81, 83.02, 14.61, 23.16, 7.04, 34.63, 8.96, 53.67,
         )),
         (Core::CortexM4F, Arith::Fixed32) => Some(c(
-            3.84, 21.37, 47.09, 25.80, 18.23, 16.09, 277.86, 20.76, 21.85,
+            3.88, 18.70, 59.68, 25.80, 18.20, 16.59, 272.47, 14.35, 71.17,
         )),
         (Core::CortexM0, Arith::Fixed16) => Some(c(
-            3.71, 39.80, 255.27, 35.39, 31.44, 27.50, 156.45, 36.54, 20.60,
+            3.79, 38.64, 252.59, 35.40, 31.42, 11.70, 158.45, 23.13, 157.45,
         )),
         (Core::CortexM0, Arith::Fixed32) => Some(c(
-            6.14, 61.50, 146.96, 67.63, 34.66, 124.33, 768.27, 39.04, 30.00,
+            6.02, 61.73, 140.06, 67.63, 34.63, 111.25, 832.55, 29.00, 180.88,
         )),
         (Core::CortexM0, Arith::F32) => None,
     }
