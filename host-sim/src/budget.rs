@@ -73,14 +73,14 @@ fn code_bytes(core: Core, arith: Arith) -> Option<usize> {
     match (core, arith) {
         // 35 072 − 4 176 tables − 512 · 30.4 (microfft for 512 points).
         (Core::CortexM4F, Arith::F32) => Some(15_331),
-        // 32 416 − 2 442 tables (the Cortex-M4 loops come in four shifts).
-        (Core::CortexM4F, Arith::Fixed16) => Some(29_974),
-        // 27 016 − 4 748 tables.
-        (Core::CortexM4F, Arith::Fixed32) => Some(22_268),
-        // 23 760 − 2 442 tables.
-        (Core::CortexM0, Arith::Fixed16) => Some(21_318),
-        // 28 264 − 4 748 tables.
-        (Core::CortexM0, Arith::Fixed32) => Some(23_516),
+        // 32 256 − 2 442 tables (the Cortex-M4 loops come in four shifts).
+        (Core::CortexM4F, Arith::Fixed16) => Some(29_814),
+        // 26 888 − 4 748 tables.
+        (Core::CortexM4F, Arith::Fixed32) => Some(22_140),
+        // 23 664 − 2 442 tables.
+        (Core::CortexM0, Arith::Fixed16) => Some(21_222),
+        // 28 028 − 4 748 tables.
+        (Core::CortexM0, Arith::Fixed32) => Some(23_280),
         (Core::CortexM0, Arith::F32) => None,
     }
 }
@@ -211,16 +211,16 @@ fn instruction_costs(core: Core, arith: Arith) -> Option<InstructionCosts> {
             Some(c(6.62, 4.94, 0.97, 10.69, -2.46, 5.46, 5.20, 7.40, 46.92))
         }
         (Core::CortexM4F, Arith::Fixed16) => Some(c(
-            3.44, 11.81, 83.02, 14.61, 23.16, 7.04, 34.63, 8.96, 53.67,
+            3.51, 11.82, 85.03, 14.61, 23.17, 7.07, 34.66, 14.04, 4.05,
         )),
         (Core::CortexM4F, Arith::Fixed32) => Some(c(
-            3.88, 18.70, 59.68, 25.80, 18.20, 16.59, 272.47, 14.35, 71.17,
+            3.93, 18.96, 49.45, 25.80, 18.18, 16.60, 272.49, 19.76, 21.30,
         )),
         (Core::CortexM0, Arith::Fixed16) => Some(c(
-            3.79, 38.64, 252.59, 35.40, 31.42, 11.70, 158.45, 23.13, 157.45,
+            3.78, 39.39, 252.81, 35.40, 31.41, 11.74, 158.47, 38.32, 6.38,
         )),
         (Core::CortexM0, Arith::Fixed32) => Some(c(
-            6.02, 61.73, 140.06, 67.63, 34.63, 111.25, 832.55, 29.00, 180.88,
+            6.06, 61.60, 147.07, 67.63, 34.67, 111.27, 832.57, 39.20, 29.88,
         )),
         (Core::CortexM0, Arith::F32) => None,
     }
