@@ -282,3 +282,44 @@ fn version_one_blobs_still_parse() {
             .is_ok()
     );
 }
+
+#[test]
+fn fixed_tables_refuse_a_negative_weight_and_a_foreign_log_constant() {
+    use stapes_core::fixed_tables::{FixedTableError, log2_to_output_q16};
+    use stapes_core::table::Filterbank;
+    for (name, config) in stapes_core::presets::ALL {
+        let generated = GeneratedTables::new(&config);
+        let good = generated.fixed_tables(FilterbankForm::Sparse).unwrap();
+        assert_eq!(good.check(&config), Ok(()), "{name}");
+        // The generator's f64 constant and the core's literal agree.
+        assert_eq!(
+            good.params.log2_to_output.to_bits(),
+            log2_to_output_q16(config.log),
+            "{name}"
+        );
+        // A log constant off by one step is refused: the log stage's
+        // 32-bit arithmetic relies on the exact value.
+        let mut foreign = good;
+        foreign.params.log2_to_output =
+            stapes_core::fixed::types::I16F16::from_bits(log2_to_output_q16(config.log) + 1);
+        assert!(matches!(
+            foreign.check(&config),
+            Err(FixedTableError::LogScale { .. })
+        ));
+        // A negative Q15 weight is refused (the mel loops read weights as unsigned).
+        let Filterbank::Sparse { spans, weights } = good.table.filterbank else {
+            unreachable!()
+        };
+        let mut bad_weights = weights.to_vec();
+        bad_weights[3] = -1;
+        let mut negative = good;
+        negative.table.filterbank = Filterbank::Sparse {
+            spans,
+            weights: &bad_weights,
+        };
+        assert_eq!(
+            negative.check(&config),
+            Err(FixedTableError::NegativeWeight { index: 3 })
+        );
+    }
+}

@@ -197,7 +197,9 @@ pub trait FrameData: BfpSample {
         weights
             .iter()
             .zip(slots.chunks_exact(2))
-            .fold(0u64, |acc, (&w, slot)| acc + Self::weigh(Self::load_bin(slot), w as u32))
+            .fold(0u64, |acc, (&w, slot)| {
+                acc + Self::weigh(Self::load_bin(slot), w as u32)
+            })
     }
 }
 
@@ -242,9 +244,12 @@ impl FrameData for i16 {
         if let Some(sum) = arm_dsp_mel::weighted_bins(slots, weights) {
             return sum;
         }
-        weights.iter().zip(slots.chunks_exact(2)).fold(0u64, |acc, (&w, slot)| {
-            acc + Self::weigh(Self::load_bin(slot), w as u32)
-        })
+        weights
+            .iter()
+            .zip(slots.chunks_exact(2))
+            .fold(0u64, |acc, (&w, slot)| {
+                acc + Self::weigh(Self::load_bin(slot), w as u32)
+            })
     }
     // Raw samples are the frame's own type: a block copy.
     #[inline(always)]
@@ -465,10 +470,13 @@ fn compact_energies<D: FrameData>(
         let inside = ws.len().min(half.saturating_sub(lo));
         let slots = buf[2 * lo..2 * (lo + inside)].chunks_exact(2);
         let (mut rising, mut falling) =
-            ws[..inside].iter().zip(slots).fold((0u64, 0u64), |(r, f), (&wt, slot)| {
-                let (v, wt) = (D::load_bin(slot), wt as u32);
-                (r + D::weigh(v, wt), f + D::weigh(v, 32768 - wt))
-            });
+            ws[..inside]
+                .iter()
+                .zip(slots)
+                .fold((0u64, 0u64), |(r, f), (&wt, slot)| {
+                    let (v, wt) = (D::load_bin(slot), wt as u32);
+                    (r + D::weigh(v, wt), f + D::weigh(v, 32768 - wt))
+                });
         if let Some(&wt) = ws.get(inside) {
             let wt = wt as u32;
             rising += D::weigh(last, wt);
@@ -505,8 +513,8 @@ impl LogLevels<'_> {
         };
         let gain = self.gains.map_or(0, |g| g[band]);
         // |log2| < 2^22 and |exponent| ≤ 2^14: the sum fits i32.
-        let log2 = (log2_q16_of_operand(operand) + (self.exponent << 16))
-            .clamp(-LOG2_LIMIT, LOG2_LIMIT);
+        let log2 =
+            (log2_q16_of_operand(operand) + (self.exponent << 16)).clamp(-LOG2_LIMIT, LOG2_LIMIT);
         // Q16 · Q16 → Q32 output units; to 1/256 units with rounding:
         // |units| ≤ 2^26 · 2^20 / 2^24 = 2^22.
         let units = ((log2 as i64 * self.k_log as i64 + (1 << 23)) >> 24) as i32;

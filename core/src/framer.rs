@@ -109,7 +109,10 @@ impl<T: Copy + Default, const FRAME: usize, const OVERLAP: usize> Framer<T, T, F
     #[inline]
     pub fn begin_frame_unconverted(&mut self) {
         let keep = self.window - self.hop;
-        crate::block_copy::copy(&mut self.overlap.0[..keep], &self.frame.0[self.hop..self.window]);
+        crate::block_copy::copy(
+            &mut self.overlap.0[..keep],
+            &self.frame.0[self.hop..self.window],
+        );
     }
 
     /// [`Framer::end_frame`] when the shared samples are kept as they are.
