@@ -177,29 +177,14 @@ pub trait FrameData: BfpSample {
     /// `shift` (see [`spectrum_pairs`]).
     #[inline(always)]
     fn spectrum_pairs(pairs: &mut [Self], shift: u32, magnitude: bool) {
-        if magnitude {
-            for pair in pairs.chunks_exact_mut(2) {
-                let v = Self::magnitude(pair[0], pair[1], shift);
-                Self::store_bin(pair, v);
-            }
-        } else {
-            for pair in pairs.chunks_exact_mut(2) {
-                let v = Self::power(pair[0], pair[1], shift);
-                Self::store_bin(pair, v);
-            }
-        }
+        pairwise_spectrum(pairs, shift, magnitude);
     }
     /// `Σ weights[i] · bin[i]` over the bins stored in `slots` (two elements
     /// each) and as many non-negative Q15 weights (the table check refuses
     /// negative ones).
     #[inline(always)]
     fn weighted_bins(slots: &[Self], weights: &[i16]) -> u64 {
-        weights
-            .iter()
-            .zip(slots.chunks_exact(2))
-            .fold(0u64, |acc, (&w, slot)| {
-                acc + Self::weigh(Self::load_bin(slot), w as u32)
-            })
+        folded_weighted_bins(slots, weights)
     }
 }
 
@@ -211,18 +196,7 @@ impl FrameData for i16 {
         // one SMUAD on the Cortex-M4, and the bin is stored back as the word
         // `store_bin` writes as two halves.
         let Ok(words) = bytemuck::try_cast_slice_mut::<i16, u32>(pairs) else {
-            if magnitude {
-                for pair in pairs.chunks_exact_mut(2) {
-                    let v = Self::magnitude(pair[0], pair[1], shift);
-                    Self::store_bin(pair, v);
-                }
-            } else {
-                for pair in pairs.chunks_exact_mut(2) {
-                    let v = Self::power(pair[0], pair[1], shift);
-                    Self::store_bin(pair, v);
-                }
-            }
-            return;
+            return pairwise_spectrum(pairs, shift, magnitude);
         };
         if shift >= 32 {
             // Every value is below 2^32: shifted out.
@@ -244,12 +218,7 @@ impl FrameData for i16 {
         if let Some(sum) = arm_dsp_mel::weighted_bins(slots, weights) {
             return sum;
         }
-        weights
-            .iter()
-            .zip(slots.chunks_exact(2))
-            .fold(0u64, |acc, (&w, slot)| {
-                acc + Self::weigh(Self::load_bin(slot), w as u32)
-            })
+        folded_weighted_bins(slots, weights)
     }
     // Raw samples are the frame's own type: a block copy.
     #[inline(always)]
@@ -521,6 +490,34 @@ impl LogLevels<'_> {
         let level = (units + gain as i32).clamp(self.floor as i32, i16::MAX as i32);
         I8F8::from_bits(level as i16)
     }
+}
+
+/// [`FrameData::spectrum_pairs`] element by element, for any data type.
+#[inline(always)]
+fn pairwise_spectrum<D: FrameData>(pairs: &mut [D], shift: u32, magnitude: bool) {
+    if magnitude {
+        for pair in pairs.chunks_exact_mut(2) {
+            let v = D::magnitude(pair[0], pair[1], shift);
+            D::store_bin(pair, v);
+        }
+    } else {
+        for pair in pairs.chunks_exact_mut(2) {
+            let v = D::power(pair[0], pair[1], shift);
+            D::store_bin(pair, v);
+        }
+    }
+}
+
+/// [`FrameData::weighted_bins`] as a plain fold, for any data type (the
+/// Cortex-M4 kernel's twin for 16-bit data).
+#[inline(always)]
+fn folded_weighted_bins<D: FrameData>(slots: &[D], weights: &[i16]) -> u64 {
+    weights
+        .iter()
+        .zip(slots.chunks_exact(2))
+        .fold(0u64, |acc, (&w, slot)| {
+            acc + D::weigh(D::load_bin(slot), w as u32)
+        })
 }
 
 /// Bins 1 .. N/2 in place (`pairs` holds X[1], X[2], … as re/im pairs): each
