@@ -11,11 +11,9 @@
 //! store, the buffer is transformed in place, and the overlap is put back. RAM
 //! is `FRAME + OVERLAP` elements, not a separate history ring plus FFT buffer.
 
-/// A buffer on a 4-byte boundary, so that the integer FFT can read pairs of
-/// 16-bit values as words.
-#[derive(Clone, Debug)]
-#[repr(C, align(4))]
-struct WordAligned<A>(A);
+// Both buffers lie on a 4-byte boundary: the integer FFT reads pairs of
+// 16-bit values as words, and the block copy moves whole words.
+use crate::table::WordAligned;
 
 /// Frame assembly over an FFT-sized buffer of `T`, with the shared samples
 /// kept as `O` between frames (the fixed path keeps raw `i16` samples there
