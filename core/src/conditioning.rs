@@ -36,6 +36,21 @@ impl FloatConditioner {
         *self = Self::new(self.dc_pole, self.pre_emphasis);
     }
 
+    /// Conditions `values` in place, in stream order: the same results as
+    /// [`FloatConditioner::step`] on each, with the choice of filters made
+    /// once per block (and nothing done when both are off).
+    #[inline]
+    pub fn run_in_place(&mut self, values: &mut [f32]) {
+        match (self.dc_pole, self.pre_emphasis) {
+            (None, None) => {}
+            (Some(_), None) | (None, Some(_)) | (Some(_), Some(_)) => {
+                for v in values.iter_mut() {
+                    *v = self.step(*v);
+                }
+            }
+        }
+    }
+
     /// Conditions one sample.
     #[inline]
     pub fn step(&mut self, x: f32) -> f32 {

@@ -105,13 +105,12 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
     ) -> Option<Frame<'_, f32>> {
         let conditioner = &mut self.conditioner;
         let non_finite = &mut self.non_finite;
-        let complete = self.framer.fill_from(input, |s: S| {
-            let x = s.to_unit_f32().unwrap_or_else(|| {
-                *non_finite += 1;
-                0.0
+        let complete = self
+            .framer
+            .fill_block_from(input, |src: &[S], dst: &mut [f32]| {
+                *non_finite += S::to_unit_f32_slice(src, dst);
+                conditioner.run_in_place(dst);
             });
-            conditioner.step(x)
-        });
         if !complete {
             return None;
         }
@@ -128,10 +127,11 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
         let n = self.config.fft_points as usize;
         let bands = self.config.bands as usize;
         probe.start();
-        self.framer.begin_frame_unconverted();
         {
-            let buf = &mut self.framer.buffer_mut()[..n];
-            window::apply_f32(buf, self.table.window);
+            // The shared samples go to the overlap store as they are windowed.
+            let (buf, hop, overlap) = self.framer.frame_and_overlap_mut();
+            let buf = &mut buf[..n];
+            window::apply_saving_f32(buf, self.table.window, hop, overlap);
             probe.mark(Stage::Window);
             // `new` checked that this size is compiled in.
             spectrum_f32::real_fft_in_place(buf);
@@ -139,7 +139,13 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
             let spectrum = spectrum_f32::spectrum_in_place(buf, self.config.spectrum);
             probe.mark(Stage::Spectrum);
             let out = &mut self.energies[..bands];
-            mel::accumulate_f32(&self.table.filterbank, spectrum, out);
+            // SAFETY: `new` checked the table against this configuration,
+            // whose `bands` values `out` holds and whose spectrum bins
+            // (`fft_points / 2 + 1`) `spectrum` holds.
+            #[allow(unsafe_code)]
+            unsafe {
+                mel::accumulate_checked_f32(&self.table.filterbank, spectrum, out)
+            };
             if let Some(gains) = self.table.band_gains {
                 mel::apply_gains_f32(gains, out);
             }

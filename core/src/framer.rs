@@ -71,6 +71,24 @@ impl<T: Copy + Default, O: Copy + Default, const FRAME: usize, const OVERLAP: us
         self.fill == self.window
     }
 
+    /// [`Framer::fill_from`] a block at a time: `convert(src, dst)` fills
+    /// `dst` (the frame's next free slots) from `src` (as many samples from
+    /// the front of `input`).
+    #[inline]
+    pub fn fill_block_from<S: Copy>(
+        &mut self,
+        input: &mut &[S],
+        convert: impl FnOnce(&[S], &mut [T]),
+    ) -> bool {
+        let want = self.window - self.fill;
+        let take = want.min(input.len());
+        let (now, rest) = input.split_at(take);
+        convert(now, &mut self.frame.0[self.fill..self.fill + take]);
+        self.fill += take;
+        *input = rest;
+        self.fill == self.window
+    }
+
     /// The whole buffer, for in-place processing of a complete frame. Call
     /// [`Framer::begin_frame`] before changing it and [`Framer::end_frame`] after.
     #[inline]
@@ -111,6 +129,16 @@ impl<T: Copy + Default, const FRAME: usize, const OVERLAP: usize> Framer<T, T, F
             &mut self.overlap.0[..keep],
             &self.frame.0[self.hop..self.window],
         );
+    }
+
+    /// The frame buffer, the hop, and the overlap store's first
+    /// `window - hop` slots, for a stage that saves the shared samples
+    /// (`frame[hop..window]`) itself in place of
+    /// [`Framer::begin_frame_unconverted`].
+    #[inline]
+    pub fn frame_and_overlap_mut(&mut self) -> (&mut [T; FRAME], usize, &mut [T]) {
+        let keep = self.window - self.hop;
+        (&mut self.frame.0, self.hop, &mut self.overlap.0[..keep])
     }
 
     /// [`Framer::end_frame`] when the shared samples are kept as they are.

@@ -71,8 +71,8 @@ impl Budget {
 /// `None` for the f32 path on Cortex-M0, which has no FPU.
 fn code_bytes(core: Core, arith: Arith) -> Option<usize> {
     match (core, arith) {
-        // 35 072 − 4 176 tables − 512 · 30.4 (microfft for 512 points).
-        (Core::CortexM4F, Arith::F32) => Some(15_331),
+        // 30 988 − 4 176 tables − 512 · 30.4 (microfft for 512 points).
+        (Core::CortexM4F, Arith::F32) => Some(11_247),
         // 32 256 − 2 442 tables (the Cortex-M4 loops come in four shifts).
         (Core::CortexM4F, Arith::Fixed16) => Some(29_814),
         // 26 888 − 4 748 tables.
@@ -190,10 +190,22 @@ struct InstructionCosts {
     magnitude_bin: f64,
     weight: f64,
     band: f64,
+    /// Per weight of the compact form (each feeds two bands), in place of
+    /// `weight`.
+    compact_weight: f64,
 }
 
 fn instruction_costs(core: Core, arith: Arith) -> Option<InstructionCosts> {
-    let c = |intake, window, conditioned, fft, odd_level, bin, magnitude_bin, weight, band| {
+    let c = |intake,
+             window,
+             conditioned,
+             fft,
+             odd_level,
+             bin,
+             magnitude_bin,
+             weight,
+             band,
+             compact_weight| {
         InstructionCosts {
             intake,
             window,
@@ -204,41 +216,49 @@ fn instruction_costs(core: Core, arith: Arith) -> Option<InstructionCosts> {
             magnitude_bin,
             weight,
             band,
+            compact_weight,
         }
     };
     match (core, arith) {
-        (Core::CortexM4F, Arith::F32) => {
-            Some(c(6.62, 4.94, 0.97, 10.69, -2.46, 5.46, 5.20, 7.40, 46.92))
-        }
+        (Core::CortexM4F, Arith::F32) => Some(c(
+            3.86, 1.89, 0.77, 10.69, -2.77, 3.15, 5.10, 3.07, 32.00, 21.66,
+        )),
         (Core::CortexM4F, Arith::Fixed16) => Some(c(
-            3.51, 11.82, 85.03, 14.61, 23.17, 7.07, 34.66, 14.04, 4.05,
+            3.51, 11.82, 85.03, 14.61, 23.17, 7.07, 34.66, 14.04, 4.05, 36.30,
         )),
         (Core::CortexM4F, Arith::Fixed32) => Some(c(
-            3.93, 18.96, 49.45, 25.80, 18.18, 16.60, 272.49, 19.76, 21.30,
+            3.93, 18.96, 49.45, 25.80, 18.18, 16.60, 272.49, 19.76, 21.30, 43.36,
         )),
         (Core::CortexM0, Arith::Fixed16) => Some(c(
-            3.78, 39.39, 252.81, 35.40, 31.41, 11.74, 158.47, 38.32, 6.38,
+            3.78, 39.39, 252.81, 35.40, 31.41, 11.74, 158.47, 38.32, 6.38, 84.53,
         )),
         (Core::CortexM0, Arith::Fixed32) => Some(c(
-            6.06, 61.60, 147.07, 67.63, 34.67, 111.27, 832.57, 39.20, 29.88,
+            6.06, 61.60, 147.07, 67.63, 34.67, 111.27, 832.57, 39.20, 29.88, 90.75,
         )),
         (Core::CortexM0, Arith::F32) => None,
     }
 }
 
-/// Predicts the instructions per frame, per stage, for `config` (sparse
-/// filterbank). QEMU counts instructions, not cycles: see [`hop_share`].
+/// Predicts the instructions per frame, per stage, for `config` with the
+/// filterbank in `form` (the sparse form where the configuration has no
+/// compact one). QEMU counts instructions, not cycles: see [`hop_share`].
 pub fn predict_instructions(
     config: &FeatureConfig,
     arith: Arith,
     core: Core,
+    form: FilterbankForm,
 ) -> Option<StageInstructions> {
     let k = instruction_costs(core, arith)?;
     let half = (config.fft_points / 2) as f64;
     let w = config.window_samples as f64;
     let conditioned = config.dc_removal_pole.is_some() || config.pre_emphasis.is_some();
     let magnitude = config.spectrum == stapes_core::config::SpectrumKind::Magnitude;
-    let weights = GeneratedTables::new(config).sparse_q15.len() as f64;
+    let tables = GeneratedTables::new(config);
+    let mel = if form == FilterbankForm::Compact && tables.has_compact() {
+        k.compact_weight * tables.compact_q15.len() as f64
+    } else {
+        k.weight * tables.sparse_q15.len() as f64
+    };
     Some(StageInstructions {
         intake: k.intake * config.hop_samples as f64,
         window: k.window * w + if conditioned { k.conditioned * w } else { 0.0 },
@@ -254,7 +274,7 @@ pub fn predict_instructions(
             } else {
                 0.0
             },
-        mel: k.weight * weights,
+        mel,
         log: k.band * config.bands as f64,
     })
 }
@@ -312,10 +332,10 @@ pub fn report(
         s,
         "  (code and stack are calibrated from the reference preset's firmware; the firmware test keeps every preset within 10 %)"
     );
-    if let Some(i) = predict_instructions(config, arith, core) {
+    if let Some(i) = predict_instructions(config, arith, core, form) {
         let _ = writeln!(
             s,
-            "  instructions per frame {:>7.0} = intake {:.0} + window {:.0} + FFT {:.0} + spectrum {:.0} + mel {:.0} + log {:.0} (QEMU count, sparse form; the firmware test keeps every preset within 10 %)",
+            "  instructions per frame {:>7.0} = intake {:.0} + window {:.0} + FFT {:.0} + spectrum {:.0} + mel {:.0} + log {:.0} (QEMU count; the firmware test keeps every preset within 10 %)",
             i.total(),
             i.intake,
             i.window,
