@@ -502,6 +502,40 @@ fn integer_square_root_is_the_floor_of_the_real_one() {
     }
 }
 
+/// The windowed product of conditioned 16-bit data, `round(g·w / 2^s)`:
+/// the Cortex-M0 form (16-bit halves, 32-bit steps) gives the 64-bit form's
+/// bits wherever the front end uses it (`|g| < 2^30`, `0 ≤ w < 2^15`, a
+/// result within ±2^15, so `|g·w| < 2^(15 + s)`), and both are the exact
+/// rounded quotient (checked in i128).
+#[test]
+fn windowed_products_agree_between_cores() {
+    use stapes_core::fixed_path::{rounded_product_by_halves, rounded_product_wide};
+    let mut r = rng(91);
+    let mut checked = 0;
+    while checked < 200_000 {
+        let shift = r.random_range(0..=31u32);
+        let w = r.random_range(0..32768i32);
+        // |g| up to the largest the result allows, within 2^30.
+        let g_max = (((1i64 << (15 + shift)) - 1) / w.max(1) as i64).min((1 << 30) - 1) as i32;
+        let g = r.random_range(-g_max..=g_max);
+        let exact = ((g as i128 * w as i128) + ((1i128 << shift) >> 1)) >> shift;
+        if exact.unsigned_abs() >= 1 << 15 {
+            continue;
+        }
+        checked += 1;
+        assert_eq!(
+            rounded_product_wide(g, w, shift) as i128,
+            exact,
+            "{g}·{w} >> {shift}"
+        );
+        assert_eq!(
+            rounded_product_by_halves(g, w, shift) as i128,
+            exact,
+            "{g}·{w} >> {shift}"
+        );
+    }
+}
+
 /// The FFT's bound-chosen shifts under the inputs that grow fastest: full-scale
 /// constants (all energy into one bin), alternating signs, impulses at −32768
 /// (a flat spectrum), and full-scale squares and cosines at several bins. The

@@ -11,7 +11,8 @@
 //! The sweep (0.4 s per signal, at the configuration's rate): the project's
 //! speech-like synthesized clip; a log chirp over the band range plus white
 //! noise, at 0, −12 and −30 dBFS; a linear chirp over the whole spectrum
-//! with hiss; a loud high tone over faint hiss; a low tone on a 20 % DC offset; a
+//! with hiss; a loud high tone over faint hiss, above the band range and
+//! near the Nyquist frequency; a low tone on a 20 % DC offset; a
 //! constant; noise at −60 dBFS; a step. An error above 80 % of a tolerance on
 //! the sweep counts as a warning (other material goes further). These are the
 //! material on which custom configurations were seen to fail (pre-emphasis
@@ -121,6 +122,15 @@ pub fn signals(config: &FeatureConfig) -> Vec<(&'static str, Vec<i16>)> {
             (2.0 * PI * f_high * n as f64 / fs).sin() + 0.001 * (rng.random::<f64>() * 2.0 - 1.0)
         })
         .collect();
+    // The same near the Nyquist frequency, where pre-emphasis lifts it most
+    // (a chirp's last frames): a 16-bit frame's scale is then set far above
+    // every band.
+    let f_nyquist = 0.97 * fs / 2.0;
+    let nyquist_tone: Vec<f64> = (0..len)
+        .map(|n| {
+            (2.0 * PI * f_nyquist * n as f64 / fs).sin() + 0.001 * (rng.random::<f64>() * 2.0 - 1.0)
+        })
+        .collect();
     let mut speech =
         crate::synth::demo_clip(config.sample_rate_hz, crate::synth::DEMO_SEED).samples;
     speech.truncate(len.max(config.window_samples as usize * 3));
@@ -134,6 +144,10 @@ pub fn signals(config: &FeatureConfig) -> Vec<(&'static str, Vec<i16>)> {
         (
             "high tone over hiss 60 dB down, -6 dBFS",
             to_i16(&high_tone, 0.5),
+        ),
+        (
+            "tone near Nyquist over hiss 60 dB down, -6 dBFS",
+            to_i16(&nyquist_tone, 0.5),
         ),
         ("chirp and noise, 0 dBFS", to_i16(&chirp_noise, 1.0)),
         ("chirp and noise, -30 dBFS", to_i16(&chirp_noise, 0.0316)),
@@ -186,7 +200,7 @@ pub fn report_lines(config: &FeatureConfig) -> Result<Vec<String>> {
             "accuracy: preset {name}, verified on the speech corpus (stapes check --corpus); internal sweep:"
         )),
         None => lines.push(
-            "accuracy: not a shipped preset, so outside the corpus-verified region; predicted by the internal sweep (a speech-like clip, chirp + noise at 0, -12 and -30 dBFS, a full-band chirp with hiss, a high tone over faint hiss, a tone on an offset, a constant, -60 dBFS noise, a step):"
+            "accuracy: not a shipped preset, so outside the corpus-verified region; predicted by the internal sweep (a speech-like clip, chirp + noise at 0, -12 and -30 dBFS, a full-band chirp with hiss, a high tone and a near-Nyquist tone over faint hiss, a tone on an offset, a constant, -60 dBFS noise, a step):"
                 .to_string(),
         ),
     }
