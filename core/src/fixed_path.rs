@@ -981,16 +981,6 @@ pub trait TwiddlesFor: Precision {
     fn window<'a>(tables: &FixedTables<'a>) -> &'a [Self::WindowCoef];
     /// `round(x · w)` for a normalised sample and a window coefficient, saturated.
     fn apply_window(x: Self::Data, w: Self::WindowCoef) -> Self::Data;
-    /// Pass 1's range and window-weighted sum of raw samples (see
-    /// [`raw_offset_statistics`]) by a faster route where the target has
-    /// one: `None` to take the portable loop. The same values either way.
-    fn raw_statistics_fast(
-        samples: &[Self::Data],
-        window: &[Self::WindowCoef],
-    ) -> Option<(i32, i32, i64)> {
-        let _ = (samples, window);
-        None
-    }
     /// Pass 1 per normalisation segment (see [`NORMALISATION_SEGMENTS`]):
     /// each `segment`-sample segment's range into `ranges`, and the whole
     /// frame's window-weighted sum; `None` to take the portable loop. The
@@ -1027,10 +1017,6 @@ pub trait TwiddlesFor: Precision {
 impl TwiddlesFor for crate::int_fft::Fixed16 {
     type WindowCoef = i16;
     const WIDE: bool = false;
-    #[cfg(stapes_arm_dsp)]
-    fn raw_statistics_fast(samples: &[i16], window: &[i16]) -> Option<(i32, i32, i64)> {
-        arm_dsp_statistics::raw_statistics(samples, window)
-    }
     #[cfg(stapes_arm_dsp)]
     fn segment_statistics_fast(
         samples: &[i16],
@@ -1395,11 +1381,6 @@ where
             if hop >= w {
                 self.frame_start = cond;
             }
-        } else if let (Some(_), Some((l, h, sum))) =
-            (offset_terms, P::raw_statistics_fast(&buf[..w], window))
-        {
-            (lo, hi) = (l, h);
-            weighted = WideSum::from_total(sum);
         } else if cfg!(stapes_no_long_multiply) && offset_terms.is_some() {
             (lo, hi, weighted) = raw_offset_statistics::<P>(&buf[..w], window);
         } else {
@@ -1665,79 +1646,13 @@ mod arm_dsp_mel {
     }
 }
 
-/// Pass 1 over raw 16-bit samples in Armv7E-M assembly, two samples per
-/// word: lane-wise maximum and minimum (`SSUB16`/`SEL`) and the
-/// window-weighted sum in 64 bits (`SMLALD`), exactly the values of the
-/// portable loop (the board's frames are checked against the host's).
+/// The window stage's passes over raw 16-bit samples in Armv7E-M assembly,
+/// two samples per word: per segment, lane-wise maximum and minimum
+/// (`SSUB16`/`SEL`) and the window-weighted sum in 64 bits (`SMLALD`); then
+/// offset removal and the window product. Exactly the values of the
+/// portable loops (the board's frames are checked against the host's).
 #[cfg(stapes_arm_dsp)]
 mod arm_dsp_statistics {
-    /// `(min, max, Σ c·w)`; `None` for an empty or odd-length frame, or
-    /// samples or coefficients off a word boundary.
-    #[inline(never)]
-    pub(super) fn raw_statistics(samples: &[i16], window: &[i16]) -> Option<(i32, i32, i64)> {
-        let n = samples.len();
-        if n == 0 || !n.is_multiple_of(2) || window.len() < n {
-            return None;
-        }
-        let xs = bytemuck::try_cast_slice::<i16, u32>(samples).ok()?;
-        let ws = bytemuck::try_cast_slice::<i16, u32>(&window[..n]).ok()?;
-        let (mut hi, mut lo) = (0x8000_8000u32, 0x7fff_7fffu32);
-        let (mut sum_lo, mut sum_hi) = (0u32, 0u32);
-        // SAFETY: reads the n/2 words of each slice (n even, positive);
-        // writes nothing.
-        #[allow(unsafe_code)]
-        unsafe {
-            core::arch::asm!(
-                // Two words per turn (LDRD), then the odd word if any.
-                "lsrs   {k}, {n}, #1",
-                "beq    3f",
-                "2:",
-                "ldrd   {x0}, {x1}, [{px}], #8",
-                "ldrd   {w0}, {w1}, [{pw}], #8",
-                "smlald {sl}, {sh}, {x0}, {w0}",
-                "ssub16 {w0}, {x0}, {hi}",
-                "sel    {hi}, {x0}, {hi}",
-                "ssub16 {w0}, {lo}, {x0}",
-                "sel    {lo}, {x0}, {lo}",
-                "smlald {sl}, {sh}, {x1}, {w1}",
-                "ssub16 {w1}, {x1}, {hi}",
-                "sel    {hi}, {x1}, {hi}",
-                "ssub16 {w1}, {lo}, {x1}",
-                "sel    {lo}, {x1}, {lo}",
-                "subs   {k}, {k}, #1",
-                "bne    2b",
-                "3:",
-                "lsls   {n}, {n}, #31",
-                "beq    4f",
-                "ldr    {x0}, [{px}]",
-                "ldr    {w0}, [{pw}]",
-                "smlald {sl}, {sh}, {x0}, {w0}",
-                "ssub16 {w0}, {x0}, {hi}",
-                "sel    {hi}, {x0}, {hi}",
-                "ssub16 {w0}, {lo}, {x0}",
-                "sel    {lo}, {x0}, {lo}",
-                "4:",
-                px = inout(reg) xs.as_ptr() => _,
-                pw = inout(reg) ws.as_ptr() => _,
-                n = inout(reg) xs.len() => _,
-                k = out(reg) _,
-                hi = inout(reg) hi,
-                lo = inout(reg) lo,
-                sl = inout(reg) sum_lo,
-                sh = inout(reg) sum_hi,
-                x0 = out(reg) _,
-                x1 = out(reg) _,
-                w0 = out(reg) _,
-                w1 = out(reg) _,
-                options(nostack, readonly)
-            );
-        }
-        let lane = |v: u32, k: u32| ((v >> (16 * k)) as u16 as i16) as i32;
-        let max = lane(hi, 0).max(lane(hi, 1));
-        let min = lane(lo, 0).min(lane(lo, 1));
-        Some((min, max, ((sum_hi as u64) << 32 | sum_lo as u64) as i64))
-    }
-
     /// Pass 1 per normalisation segment: every whole `segment`-sample
     /// segment's range (two samples per word, `SSUB16`/`SEL`, two words per
     /// turn) and the window-weighted sum (`SMLALD`) in one loop, the last

@@ -49,11 +49,15 @@
 //! # }
 //! ```
 #![no_std]
-// The only `unsafe` is Cortex-M4 inline assembly behind `cfg(stapes_arm_dsp)`
+// The only `unsafe` is Cortex-M inline assembly, each piece with a portable
+// twin that gives the same bits: on Cortex-M4 behind `cfg(stapes_arm_dsp)`
 // (`int_fft::mul_high`, `dsp16`, the FFT loops in `int_fft`, the window
-// stage's passes in `fixed_path`), each with a portable twin that gives
-// the same bits, and the framer's block copy (`block_copy`) on every
-// Cortex-M, whose twin is `copy_from_slice`.
+// stage's passes in `fixed_path`); on hard-float cores behind
+// `cfg(stapes_arm_fpu)` the f32 stages' loops (`sample`, `window`,
+// `spectrum_f32`, `mel`, `log`; the sparse band loop in `mel` relies on the
+// table check the front end's constructor made, an `unsafe fn` contract);
+// and the framer's block copy (`block_copy`) on every Cortex-M, whose twin
+// is `copy_from_slice`.
 #![deny(unsafe_code)]
 #![deny(missing_docs)]
 
