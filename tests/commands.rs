@@ -240,3 +240,23 @@ fn features_reports_floor_values_range_and_constant_frames() {
     assert!(lines.contains("2 samples beyond full scale"), "{lines}");
     assert!(lines.contains("frames are constant input"), "{lines}");
 }
+
+/// `stapes speed` measures every arithmetic over the demo clip and refuses a
+/// measuring time that is not one.
+#[test]
+fn speed_measures_every_arithmetic() {
+    let c = stapes_core::presets::TINY16K_10;
+    let speeds = stapes_sim::speed::measure(&c, 0.05).unwrap();
+    assert_eq!(speeds.len(), 3);
+    for s in &speeds {
+        assert!(s.frames > 0 && s.micros_per_frame() > 0.0 && s.times_real_time() > 0.0);
+    }
+    assert_eq!(
+        stapes(&["speed", "--preset", "tiny16k-10", "--seconds", "0.05"]).unwrap(),
+        Outcome::Success
+    );
+    let err = stapes(&["speed", "--seconds", "0"])
+        .unwrap_err()
+        .to_string();
+    assert!(err.contains("--seconds"), "{err}");
+}

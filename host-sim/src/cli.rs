@@ -30,6 +30,19 @@ pub enum Command {
     Demo(DemoArgs),
     /// Predict a front end's flash and RAM on a board before building anything.
     Budget(BudgetArgs),
+    /// Measure the core's speed on this machine (frames per second per arithmetic, demo clip).
+    Speed(SpeedArgs),
+}
+
+/// `stapes speed`.
+#[derive(Args, Debug)]
+pub struct SpeedArgs {
+    /// The configuration.
+    #[command(flatten)]
+    pub config: ConfigArgs,
+    /// Wall time to spend on each arithmetic, seconds.
+    #[arg(long, default_value_t = 2.0)]
+    pub seconds: f64,
 }
 
 /// `stapes budget`.

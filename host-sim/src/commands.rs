@@ -37,6 +37,18 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Check(a) => check_command(&a),
         Command::Features(a) => features(&a),
         Command::Demo(a) => demo(&a),
+        Command::Speed(a) => {
+            let named = a.config.resolve()?;
+            if !(a.seconds.is_finite() && a.seconds > 0.0 && a.seconds <= 600.0) {
+                anyhow::bail!(
+                    "--seconds {} is not a measuring time: give a number of seconds between 0 and 600",
+                    a.seconds
+                );
+            }
+            let speeds = crate::speed::measure(&named.config, a.seconds)?;
+            crate::say_text!(crate::speed::report(&named.name, &speeds));
+            Ok(Outcome::Success)
+        }
         Command::Budget(a) => {
             let named = a.config.resolve()?;
             crate::say_text!(crate::budget::report(

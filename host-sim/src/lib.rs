@@ -37,6 +37,7 @@ pub mod plots;
 pub mod predict;
 pub mod reference;
 pub mod run;
+pub mod speed;
 pub mod sweep;
 pub mod synth;
 pub mod wav;
