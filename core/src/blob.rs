@@ -137,6 +137,7 @@ impl BlobWeight for i16 {
 /// Why a blob was rejected.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum BlobError {
     /// Fewer bytes than a header.
     TooShort {
@@ -263,6 +264,8 @@ impl fmt::Display for BlobError {
         }
     }
 }
+
+impl core::error::Error for BlobError {}
 
 fn le_u16(b: &[u8], at: usize) -> u16 {
     u16::from_le_bytes([b[at], b[at + 1]])

@@ -150,6 +150,7 @@ pub struct FeatureConfig {
 /// with the fix; the accessors give the pieces for programs.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum ConfigError {
     /// A float field is NaN or infinite.
     NotFinite {
@@ -310,6 +311,8 @@ impl fmt::Display for ConfigError {
         }
     }
 }
+
+impl core::error::Error for ConfigError {}
 
 fn prev_pow2(x: u32) -> u32 {
     if x == 0 {

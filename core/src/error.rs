@@ -8,6 +8,7 @@ use crate::table::TableError;
 /// Why a front end could not be built.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum FrontEndError {
     /// The configuration's sizes are impossible.
     Config(ConfigError),
@@ -66,6 +67,8 @@ impl fmt::Display for FrontEndError {
         }
     }
 }
+
+impl core::error::Error for FrontEndError {}
 
 /// Integer-only checks of the sizes a front end relies on, against its buffers.
 pub(crate) fn check_shape(

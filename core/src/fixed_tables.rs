@@ -79,6 +79,7 @@ pub struct FixedTables<'a> {
 /// Why fixed tables do not fit a configuration.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum FixedTableError {
     /// The Q15 view does not fit.
     Table(TableError),
@@ -140,6 +141,8 @@ impl fmt::Display for FixedTableError {
         }
     }
 }
+
+impl core::error::Error for FixedTableError {}
 
 impl FixedTables<'_> {
     /// Checks the tables against `config` (integer work only). A precision's

@@ -72,6 +72,7 @@ pub mod fixed_path;
 pub mod fixed_tables;
 pub mod float_path;
 pub mod frame;
+pub mod frame_window;
 pub mod framer;
 pub mod int_fft;
 pub mod int_log;
@@ -79,6 +80,7 @@ pub mod log;
 pub mod mel;
 pub mod presets;
 pub mod probe;
+pub mod quantise;
 pub mod sample;
 pub mod scale;
 pub mod spectrum_f32;
@@ -87,3 +89,15 @@ pub mod window;
 
 /// The `fixed` crate, whose types name the fixed path's Q formats.
 pub use fixed;
+
+// The small public API, at the crate root.
+pub use config::FeatureConfig;
+pub use error::FrontEndError;
+pub use fixed_path::FixedFrontEnd;
+pub use fixed_tables::FixedTables;
+pub use float_path::FloatFrontEnd;
+pub use frame::Frame;
+pub use frame_window::FrameWindow;
+pub use int_fft::{Fixed16, Fixed32};
+pub use quantise::{AffineQuantiser, CodeRange};
+pub use table::{FilterbankForm, TableView};

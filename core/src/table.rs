@@ -114,6 +114,7 @@ pub struct TableView<'a, W: WeightType> {
 /// Why a table does not fit a configuration.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum TableError {
     /// The table was generated for another configuration.
     FingerprintMismatch {
@@ -185,6 +186,8 @@ impl fmt::Display for TableError {
         }
     }
 }
+
+impl core::error::Error for TableError {}
 
 fn expect_len(part: &'static str, found: usize, expected: usize) -> Result<(), TableError> {
     if found == expected {

@@ -1,0 +1,162 @@
+//! Affine quantisation of the model's input: `q = clamp(round(x / S) + Z)`,
+//! with the scale `S` and zero point `Z` of the model's input tensor (the
+//! scheme of Jacob et al., "Quantization and Training of Neural Networks for
+//! Efficient Integer-Arithmetic-Only Inference", CVPR 2018: `r = S·(q − Z)`).
+//!
+//! Rounding: to the nearest integer, **ties away from zero** (2.5 → 3,
+//! −2.5 → −3), the rule of C's `round` that common inference runtimes use
+//! for their reference quantiser (common practice). The quotient `x / S` is
+//! one IEEE-754 division, the same on every target; the rounding is done in
+//! integers from it, exactly (no `+ 0.5` trick, which rounds 0.49999997 up).
+//! Values beyond the code range are clamped and counted; NaN is taken as 0
+//! and counted with them.
+//!
+//! ```
+//! use stapes_core::quantise::{AffineQuantiser, CodeRange};
+//! let q = AffineQuantiser::new(0.5, -3, CodeRange::Int8).unwrap();
+//! let mut out = [0i32; 5];
+//! let clamped = q.quantise(&[0.0, 1.25, -1.25, 100.0, 0.24], &mut out);
+//! assert_eq!(out, [-3, 0, -6, 127, -3]); // 1.25 / 0.5 = 2.5 → 3, then + (−3)
+//! assert_eq!(clamped, 1);
+//! ```
+
+/// The code range of the model's input tensor.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum CodeRange {
+    /// `i8`: −128 ..= 127.
+    Int8,
+    /// `u8`: 0 ..= 255.
+    Uint8,
+}
+
+impl CodeRange {
+    /// The smallest and largest code.
+    pub const fn limits(self) -> (i32, i32) {
+        match self {
+            CodeRange::Int8 => (-128, 127),
+            CodeRange::Uint8 => (0, 255),
+        }
+    }
+}
+
+/// Why a quantiser could not be built.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
+pub enum QuantiserError {
+    /// The scale is not a positive, finite, normal number.
+    Scale {
+        /// The scale given.
+        scale: f32,
+    },
+    /// The zero point lies outside the code range.
+    ZeroPoint {
+        /// The zero point given.
+        zero_point: i32,
+        /// The code range.
+        range: CodeRange,
+    },
+}
+
+impl core::fmt::Display for QuantiserError {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        match *self {
+            QuantiserError::Scale { scale } => write!(
+                f,
+                "quantiser scale {scale} is not a positive finite number: give the model input \
+                 tensor's scale (for example 0.1)"
+            ),
+            QuantiserError::ZeroPoint { zero_point, range } => {
+                let (lo, hi) = range.limits();
+                write!(
+                    f,
+                    "zero point {zero_point} lies outside the {range:?} codes {lo} ..= {hi}: give \
+                     the model input tensor's zero point"
+                )
+            }
+        }
+    }
+}
+
+impl core::error::Error for QuantiserError {}
+
+/// `q = clamp(round(x / scale) + zero_point)` into a [`CodeRange`].
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct AffineQuantiser {
+    scale: f32,
+    zero_point: i32,
+    range: CodeRange,
+}
+
+impl AffineQuantiser {
+    /// A quantiser for the model input's `scale` and `zero_point`.
+    pub fn new(scale: f32, zero_point: i32, range: CodeRange) -> Result<Self, QuantiserError> {
+        if !(scale.is_normal() && scale > 0.0) {
+            return Err(QuantiserError::Scale { scale });
+        }
+        let (lo, hi) = range.limits();
+        if !(lo..=hi).contains(&zero_point) {
+            return Err(QuantiserError::ZeroPoint { zero_point, range });
+        }
+        Ok(AffineQuantiser {
+            scale,
+            zero_point,
+            range,
+        })
+    }
+
+    /// The code for one value, and whether it was clamped (or NaN).
+    #[inline]
+    pub fn code(&self, x: f32) -> (i32, bool) {
+        let (lo, hi) = self.range.limits();
+        let v = x / self.scale;
+        if v.is_nan() {
+            return (self.zero_point, true);
+        }
+        // Beyond ±2^30 every code clamps; below it the integer steps are exact.
+        const LIMIT: f32 = 1_073_741_824.0;
+        if v >= LIMIT || v <= -LIMIT {
+            return (if v > 0.0 { hi } else { lo }, true);
+        }
+        let q = round_half_away(v) + self.zero_point;
+        if q < lo {
+            (lo, true)
+        } else if q > hi {
+            (hi, true)
+        } else {
+            (q, false)
+        }
+    }
+
+    /// Quantises `x` into `out` (the shorter length) and returns how many
+    /// values were clamped (NaN included).
+    #[inline]
+    pub fn quantise(&self, x: &[f32], out: &mut [i32]) -> usize {
+        let mut clamped = 0;
+        for (o, &v) in out.iter_mut().zip(x) {
+            let (q, c) = self.code(v);
+            *o = q;
+            clamped += c as usize;
+        }
+        clamped
+    }
+}
+
+/// `v` rounded to the nearest integer, ties away from zero, for
+/// `|v| < 2^30`: the truncation `t` is exact, and so is `v − t` (Sterbenz's
+/// lemma for `|v| ≥ 1`, since `t ≤ v < t + 1 ≤ 2t`; `v` itself below 1; and
+/// 0 from 2^23 on, where every float is an integer).
+#[inline]
+fn round_half_away(v: f32) -> i32 {
+    let t = v as i32; // towards zero
+    let frac = v - t as f32;
+    if frac >= 0.5 {
+        t + 1
+    } else if frac <= -0.5 {
+        t - 1
+    } else {
+        t
+    }
+}

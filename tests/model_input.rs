@@ -1,0 +1,126 @@
+//! The model's input: the frame window a keyword model reads and the affine
+//! int8/uint8 quantiser of its input tensor.
+
+use std::collections::VecDeque;
+
+use rand::Rng;
+use stapes_core::frame_window::FrameWindow;
+use stapes_core::quantise::{AffineQuantiser, CodeRange, QuantiserError};
+use stapes_tests::rng;
+
+/// The window equals a naive queue of the last F frames, in time order, at
+/// every push, for several shapes and strides; it is handed out exactly on
+/// pushes F, F + stride, F + 2·stride, …
+#[test]
+fn frame_window_is_the_last_frames_in_time_order() {
+    fn run<const F: usize, const C: usize>(stride: u32, pushes: usize, seed: u64) {
+        let mut r = rng(seed);
+        let mut w = FrameWindow::<i16, F, C>::new(stride);
+        let mut naive: VecDeque<Vec<i16>> = VecDeque::new();
+        for k in 1..=pushes {
+            let frame: Vec<i16> = (0..C).map(|_| r.random()).collect();
+            naive.push_back(frame.clone());
+            if naive.len() > F {
+                naive.pop_front();
+            }
+            let handed = w.push(&frame).map(<[i16]>::to_vec);
+            let expected: Vec<i16> = naive.iter().flatten().copied().collect();
+            let due = k >= F && (k - F) % stride.max(1) as usize == 0;
+            assert_eq!(handed.is_some(), due, "push {k}, F {F}, stride {stride}");
+            if let Some(h) = handed {
+                assert_eq!(h, expected, "push {k}");
+            }
+            assert_eq!(w.ready(), k >= F);
+            match w.window() {
+                Some(win) => assert_eq!(win, &expected[..], "push {k}"),
+                None => assert!(k < F),
+            }
+        }
+    }
+    run::<49, 10>(1, 200, 1);
+    run::<49, 10>(3, 200, 2);
+    run::<1, 4>(1, 10, 3);
+    run::<5, 1>(2, 40, 4);
+    run::<98, 40>(49, 500, 5);
+}
+
+/// A frame shorter than C is padded with zeros, a longer one truncated;
+/// reset forgets everything.
+#[test]
+fn frame_window_pads_truncates_and_resets() {
+    let mut w = FrameWindow::<f32, 2, 3>::new(1);
+    w.push(&[1.0]);
+    assert_eq!(
+        w.push(&[2.0, 2.0, 2.0, 9.0]),
+        Some(&[1.0, 0.0, 0.0, 2.0, 2.0, 2.0][..])
+    );
+    w.reset();
+    assert!(!w.ready());
+    assert_eq!(w.window(), None);
+    assert_eq!(w.frames_pushed(), 0);
+}
+
+/// Affine quantisation r = S·(q − Z) (Jacob et al., CVPR 2018): every code
+/// equals the exact rounded quotient (computed in f64, ties away from zero),
+/// clamped into the code range, for random values and scales, both ranges.
+#[test]
+fn quantiser_matches_the_exact_rounding() {
+    let mut r = rng(8);
+    for range in [CodeRange::Int8, CodeRange::Uint8] {
+        let (lo, hi) = range.limits();
+        for _ in 0..200 {
+            let scale: f32 = 10f32.powf(r.random_range(-3.0..1.0));
+            let zero_point = r.random_range(lo..=hi);
+            let q = AffineQuantiser::new(scale, zero_point, range).unwrap();
+            for _ in 0..200 {
+                let x: f32 = r.random_range(-300.0..300.0) * scale;
+                // The quotient as the core computes it (one f32 division),
+                // then rounded exactly in f64: ties away from zero.
+                let v = (x / scale) as f64;
+                let rounded = v.round() as i64 + zero_point as i64;
+                let expected = rounded.clamp(lo as i64, hi as i64) as i32;
+                let (code, clamped) = q.code(x);
+                assert_eq!(code, expected, "x {x} scale {scale} zero {zero_point}");
+                assert_eq!(clamped, rounded != expected as i64);
+            }
+        }
+    }
+}
+
+/// Ties go away from zero; values just below a tie go down (no `+ 0.5`
+/// shortcut, which rounds 0.49999997 up); NaN and infinities clamp and count.
+#[test]
+fn quantiser_rounds_ties_away_from_zero_and_counts_saturation() {
+    let q = AffineQuantiser::new(1.0, 0, CodeRange::Int8).unwrap();
+    let below_half = f32::from_bits(0.5f32.to_bits() - 1);
+    let cases = [
+        (0.5, 1),
+        (-0.5, -1),
+        (1.5, 2),
+        (2.5, 3),
+        (-2.5, -3),
+        (below_half, 0),
+        (-below_half, 0),
+        (126.5, 127),
+        (-127.5, -128),
+    ];
+    for (x, want) in cases {
+        assert_eq!(q.code(x), (want, false), "{x}");
+    }
+    let mut out = [0i32; 5];
+    let n = q.quantise(&[127.5, -128.5, f32::NAN, f32::INFINITY, 3e38], &mut out);
+    assert_eq!(out, [127, -128, 0, 127, 127]);
+    assert_eq!(n, 5);
+}
+
+#[test]
+fn quantiser_refuses_impossible_parameters() {
+    for scale in [0.0, -1.0, f32::NAN, f32::INFINITY, 1e-40] {
+        assert!(matches!(
+            AffineQuantiser::new(scale, 0, CodeRange::Int8),
+            Err(QuantiserError::Scale { .. })
+        ));
+    }
+    let e = AffineQuantiser::new(0.1, 300, CodeRange::Uint8).unwrap_err();
+    assert!(e.to_string().contains("zero point 300"), "{e}");
+}
