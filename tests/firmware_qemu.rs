@@ -469,7 +469,7 @@ fn check_budget(figures: &[Figure]) {
         let instr_err = (instr - f.instructions as f64).abs() / f.instructions as f64;
         let _ = writeln!(
             report,
-            "{} {} {} {}: flash predicted {} measured {} ({:.1} %), RAM predicted {} measured {} ({:.1} %), instructions predicted {:.0} measured {} ({:.1} %)",
+            "{} {} {} {}: flash predicted {} measured {} ({:.1} %), RAM predicted {} measured {} ({:.1} %), instructions predicted {:.0} measured {} ({:.1} %); state predicted {} B, measured {} B",
             f.preset,
             f.arith,
             f.core,
@@ -482,7 +482,9 @@ fn check_budget(figures: &[Figure]) {
             100.0 * ram_err,
             instr,
             f.instructions,
-            100.0 * instr_err
+            100.0 * instr_err,
+            b.state,
+            f.state
         );
     }
     println!("{report}");

@@ -1,25 +1,22 @@
-//! What each subcommand does.
+//! What each subcommand does: the dispatch, and `tables`, `check`,
+//! `features`, `budget` and `speed`. Where tables come from is
+//! [`crate::table_source`]; the demo is [`crate::demo`].
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
-use anyhow::{Context, Result, anyhow};
-use stapes_core::blob::TableBlob;
+use anyhow::{Result, anyhow};
 use stapes_core::config::{FeatureConfig, LogKind};
-use stapes_core::fixed_tables::FixedTables;
 use stapes_core::presets;
-use stapes_core::table::{FilterbankForm, TableView};
+use stapes_core::table::FilterbankForm;
 
-use crate::check::{Arith, CoreTables, check, check_f32, report, run_core};
-use crate::cli::{
-    CheckArgs, Cli, Command, DemoArgs, FeaturesArgs, FormChoice, InputArgs, TablesArgs,
-};
-use crate::config_source::{ConfigArgs, NamedConfig};
+use crate::check::{Arith, CoreTables, check, report, run_core};
+use crate::cli::{CheckArgs, Cli, Command, FeaturesArgs, FormChoice, InputArgs, TablesArgs};
 use crate::emit::{BlobContents, size_report, write_all};
 use crate::generate::GeneratedTables;
-use crate::plots::{self, HeatMap};
 use crate::run::Samples;
 use crate::synth::{DEMO_SEED, demo_clip};
-use crate::wav::{read_wav_for, write_wav_i16};
+pub use crate::table_source::LoadedTables;
+use crate::wav::read_wav_for;
 
 /// How a command ended when it did not fail outright.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -36,7 +33,7 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Tables(a) => tables(&a),
         Command::Check(a) => check_command(&a),
         Command::Features(a) => features(&a),
-        Command::Demo(a) => demo(&a),
+        Command::Demo(a) => crate::demo::demo(&a),
         Command::Speed(a) => {
             let named = a.config.resolve()?;
             if !(a.seconds.is_finite() && a.seconds > 0.0 && a.seconds <= 600.0) {
@@ -67,133 +64,14 @@ pub fn run(cli: Cli) -> Result<Outcome> {
     }
 }
 
-fn form(choice: FormChoice) -> FilterbankForm {
+pub(crate) fn form(choice: FormChoice) -> FilterbankForm {
     match choice {
         FormChoice::Sparse => FilterbankForm::Sparse,
         FormChoice::Compact => FilterbankForm::Compact,
     }
 }
 
-/// Tables for a command: generated from a configuration, or read from a blob.
-pub enum LoadedTables {
-    /// Generated in memory.
-    Generated(String, Box<GeneratedTables>),
-    /// A blob's bytes in 4-byte-aligned storage, and its length.
-    Blob(String, Vec<u32>, usize),
-}
-
-impl LoadedTables {
-    /// Resolves the configuration options (or `--table-blob`).
-    pub fn load(config: &ConfigArgs, input: &InputArgs) -> Result<LoadedTables> {
-        match &input.table_blob {
-            Some(path) => {
-                let bytes = std::fs::read(path)
-                    .with_context(|| format!("cannot read table blob {}", path.display()))?;
-                let mut words = vec![0u32; bytes.len().div_ceil(4)];
-                bytemuck::cast_slice_mut::<u32, u8>(&mut words)[..bytes.len()]
-                    .copy_from_slice(&bytes);
-                let loaded = LoadedTables::Blob(path.display().to_string(), words, bytes.len());
-                let cfg = loaded.config()?;
-                cfg.validate().map_err(|e| {
-                    anyhow!(
-                        "table blob {}: its configuration is invalid: {e}",
-                        path.display()
-                    )
-                })?;
-                Ok(loaded)
-            }
-            None => {
-                let NamedConfig { name, config } = config.resolve()?;
-                Ok(LoadedTables::Generated(
-                    name,
-                    Box::new(GeneratedTables::new(&config)),
-                ))
-            }
-        }
-    }
-
-    fn blob(&self) -> Result<Option<TableBlob<'_>>> {
-        match self {
-            LoadedTables::Blob(path, words, len) => {
-                let bytes = &bytemuck::cast_slice::<u32, u8>(words)[..*len];
-                TableBlob::parse(bytes)
-                    .map(Some)
-                    .map_err(|e| anyhow!("{path}: {e}"))
-            }
-            LoadedTables::Generated(..) => Ok(None),
-        }
-    }
-
-    /// Name for reports.
-    pub fn name(&self) -> &str {
-        match self {
-            LoadedTables::Generated(n, _) | LoadedTables::Blob(n, ..) => n,
-        }
-    }
-
-    /// The configuration.
-    pub fn config(&self) -> Result<FeatureConfig> {
-        match self {
-            LoadedTables::Generated(_, t) => Ok(t.config),
-            LoadedTables::Blob(..) => Ok(self.blob()?.expect("blob").config()),
-        }
-    }
-
-    /// An `f32` view in `form`.
-    pub fn view_f32(&self, form: FilterbankForm) -> Result<TableView<'_, f32>> {
-        match self {
-            LoadedTables::Generated(name, t) => {
-                if form == FilterbankForm::Compact && !t.has_compact() {
-                    return Err(anyhow!(
-                        "{name} has no compact filterbank (rounded-centre-bin triangles): use --form sparse"
-                    ));
-                }
-                Ok(t.view_f32(form))
-            }
-            LoadedTables::Blob(path, ..) => self
-                .blob()?
-                .expect("blob")
-                .view::<f32>(form)
-                .map_err(|e| anyhow!("{path}: {e}")),
-        }
-    }
-}
-
-impl LoadedTables {
-    /// Fixed-point tables in `form`.
-    pub fn fixed_tables(&self, form: FilterbankForm) -> Result<FixedTables<'_>> {
-        match self {
-            LoadedTables::Generated(name, t) => {
-                if form == FilterbankForm::Compact && !t.has_compact() {
-                    return Err(anyhow!(
-                        "{name} has no compact filterbank (rounded-centre-bin triangles): use --form sparse"
-                    ));
-                }
-                t.fixed_tables(form).ok_or_else(|| {
-                    anyhow!(
-                        "{name}: the fixed path cannot represent floor_db = {} (its output spans +-128 dB or +-128 ln units); raise floor_db",
-                        t.config.floor_db
-                    )
-                })
-            }
-            LoadedTables::Blob(path, ..) => self
-                .blob()?
-                .expect("blob")
-                .fixed_tables(form)
-                .map_err(|e| anyhow!("{path}: {e}")),
-        }
-    }
-
-    /// The tables `arith` reads, in `form`.
-    pub fn core_tables(&self, arith: Arith, form: FilterbankForm) -> Result<CoreTables<'_>> {
-        Ok(match arith {
-            Arith::F32 => CoreTables::Float(self.view_f32(form)?),
-            Arith::Fixed16 | Arith::Fixed32 => CoreTables::Fixed(self.fixed_tables(form)?),
-        })
-    }
-}
-
-fn band_centres(config: &FeatureConfig) -> Vec<f64> {
+pub(crate) fn band_centres(config: &FeatureConfig) -> Vec<f64> {
     crate::design::design(config).centres_hz
 }
 
@@ -465,195 +343,4 @@ impl InputReport {
         }
         out
     }
-}
-
-fn demo(a: &DemoArgs) -> Result<Outcome> {
-    let name = presets::DEFAULT_NAME;
-    let config = presets::SPEECH16K_40;
-    let dir = &a.out_dir;
-    let mut wrote: Vec<(PathBuf, &str)> = Vec::new();
-
-    let clip = demo_clip(config.sample_rate_hz, DEMO_SEED);
-    let wav = dir.join("demo-clip.wav");
-    write_wav_i16(&wav, clip.sample_rate_hz, &clip.samples)?;
-    wrote.push((
-        wav.clone(),
-        "the synthesised clip: valve commands over pump noise and mains hum",
-    ));
-    crate::say!(
-        "demo: irrigation valve node, {:.1} s clip at {} Hz; words:",
-        clip.samples.len() as f64 / clip.sample_rate_hz as f64,
-        clip.sample_rate_hz
-    );
-    for w in &clip.words {
-        crate::say!(
-            "  {:<7} {:.2}-{:.2} s, peak {:.0} dBFS",
-            w.word,
-            w.start_s,
-            w.end_s,
-            w.peak_dbfs
-        );
-    }
-
-    let table_dir = dir.join("tables");
-    let generated = GeneratedTables::new(&config);
-    let written = write_all(
-        &generated,
-        name,
-        &table_dir,
-        &format!("stapes tables --preset {name}"),
-        BlobContents::ALL,
-    )?;
-    crate::say_text!(size_report(&generated, name, Some(written.blob_bytes)));
-    wrote.push((written.rust.clone(), "tables as Rust source"));
-    wrote.push((written.header.clone(), "tables as a C header"));
-    wrote.push((
-        written.blob.clone(),
-        "tables as a checked blob (the core below reads this one)",
-    ));
-
-    // The core reads the blob just written, and the WAV just written, as a user would.
-    let inputs = InputArgs {
-        channel: None,
-        chunk_samples: 97,
-        form: FormChoice::Sparse,
-        table_blob: Some(written.blob.clone()),
-    };
-    let loaded = LoadedTables::load(&ConfigArgs::default(), &inputs)?;
-    let samples = read_wav_for(&wav, None, config.sample_rate_hz)?;
-    let view = loaded.view_f32(FilterbankForm::Sparse)?;
-    crate::say!(
-        "check: core (f32, sparse table from the blob, fed 97 samples per call) against the f64 reference"
-    );
-    let run = check_f32(&config, view, &samples, inputs.chunk_samples)?;
-    let centres = band_centres(&config);
-    crate::say_text!(report(&run, &centres, false));
-    // The fixed-point cores, from the same blob, for boards without an FPU.
-    let mut all_passed = run.passed();
-    for arith in [Arith::Fixed32, Arith::Fixed16] {
-        let fixed = check(
-            arith,
-            &config,
-            loaded.core_tables(arith, FilterbankForm::Sparse)?,
-            &samples,
-            inputs.chunk_samples,
-        )?;
-        for (t, c) in &fixed.comparisons {
-            let pass = c.overall.max <= t.max_error_db;
-            crate::say!(
-                "{} within {} dB: max {:.2e} dB, mean {:.2e} dB; tolerance max <= {} dB: {}",
-                arith.name(),
-                t.range_db,
-                c.overall.max,
-                c.overall.mean,
-                t.max_error_db,
-                if pass { "PASS" } else { "FAIL" }
-            );
-        }
-        all_passed &= fixed.passed();
-    }
-
-    let npy = dir.join("features.npy");
-    crate::npy::write_f32(
-        &npy,
-        run.core.len(),
-        config.bands as usize,
-        run.core.iter().flatten().copied(),
-    )?;
-    wrote.push((
-        npy,
-        "the core's log-mel frames, float32 [frames x bands], dB",
-    ));
-
-    let hop_s = config.hop_samples as f64 / config.sample_rate_hz as f64;
-    let core_f64: Vec<Vec<f64>> = run
-        .core
-        .iter()
-        .map(|r| r.iter().map(|&v| v as f64).collect())
-        .collect();
-    let top = run
-        .reference
-        .iter()
-        .flatten()
-        .copied()
-        .fold(f64::NEG_INFINITY, f64::max)
-        .ceil();
-    let range = (top - 80.0, top);
-    let png = dir.join("log-mel-core.png");
-    plots::heat_map(
-        &png,
-        &HeatMap {
-            title: "log-mel, stapes core (f32)",
-            values: &core_f64,
-            hop_s,
-            centres_hz: &centres,
-            range,
-            unit: "dB",
-        },
-    )?;
-    wrote.push((png, "core log-mel spectrogram"));
-    let png = dir.join("log-mel-reference.png");
-    plots::heat_map(
-        &png,
-        &HeatMap {
-            title: "log-mel, f64 reference",
-            values: &run.reference,
-            hop_s,
-            centres_hz: &centres,
-            range,
-            unit: "dB",
-        },
-    )?;
-    wrote.push((png, "reference log-mel spectrogram"));
-    let emax = run.primary().overall.max.max(1e-9);
-    let png = dir.join("log-mel-error.png");
-    plots::heat_map(
-        &png,
-        &HeatMap {
-            title: "|core - reference| (grey: more than 60 dB below the frame's loudest band)",
-            values: &run.primary().error_map,
-            hop_s,
-            centres_hz: &centres,
-            range: (0.0, emax),
-            unit: "dB",
-        },
-    )?;
-    wrote.push((png, "error between them"));
-    let bin_hz = config.sample_rate_hz as f64 / config.fft_points as f64;
-    let mut offset = 0;
-    let triangles: Vec<Vec<(f64, f64)>> = generated
-        .spans
-        .iter()
-        .map(|&[first, count]| {
-            let (first, count) = (first as usize, count as usize);
-            let mut pts = vec![((first as f64 - 1.0).max(0.0) * bin_hz, 0.0)];
-            pts.extend((0..count).map(|j| {
-                (
-                    (first + j) as f64 * bin_hz,
-                    generated.sparse_f32[offset + j] as f64,
-                )
-            }));
-            pts.push(((first + count) as f64 * bin_hz, 0.0));
-            offset += count;
-            pts
-        })
-        .collect();
-    let png = dir.join("filterbank.png");
-    plots::filterbank(
-        &png,
-        "speech16k-40 filterbank (f32 table weights at each FFT bin)",
-        &triangles,
-        config.sample_rate_hz as f64 / 2.0,
-    )?;
-    wrote.push((png, "the filterbank's triangles"));
-
-    crate::say!("wrote:");
-    for (path, what) in &wrote {
-        crate::say!("  {:<40} {what}", path.display());
-    }
-    Ok(if all_passed {
-        Outcome::Success
-    } else {
-        Outcome::CheckFailed
-    })
 }
