@@ -55,7 +55,7 @@ use crate::fixed_tables::FixedTables;
 use crate::frame::Frame;
 use crate::framer::Framer;
 use crate::int_fft::{BfpSample, Precision, real_fft};
-use crate::int_log::{log2_operand, log2_q16_of_operand};
+use crate::int_log::{EMPTY_ENERGY, energy_word, log2_q16_of_word};
 use crate::probe::{Stage, StageProbe};
 use crate::table::Filterbank;
 
@@ -478,27 +478,43 @@ fn compact_energies<D: FrameData>(
 /// plus the band's gain, at or above `floor` and within `i16`.
 ///
 /// `k_log` is one of [`log2_to_output_q16`](crate::fixed_tables::log2_to_output_q16)'s
-/// values, within `[2^15, 2^20]` (the table check refuses others), so a
-/// log2 clamped to ±2^26 (1024 octaves, far beyond any energy) changes no
-/// output (either side already saturates) and every sum fits `i32`.
+/// values, within `[2^15, 2^20]` (the table check refuses others); an
+/// [`energy_word`]'s exponent is within ±511 octaves (beyond which every
+/// output saturates either way), so its log2 stays below 2^26 in Q16 and
+/// every sum fits `i32`.
 struct LogLevels<'t> {
-    exponent: i32,
     k_log: i32,
     gains: Option<&'t [i16]>,
     floor: i16,
 }
 
 impl LogLevels<'_> {
+    /// Every band's level from its energy word. Out of line, one loop per
+    /// case (with or without gains), so the loop keeps its values in
+    /// registers.
+    #[inline(never)]
+    fn levels(&self, words: &[i32], out: &mut [I8F8]) {
+        match self.gains {
+            None => {
+                for (o, &word) in out.iter_mut().zip(words) {
+                    *o = self.level(word, 0);
+                }
+            }
+            Some(gains) => {
+                for ((o, &word), &gain) in out.iter_mut().zip(words).zip(gains) {
+                    *o = self.level(word, gain);
+                }
+            }
+        }
+    }
+
     #[inline(always)]
-    fn level(&self, band: usize, energy: u64) -> I8F8 {
-        const LOG2_LIMIT: i32 = 1 << 26;
-        let Some(operand) = log2_operand(energy) else {
+    fn level(&self, word: i32, gain: i16) -> I8F8 {
+        if word == EMPTY_ENERGY {
             return I8F8::from_bits(self.floor);
-        };
-        let gain = self.gains.map_or(0, |g| g[band]);
-        // |log2| < 2^22 and |exponent| ≤ 2^14: the sum fits i32.
-        let log2 =
-            (log2_q16_of_operand(operand) + (self.exponent << 16)).clamp(-LOG2_LIMIT, LOG2_LIMIT);
+        }
+        // The word's exponent is within ±511, so |log2| < 2^26 in Q16.
+        let log2 = log2_q16_of_word(word);
         // Q16 · Q16 → Q32 output units; to 1/256 units with rounding:
         // |units| ≤ 2^26 · 2^20 / 2^24 = 2^22.
         let units = ((log2 as i64 * self.k_log as i64 + (1 << 23)) >> 24) as i32;
@@ -950,6 +966,8 @@ pub struct FixedFrontEnd<
     window: &'t [P::WindowCoef],
     framer: Framer<P::Data, i16, FFT, OVERLAP>,
     frame_start: IntConditioner,
+    /// The filterbank's output: one [`energy_word`] per band.
+    energies: [i32; BANDS],
     out: [I8F8; BANDS],
     fraction_bits: u32,
     spectrum_shift: u32,
@@ -1208,6 +1226,7 @@ where
             window: P::window(&tables),
             framer: Framer::new(config.window_samples as usize, config.hop_samples as usize),
             frame_start: conditioner,
+            energies: [EMPTY_ENERGY; BANDS],
             out: [I8F8::ZERO; BANDS],
             fraction_bits: if conditioner.active() {
                 CONDITIONING_FRACTION_BITS
@@ -1573,15 +1592,14 @@ where
             - 15;
 
         let levels = LogLevels {
-            exponent: energy_exponent,
             k_log: self.tables.params.log2_to_output.to_bits(),
             gains: self.tables.table.band_gains,
             floor: floor.to_bits(),
         };
-        let out = &mut self.out[..bands];
-        // Each band's log is taken as soon as its energy is summed (so no
-        // energies are stored: 8 bytes per band of RAM saved).
-        let emit = |b: usize, e: u64| out[b] = levels.level(b, e);
+        // The filterbank: each band's energy as one 32-bit word (mantissa and
+        // exponent, the frame's exponent included), for the stages after it.
+        let energies = &mut self.energies[..bands];
+        let emit = |b: usize, e: u64| energies[b] = energy_word(e, energy_exponent);
         match self.tables.table.filterbank {
             Filterbank::Sparse { spans, weights } => {
                 sparse_energies::<P::Data>(spans, weights, buf, last, emit)
@@ -1592,6 +1610,8 @@ where
             } => compact_energies::<P::Data>(segment_starts, weights, buf, last, bands, emit),
         }
         probe.mark(Stage::Mel);
+        // The log, band by band.
+        levels.levels(&self.energies[..bands], &mut self.out[..bands]);
         <P::Data as FrameData>::restore_shared(&mut self.framer);
         probe.mark(Stage::Log);
     }

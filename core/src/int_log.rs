@@ -97,11 +97,49 @@ pub fn log2_operand(x: u64) -> Option<u32> {
 #[inline]
 pub fn log2_q16_of_operand(operand: u32) -> i32 {
     let int_part = (operand >> 22).wrapping_sub(1);
-    let bits = operand & ((1 << 22) - 1);
+    ((int_part as i32) << 16) + fraction_q16(operand)
+}
+
+/// `log2(1 + f/2^22)` in Q16 for the low 22 bits `f` of `bits`: the table
+/// step and its linear interpolation, rounded.
+#[inline(always)]
+fn fraction_q16(bits: u32) -> i32 {
+    let bits = bits & ((1 << 22) - 1);
     let index = ((bits >> INTERP_BITS) & ((1 << INDEX_BITS) - 1)) as usize;
     let interp = bits & ((1 << INTERP_BITS) - 1);
     let lo = LOG2_TABLE[index];
     let hi = LOG2_TABLE[index + 1];
-    let frac = lo + (((hi - lo) * interp + (1 << (INTERP_BITS - 1))) >> INTERP_BITS);
-    ((int_part as i32) << 16) + frac as i32
+    (lo + (((hi - lo) * interp + (1 << (INTERP_BITS - 1))) >> INTERP_BITS)) as i32
+}
+
+/// A band energy as the fixed filterbank hands it to the next stage:
+/// `x·2^exponent` as one word, `e·2^22 + f` for `x·2^exponent =
+/// 2^e·(1 + f/2^22)` (22 bits of mantissa below the leading one, the same
+/// bits [`log2_operand`] keeps), `e` clamped to ±511 (beyond 500 octaves
+/// every output saturates anyway), or [`EMPTY_ENERGY`] for `x = 0`.
+///
+/// ```
+/// use stapes_core::int_log::{EMPTY_ENERGY, energy_word, log2_q16_of_word, log2_q16};
+/// let w = energy_word(3 << 40, -50);
+/// assert_eq!(log2_q16_of_word(w), log2_q16(3).unwrap() - (10 << 16));
+/// assert_eq!(energy_word(0, 7), EMPTY_ENERGY);
+/// ```
+#[inline]
+pub fn energy_word(x: u64, exponent: i32) -> i32 {
+    match log2_operand(x) {
+        None => EMPTY_ENERGY,
+        Some(operand) => {
+            let e = ((operand >> 22) as i32 - 1 + exponent).clamp(-511, 511);
+            (e << 22) | (operand & ((1 << 22) - 1)) as i32
+        }
+    }
+}
+
+/// The word [`energy_word`] gives a zero energy.
+pub const EMPTY_ENERGY: i32 = i32::MIN;
+
+/// `log2` in Q16 of an [`energy_word`] (not [`EMPTY_ENERGY`]).
+#[inline]
+pub fn log2_q16_of_word(word: i32) -> i32 {
+    ((word >> 22) << 16) + fraction_q16(word as u32)
 }

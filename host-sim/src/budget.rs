@@ -136,8 +136,9 @@ pub fn predict(
             4 * (n + overlap + bands) + STATE_OVERHEAD_F32,
             MICROFFT_BYTES_PER_POINT_X10 * n / 10,
         ),
-        Arith::Fixed16 => (2 * (n + overlap + bands) + STATE_OVERHEAD_FIXED, 0),
-        Arith::Fixed32 => (4 * n + 2 * overlap + 2 * bands + STATE_OVERHEAD_FIXED, 0),
+        // Frame buffer, raw overlap, one energy word and one output per band.
+        Arith::Fixed16 => (2 * (n + overlap) + 6 * bands + STATE_OVERHEAD_FIXED, 0),
+        Arith::Fixed32 => (4 * n + 2 * overlap + 6 * bands + STATE_OVERHEAD_FIXED, 0),
     };
     Some(Budget {
         tables: table_bytes(&tables, arith, form),
