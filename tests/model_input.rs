@@ -124,3 +124,44 @@ fn quantiser_refuses_impossible_parameters() {
     let e = AffineQuantiser::new(0.1, 300, CodeRange::Uint8).unwrap_err();
     assert!(e.to_string().contains("zero point 300"), "{e}");
 }
+
+/// The stage chain on the f32 path: log then int8 quantisation, fed into
+/// the model's window, gives exactly the codes of quantising the plain
+/// front end's log-mel frames, window by window.
+#[test]
+fn log_then_quantise_then_window_equals_the_plain_front_end() {
+    use stapes_core::log::FloatLog;
+    use stapes_core::quantise::QuantiseStage;
+    use stapes_core::stage::Then;
+    use stapes_sim::generate::GeneratedTables;
+    use stapes_sim::run::HostFloatFrontEnd;
+    type Chain = Then<FloatLog, QuantiseStage<i8, 40>>;
+    let c = stapes_core::presets::SPEECH16K_40;
+    let t = GeneratedTables::new(&c);
+    let table = t.view_f32(stapes_core::table::FilterbankForm::Sparse);
+    // A log-mel input scale of 0.5 dB per code around -40 dB (illustrative).
+    let q = AffineQuantiser::new(0.5, 80, CodeRange::Int8).unwrap();
+    let stages: Chain = Then(FloatLog::for_config(&c), QuantiseStage::new(q).unwrap());
+    let mut chained = Box::new(
+        stapes_core::FloatFrontEnd::<4096, 4096, 40, Chain>::with_stages(c, table, stages).unwrap(),
+    );
+    let mut plain = Box::new(HostFloatFrontEnd::new(c, table).unwrap());
+    let clip = stapes_sim::synth::demo_clip(c.sample_rate_hz, 3).samples;
+    let mut window = FrameWindow::<i8, 49, 40>::new(1);
+    let mut expected = FrameWindow::<i8, 49, 40>::new(1);
+    let (mut rest_a, mut rest_b) = (&clip[..], &clip[..]);
+    let mut windows = 0;
+    while let Some(frame) = chained.next_frame(&mut rest_a) {
+        let codes = frame.bands.to_vec();
+        let logs = plain.next_frame(&mut rest_b).unwrap().bands.to_vec();
+        let mut want = [0i32; 40];
+        q.quantise(&logs, &mut want);
+        let want: Vec<i8> = want.iter().map(|&v| v as i8).collect();
+        assert_eq!(codes, want, "frame {}", frame.index);
+        let got = window.push(&codes).map(<[i8]>::to_vec);
+        let exp = expected.push(&want).map(<[i8]>::to_vec);
+        assert_eq!(got, exp);
+        windows += got.is_some() as usize;
+    }
+    assert!(windows > 300, "{windows} windows");
+}

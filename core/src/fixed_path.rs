@@ -47,16 +47,16 @@
 
 use core::marker::PhantomData;
 
-use fixed::types::I8F8;
-
 use crate::config::{FeatureConfig, SpectrumKind, WindowShape};
 use crate::error::FrontEndError;
 use crate::fixed_tables::FixedTables;
 use crate::frame::Frame;
 use crate::framer::Framer;
 use crate::int_fft::{BfpSample, Precision, real_fft};
-use crate::int_log::{EMPTY_ENERGY, energy_word, log2_q16_of_word};
+use crate::int_log::{EMPTY_ENERGY, energy_word};
+use crate::log::FixedLog;
 use crate::probe::{Stage, StageProbe};
+use crate::stage::FrameStage;
 use crate::table::Filterbank;
 
 /// Extra fraction bits of the conditioned stream.
@@ -470,56 +470,6 @@ fn compact_energies<D: FrameData>(
             emit(seg - 1, carry + falling);
         }
         carry = rising;
-    }
-}
-
-/// The log stage: a band's output in 1/256 units, the log of
-/// `energy · 2^exponent` scaled by `k_log` (Q16 log2 → Q32 output units),
-/// plus the band's gain, at or above `floor` and within `i16`.
-///
-/// `k_log` is one of [`log2_to_output_q16`](crate::fixed_tables::log2_to_output_q16)'s
-/// values, within `[2^15, 2^20]` (the table check refuses others); an
-/// [`energy_word`]'s exponent is within ±511 octaves (beyond which every
-/// output saturates either way), so its log2 stays below 2^26 in Q16 and
-/// every sum fits `i32`.
-struct LogLevels<'t> {
-    k_log: i32,
-    gains: Option<&'t [i16]>,
-    floor: i16,
-}
-
-impl LogLevels<'_> {
-    /// Every band's level from its energy word. Out of line, one loop per
-    /// case (with or without gains), so the loop keeps its values in
-    /// registers.
-    #[inline(never)]
-    fn levels(&self, words: &[i32], out: &mut [I8F8]) {
-        match self.gains {
-            None => {
-                for (o, &word) in out.iter_mut().zip(words) {
-                    *o = self.level(word, 0);
-                }
-            }
-            Some(gains) => {
-                for ((o, &word), &gain) in out.iter_mut().zip(words).zip(gains) {
-                    *o = self.level(word, gain);
-                }
-            }
-        }
-    }
-
-    #[inline(always)]
-    fn level(&self, word: i32, gain: i16) -> I8F8 {
-        if word == EMPTY_ENERGY {
-            return I8F8::from_bits(self.floor);
-        }
-        // The word's exponent is within ±511, so |log2| < 2^26 in Q16.
-        let log2 = log2_q16_of_word(word);
-        // Q16 · Q16 → Q32 output units; to 1/256 units with rounding:
-        // |units| ≤ 2^26 · 2^20 / 2^24 = 2^22.
-        let units = ((log2 as i64 * self.k_log as i64 + (1 << 23)) >> 24) as i32;
-        let level = (units + gain as i32).clamp(self.floor as i32, i16::MAX as i32);
-        I8F8::from_bits(level as i16)
     }
 }
 
@@ -956,6 +906,7 @@ pub struct FixedFrontEnd<
     const FFT: usize,
     const OVERLAP: usize,
     const BANDS: usize,
+    S = FixedLog<'t, BANDS>,
 > where
     P: TwiddlesFor,
     P::Data: FrameData,
@@ -968,7 +919,8 @@ pub struct FixedFrontEnd<
     frame_start: IntConditioner,
     /// The filterbank's output: one [`energy_word`] per band.
     energies: [i32; BANDS],
-    out: [I8F8; BANDS],
+    /// The stages after the filterbank.
+    stages: S,
     fraction_bits: u32,
     spectrum_shift: u32,
     /// `W(0)` and `W(1)` of the window's DFT in Q16 when the frame's offset is
@@ -1188,8 +1140,28 @@ where
     P: Precision + TwiddlesFor,
     P::Data: FrameData,
 {
-    /// A front end for `config` reading `tables`; integer checks only.
+    /// A front end for `config` reading `tables`, its frames the log-mel
+    /// levels (`I8F8`) the tables describe; integer checks only.
     pub fn new(config: FeatureConfig, tables: FixedTables<'t>) -> Result<Self, FrontEndError> {
+        Self::with_stages(config, tables, FixedLog::for_tables(&tables))
+    }
+}
+
+impl<'t, P, const FFT: usize, const OVERLAP: usize, const BANDS: usize, S>
+    FixedFrontEnd<'t, P, FFT, OVERLAP, BANDS, S>
+where
+    P: Precision + TwiddlesFor,
+    P::Data: FrameData,
+    S: FrameStage<i32>,
+{
+    /// A front end whose filterbank energies (one
+    /// [`energy_word`](crate::int_log::energy_word) per band) go through
+    /// `stages` (instead of the log alone); checks as [`FixedFrontEnd::new`].
+    pub fn with_stages(
+        config: FeatureConfig,
+        tables: FixedTables<'t>,
+        stages: S,
+    ) -> Result<Self, FrontEndError> {
         crate::error::check_shape(&config, FFT, OVERLAP, BANDS)?;
         tables.check(&config).map_err(FrontEndError::Fixed)?;
         tables
@@ -1227,7 +1199,7 @@ where
             framer: Framer::new(config.window_samples as usize, config.hop_samples as usize),
             frame_start: conditioner,
             energies: [EMPTY_ENERGY; BANDS],
-            out: [I8F8::ZERO; BANDS],
+            stages,
             fraction_bits: if conditioner.active() {
                 CONDITIONING_FRACTION_BITS
             } else {
@@ -1268,7 +1240,7 @@ where
 
     /// Consumes samples from the front of `input` until a frame completes and
     /// returns it, or `None` once `input` is empty.
-    pub fn next_frame(&mut self, input: &mut &[i16]) -> Option<Frame<'_, I8F8>> {
+    pub fn next_frame(&mut self, input: &mut &[i16]) -> Option<Frame<'_, S::Out>> {
         self.next_frame_probed(input, &mut ())
     }
 
@@ -1277,7 +1249,7 @@ where
         &mut self,
         input: &mut &[i16],
         probe: &mut Pr,
-    ) -> Option<Frame<'_, I8F8>> {
+    ) -> Option<Frame<'_, S::Out>> {
         if !self
             .framer
             .fill_from(input, <P::Data as FrameData>::from_raw)
@@ -1287,10 +1259,11 @@ where
         self.compute_frame(probe);
         let index = self.next_index;
         self.next_index += 1;
-        Some(Frame {
-            index,
-            bands: &self.out[..self.config.bands as usize],
-        })
+        let bands = self
+            .stages
+            .process(&mut self.energies[..self.config.bands as usize]);
+        probe.mark(Stage::Log);
+        Some(Frame { index, bands })
     }
 
     fn compute_frame<Pr: StageProbe>(&mut self, probe: &mut Pr) {
@@ -1298,7 +1271,6 @@ where
         let w = self.config.window_samples as usize;
         let hop = self.config.hop_samples as usize;
         let bands = self.config.bands as usize;
-        let floor = self.tables.params.floor;
         probe.start();
         <P::Data as FrameData>::save_shared(&mut self.framer);
         let buf = &mut self.framer.buffer_mut()[..n];
@@ -1427,10 +1399,10 @@ where
         let silent = mags == 0 && offset == 0;
 
         if silent {
-            // Digital silence: every band is exactly the floor.
-            self.out[..bands].fill(floor);
+            // Digital silence: no band has energy (its log is the floor).
+            self.energies[..bands].fill(EMPTY_ENERGY);
             <P::Data as FrameData>::restore_shared(&mut self.framer);
-            for stage in Stage::ALL {
+            for stage in [Stage::Window, Stage::Fft, Stage::Spectrum, Stage::Mel] {
                 probe.mark(stage);
             }
             return;
@@ -1591,11 +1563,6 @@ where
             + offset_bin_shift as i32
             - 15;
 
-        let levels = LogLevels {
-            k_log: self.tables.params.log2_to_output.to_bits(),
-            gains: self.tables.table.band_gains,
-            floor: floor.to_bits(),
-        };
         // The filterbank: each band's energy as one 32-bit word (mantissa and
         // exponent, the frame's exponent included), for the stages after it.
         let energies = &mut self.energies[..bands];
@@ -1609,11 +1576,8 @@ where
                 weights,
             } => compact_energies::<P::Data>(segment_starts, weights, buf, last, bands, emit),
         }
-        probe.mark(Stage::Mel);
-        // The log, band by band.
-        levels.levels(&self.energies[..bands], &mut self.out[..bands]);
         <P::Data as FrameData>::restore_shared(&mut self.framer);
-        probe.mark(Stage::Log);
+        probe.mark(Stage::Mel);
     }
 }
 

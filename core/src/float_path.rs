@@ -22,23 +22,33 @@ use crate::config::FeatureConfig;
 use crate::error::FrontEndError;
 use crate::frame::Frame;
 use crate::framer::Framer;
+use crate::log::FloatLog;
 use crate::probe::{Stage, StageProbe};
 use crate::sample::Sample;
+use crate::stage::FrameStage;
 use crate::table::TableView;
-use crate::{log, mel, spectrum_f32, window};
+use crate::{mel, spectrum_f32, window};
 
 /// Streaming `f32` front end with buffers sized at compile time: `FFT` is the
 /// FFT buffer (≥ `fft_points`), `OVERLAP` the carried samples
 /// (≥ `window_samples - hop_samples`), `BANDS` the output (≥ `bands`).
 /// A host tool may use larger capacities than the configuration needs.
+/// `S` is the chain of [stages](crate::stage) after the filterbank (which
+/// receives one linear energy per band): the log by default.
 #[derive(Clone, Debug)]
-pub struct FloatFrontEnd<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize> {
+pub struct FloatFrontEnd<
+    't,
+    const FFT: usize,
+    const OVERLAP: usize,
+    const BANDS: usize,
+    S = FloatLog,
+> {
     config: FeatureConfig,
     table: TableView<'t, f32>,
     conditioner: FloatConditioner,
     framer: Framer<f32, f32, FFT, OVERLAP>,
     energies: [f32; BANDS],
-    floor: f32,
+    stages: S,
     next_index: u64,
     non_finite: u64,
 }
@@ -53,6 +63,20 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
     /// It does not re-run [`FeatureConfig::validate`] (`f64` band placement):
     /// tables only come from validated configurations.
     pub fn new(config: FeatureConfig, table: TableView<'t, f32>) -> Result<Self, FrontEndError> {
+        Self::with_stages(config, table, FloatLog::for_config(&config))
+    }
+}
+
+impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize, S: FrameStage<f32>>
+    FloatFrontEnd<'t, FFT, OVERLAP, BANDS, S>
+{
+    /// A front end whose filterbank energies go through `stages` (instead
+    /// of the log alone); checks as [`FloatFrontEnd::new`].
+    pub fn with_stages(
+        config: FeatureConfig,
+        table: TableView<'t, f32>,
+        stages: S,
+    ) -> Result<Self, FrontEndError> {
         crate::error::check_shape(&config, FFT, OVERLAP, BANDS)?;
         if !spectrum_f32::fft_compiled(config.fft_points as usize) {
             return Err(FrontEndError::FftNotCompiled {
@@ -66,7 +90,7 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
             conditioner: FloatConditioner::new(config.dc_removal_pole, config.pre_emphasis),
             framer: Framer::new(config.window_samples as usize, config.hop_samples as usize),
             energies: [0.0; BANDS],
-            floor: log::floor_energy(config.floor_db),
+            stages,
             next_index: 0,
             non_finite: 0,
         })
@@ -81,6 +105,7 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
     pub fn reset(&mut self) {
         self.framer.reset();
         self.conditioner.reset();
+        self.stages.reset();
         self.next_index = 0;
         self.non_finite = 0;
     }
@@ -93,22 +118,22 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
     /// Consumes samples from the front of `input` until a frame completes, and
     /// returns it; returns `None` once `input` is empty without a new frame.
     /// Call it in a loop until `None` to drain a chunk.
-    pub fn next_frame<S: Sample>(&mut self, input: &mut &[S]) -> Option<Frame<'_, f32>> {
+    pub fn next_frame<X: Sample>(&mut self, input: &mut &[X]) -> Option<Frame<'_, S::Out>> {
         self.next_frame_probed(input, &mut ())
     }
 
     /// [`FloatFrontEnd::next_frame`] with a [`StageProbe`] told when each stage ends.
-    pub fn next_frame_probed<S: Sample, P: StageProbe>(
+    pub fn next_frame_probed<X: Sample, P: StageProbe>(
         &mut self,
-        input: &mut &[S],
+        input: &mut &[X],
         probe: &mut P,
-    ) -> Option<Frame<'_, f32>> {
+    ) -> Option<Frame<'_, S::Out>> {
         let conditioner = &mut self.conditioner;
         let non_finite = &mut self.non_finite;
         let complete = self
             .framer
-            .fill_block_from(input, |src: &[S], dst: &mut [f32]| {
-                *non_finite += S::to_unit_f32_slice(src, dst);
+            .fill_block_from(input, |src: &[X], dst: &mut [f32]| {
+                *non_finite += X::to_unit_f32_slice(src, dst);
                 conditioner.run_in_place(dst);
             });
         if !complete {
@@ -117,10 +142,11 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
         self.compute_frame(probe);
         let index = self.next_index;
         self.next_index += 1;
-        Some(Frame {
-            index,
-            bands: &self.energies[..self.config.bands as usize],
-        })
+        let bands = self
+            .stages
+            .process(&mut self.energies[..self.config.bands as usize]);
+        probe.mark(Stage::Log);
+        Some(Frame { index, bands })
     }
 
     fn compute_frame<P: StageProbe>(&mut self, probe: &mut P) {
@@ -149,10 +175,8 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize>
             if let Some(gains) = self.table.band_gains {
                 mel::apply_gains_f32(gains, out);
             }
-            probe.mark(Stage::Mel);
-            log::log_f32(self.config.log, self.floor, out);
         }
         self.framer.end_frame_unconverted();
-        probe.mark(Stage::Log);
+        probe.mark(Stage::Mel);
     }
 }

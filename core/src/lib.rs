@@ -84,6 +84,7 @@ pub mod quantise;
 pub mod sample;
 pub mod scale;
 pub mod spectrum_f32;
+pub mod stage;
 pub mod table;
 pub mod window;
 
@@ -99,5 +100,7 @@ pub use float_path::FloatFrontEnd;
 pub use frame::Frame;
 pub use frame_window::FrameWindow;
 pub use int_fft::{Fixed16, Fixed32};
-pub use quantise::{AffineQuantiser, CodeRange};
+pub use log::{FixedLog, FloatLog};
+pub use quantise::{AffineQuantiser, CodeRange, QuantiseStage};
+pub use stage::{FrameStage, Then};
 pub use table::{FilterbankForm, TableView};

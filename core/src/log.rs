@@ -24,7 +24,10 @@
 //! }
 //! ```
 
+use fixed::types::I8F8;
+
 use crate::config::LogKind;
+use crate::int_log::{EMPTY_ENERGY, log2_q16_of_word};
 
 /// The linear energy floor for a floor in dB (`10^(floor_db / 10)`).
 pub fn floor_energy(floor_db: f32) -> f32 {
@@ -91,17 +94,139 @@ pub fn ln_f32(x: f32) -> f32 {
 /// the bits: for floats of sign 0, integer order is float order.
 #[inline]
 pub fn log_f32(kind: LogKind, floor: f32, values: &mut [f32]) {
-    let coefficients = LogCoefficients::for_kind(kind);
+    log_in_place(&LogCoefficients::for_kind(kind), floor, values);
+}
+
+/// [`log_f32`] with the coefficients given.
+#[inline]
+pub fn log_in_place(coefficients: &LogCoefficients, floor: f32, values: &mut [f32]) {
     #[cfg(stapes_arm_fpu)]
     if !values.is_empty() && floor.to_bits() as i32 > 0 {
-        arm_fpu::log_floored(&coefficients, floor, values);
+        let p = values.as_mut_ptr();
+        // SAFETY: source and destination are the same `values.len()` floats;
+        // the kernel reads each before it writes it.
+        #[allow(unsafe_code)]
+        unsafe {
+            arm_fpu::log_floored(coefficients, floor, p, p, values.len())
+        };
         return;
     }
-    let floor_bits = floor.to_bits() as i32;
     for v in values.iter_mut() {
-        let bits = v.to_bits() as i32;
-        let e = if bits < floor_bits { floor_bits } else { bits };
-        *v = coefficients.log(f32::from_bits(e as u32));
+        *v = floored_log(coefficients, floor, *v);
+    }
+}
+
+/// The portable twin of the Cortex-M4F loop, one value.
+#[inline(always)]
+fn floored_log(coefficients: &LogCoefficients, floor: f32, v: f32) -> f32 {
+    let (bits, floor_bits) = (v.to_bits() as i32, floor.to_bits() as i32);
+    let e = if bits < floor_bits { floor_bits } else { bits };
+    coefficients.log(f32::from_bits(e as u32))
+}
+
+/// The log stage of the `f32` path: `k·ln(max(E, floor))` per band, in
+/// place (no buffer of its own).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct FloatLog {
+    coefficients: LogCoefficients,
+    floor: f32,
+}
+
+impl FloatLog {
+    /// The log a configuration asks for (its kind and its floor).
+    pub fn for_config(config: &crate::config::FeatureConfig) -> Self {
+        FloatLog {
+            coefficients: LogCoefficients::for_kind(config.log),
+            floor: floor_energy(config.floor_db),
+        }
+    }
+}
+
+impl crate::stage::FrameStage<f32> for FloatLog {
+    type Out = f32;
+
+    #[inline]
+    fn process<'a>(&'a mut self, input: &'a mut [f32]) -> &'a mut [f32] {
+        log_in_place(&self.coefficients, self.floor, input);
+        input
+    }
+}
+
+/// The log stage of the fixed path: each band's energy word
+/// ([`energy_word`](crate::int_log::energy_word)) to its level in 1/256 units (dB or
+/// natural-log units), `log2` scaled by the tables' `k_log` (Q16 → Q32
+/// output units, rounded to 1/256), plus the band's gain, at or above the
+/// floor and within `i16`.
+///
+/// `k_log` is one of [`log2_to_output_q16`](crate::fixed_tables::log2_to_output_q16)'s
+/// values, within `[2^15, 2^20]` (the table check refuses others); an
+/// energy word's exponent is within ±511 octaves (beyond which every output
+/// saturates either way), so its log2 stays below 2^26 in Q16 and every sum
+/// fits `i32`.
+#[derive(Clone, Debug)]
+pub struct FixedLog<'t, const BANDS: usize> {
+    k_log: i32,
+    gains: Option<&'t [i16]>,
+    floor: i16,
+    out: [I8F8; BANDS],
+}
+
+impl<'t, const BANDS: usize> FixedLog<'t, BANDS> {
+    /// The log the fixed tables describe (their log constant, floor and gains).
+    pub fn for_tables(tables: &crate::fixed_tables::FixedTables<'t>) -> Self {
+        FixedLog {
+            k_log: tables.params.log2_to_output.to_bits(),
+            gains: tables.table.band_gains,
+            floor: tables.params.floor.to_bits(),
+            out: [I8F8::ZERO; BANDS],
+        }
+    }
+}
+
+/// Every band's level (see [`FixedLog`]). Out of line and not generic over
+/// the band count (one copy, a loop the compiler does not unroll per
+/// preset), one loop per case (with or without gains), so that the loop
+/// keeps its values in registers.
+#[inline(never)]
+fn fixed_levels(k_log: i32, floor: i16, gains: Option<&[i16]>, words: &[i32], out: &mut [I8F8]) {
+    match gains {
+        None => {
+            for (o, &word) in out.iter_mut().zip(words) {
+                *o = fixed_level(k_log, floor, word, 0);
+            }
+        }
+        Some(gains) => {
+            for ((o, &word), &gain) in out.iter_mut().zip(words).zip(gains) {
+                *o = fixed_level(k_log, floor, word, gain);
+            }
+        }
+    }
+}
+
+/// One band's level (see [`FixedLog`]).
+#[inline(always)]
+fn fixed_level(k_log: i32, floor: i16, word: i32, gain: i16) -> I8F8 {
+    if word == EMPTY_ENERGY {
+        return I8F8::from_bits(floor);
+    }
+    // The word's exponent is within ±511, so |log2| < 2^26 in Q16.
+    let log2 = log2_q16_of_word(word);
+    // Q16 · Q16 → Q32 output units; to 1/256 units with rounding:
+    // |units| ≤ 2^26 · 2^20 / 2^24 = 2^22.
+    let units = ((log2 as i64 * k_log as i64 + (1 << 23)) >> 24) as i32;
+    let level = (units + gain as i32).clamp(floor as i32, i16::MAX as i32);
+    I8F8::from_bits(level as i16)
+}
+
+impl<const BANDS: usize> crate::stage::FrameStage<i32> for FixedLog<'_, BANDS> {
+    type Out = I8F8;
+
+    #[inline]
+    fn process<'a>(&'a mut self, input: &'a mut [i32]) -> &'a mut [I8F8] {
+        let n = input.len().min(BANDS);
+        let out = &mut self.out[..n];
+        fixed_levels(self.k_log, self.floor, self.gains, &input[..n], out);
+        out
     }
 }
 
@@ -110,17 +235,28 @@ pub fn log_f32(kind: LogKind, floor: f32, values: &mut [f32]) {
 mod arm_fpu {
     use super::{LogCoefficients, SQRT_HALF_BITS};
 
-    /// [`super::log_f32`]'s loop: the same operations in the same order.
+    /// [`super::floored_log`] over `n ≥ 1` values from `src` to `dst` (which
+    /// may be the same): the same operations in the same order.
+    ///
+    /// # Safety
+    /// `src` is valid for reading and `dst` for writing `n ≥ 1` floats; if
+    /// they overlap they are equal (each value is read before it is written).
     #[inline]
-    pub(super) fn log_floored(c: &LogCoefficients, floor: f32, values: &mut [f32]) {
-        // SAFETY: reads the six coefficients, reads and rewrites each of the
-        // `values.len() ≥ 1` values once; the FPU registers it uses are
+    pub(super) unsafe fn log_floored(
+        c: &LogCoefficients,
+        floor: f32,
+        src: *const f32,
+        dst: *mut f32,
+        n: usize,
+    ) {
+        // SAFETY: reads the six coefficients and, per the contract, `n`
+        // floats from `src` and `n` to `dst`; the FPU registers it uses are
         // declared clobbered.
         unsafe {
             core::arch::asm!(
                 "vldmia {pc}, {{s8-s13}}",
                 "2:",
-                "ldr {b}, [{p}]",
+                "ldr {b}, [{src}], #4",
                 "cmp {b}, {fl}",
                 "it lt",
                 "movlt {b}, {fl}",
@@ -142,14 +278,15 @@ mod arm_fpu {
                 "vmla.f32 s4, s0, s5",
                 "vmul.f32 s2, s2, s4",
                 "vmla.f32 s2, s1, s12",
-                "vstmia {p}!, {{s2}}",
+                "vstmia {dst}!, {{s2}}",
                 "subs {n}, {n}, #1",
                 "bne 2b",
                 pc = in(reg) c.0.as_ptr(),
                 fl = in(reg) floor.to_bits(),
                 half = in(reg) SQRT_HALF_BITS,
-                p = inout(reg) values.as_mut_ptr() => _,
-                n = inout(reg) values.len() => _,
+                src = inout(reg) src => _,
+                dst = inout(reg) dst => _,
+                n = inout(reg) n => _,
                 b = out(reg) _,
                 e = out(reg) _,
                 out("s0") _, out("s1") _, out("s2") _, out("s4") _, out("s5") _,

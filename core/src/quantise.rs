@@ -50,6 +50,13 @@ pub enum QuantiserError {
         /// The scale given.
         scale: f32,
     },
+    /// A stage's code type is not the quantiser's code range.
+    CodeType {
+        /// The quantiser's range.
+        quantiser: CodeRange,
+        /// The stage's code type's range.
+        stage: CodeRange,
+    },
     /// The zero point lies outside the code range.
     ZeroPoint {
         /// The zero point given.
@@ -66,6 +73,11 @@ impl core::fmt::Display for QuantiserError {
                 f,
                 "quantiser scale {scale} is not a positive finite number: give the model input \
                  tensor's scale (for example 0.1)"
+            ),
+            QuantiserError::CodeType { quantiser, stage } => write!(
+                f,
+                "the quantiser gives {quantiser:?} codes but the stage stores {stage:?}: use \
+                 QuantiseStage<i8, _> for Int8 and QuantiseStage<u8, _> for Uint8"
             ),
             QuantiserError::ZeroPoint { zero_point, range } => {
                 let (lo, hi) = range.limits();
@@ -158,5 +170,94 @@ fn round_half_away(v: f32) -> i32 {
         t - 1
     } else {
         t
+    }
+}
+
+/// A code type of the model's input tensor: `i8` or `u8`.
+pub trait Code: Copy + Default + sealed::Sealed {
+    /// Its code range.
+    const RANGE: CodeRange;
+    /// A code within [`Code::RANGE`].
+    fn from_code(q: i32) -> Self;
+}
+
+mod sealed {
+    pub trait Sealed {}
+    impl Sealed for i8 {}
+    impl Sealed for u8 {}
+}
+
+impl Code for i8 {
+    const RANGE: CodeRange = CodeRange::Int8;
+    #[inline(always)]
+    fn from_code(q: i32) -> i8 {
+        q as i8
+    }
+}
+
+impl Code for u8 {
+    const RANGE: CodeRange = CodeRange::Uint8;
+    #[inline(always)]
+    fn from_code(q: i32) -> u8 {
+        q as u8
+    }
+}
+
+/// The quantiser as a [stage](crate::stage) of the `f32` path: up to `C`
+/// values in, as many codes of type `T` out, clamped values counted.
+///
+/// ```
+/// use stapes_core::quantise::{AffineQuantiser, CodeRange, QuantiseStage};
+/// use stapes_core::stage::FrameStage;
+/// let q = AffineQuantiser::new(0.25, 10, CodeRange::Int8).unwrap();
+/// let mut stage = QuantiseStage::<i8, 4>::new(q).unwrap();
+/// assert_eq!(stage.process(&mut [0.0, 1.0, -100.0]), &[10, 14, -128]);
+/// assert_eq!(stage.clamped(), 1);
+/// ```
+#[derive(Clone, Debug)]
+pub struct QuantiseStage<T, const C: usize> {
+    quantiser: AffineQuantiser,
+    out: [T; C],
+    clamped: u64,
+}
+
+impl<T: Code, const C: usize> QuantiseStage<T, C> {
+    /// A stage for `quantiser`, whose code range must be `T`'s.
+    pub fn new(quantiser: AffineQuantiser) -> Result<Self, QuantiserError> {
+        if quantiser.range != T::RANGE {
+            return Err(QuantiserError::CodeType {
+                quantiser: quantiser.range,
+                stage: T::RANGE,
+            });
+        }
+        Ok(QuantiseStage {
+            quantiser,
+            out: [T::default(); C],
+            clamped: 0,
+        })
+    }
+
+    /// Values clamped (or NaN) since the start or the last reset.
+    pub fn clamped(&self) -> u64 {
+        self.clamped
+    }
+}
+
+impl<T: Code, const C: usize> crate::stage::FrameStage<f32> for QuantiseStage<T, C> {
+    type Out = T;
+
+    #[inline]
+    fn process<'a>(&'a mut self, input: &'a mut [f32]) -> &'a mut [T] {
+        let n = input.len().min(C);
+        for (o, &x) in self.out[..n].iter_mut().zip(&input[..n]) {
+            let (q, c) = self.quantiser.code(x);
+            *o = T::from_code(q);
+            self.clamped += c as u64;
+        }
+        &mut self.out[..n]
+    }
+
+    fn reset(&mut self) {
+        self.clamped = 0;
     }
 }
