@@ -28,6 +28,7 @@ pub mod commands;
 pub mod compare;
 pub mod config_source;
 pub mod corpus;
+pub mod dct;
 pub mod demo;
 pub mod design;
 pub mod emit;
