@@ -69,3 +69,17 @@ impl<In: Copy, A: FrameStage<In>, B: FrameStage<A::Out>> FrameStage<In> for Then
         self.1.reset();
     }
 }
+
+/// No stage: the values as they come (for example the filterbank's linear
+/// energies, when a model reads them, or a host tool wants them).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Unchanged;
+
+impl<T: Copy> FrameStage<T> for Unchanged {
+    type Out = T;
+
+    #[inline]
+    fn process<'a>(&'a mut self, input: &'a mut [T]) -> &'a mut [T] {
+        input
+    }
+}

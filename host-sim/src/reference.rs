@@ -149,6 +149,17 @@ impl Reference {
     /// row of `bands` log values per complete frame.
     pub fn run(&self, samples: &[f64]) -> Vec<Vec<f64>> {
         let c = &self.config;
+        let floor = 10f64.powf(c.floor_db as f64 / 10.0);
+        self.energies(samples)
+            .into_iter()
+            .map(|row| row.into_iter().map(|e| log_of(c.log, e, floor)).collect())
+            .collect()
+    }
+
+    /// The band energies (linear, the gains applied, no floor) of every
+    /// complete frame: what the filterbank hands the stages after it.
+    pub fn energies(&self, samples: &[f64]) -> Vec<Vec<f64>> {
+        let c = &self.config;
         let conditioned = self.condition(samples);
         let (w, hop, n) = (
             c.window_samples as usize,
@@ -156,7 +167,6 @@ impl Reference {
             c.fft_points as usize,
         );
         let bins = n / 2 + 1;
-        let floor = 10f64.powf(c.floor_db as f64 / 10.0);
         let mut frames = Vec::new();
         let mut buf = vec![Complex64::new(0.0, 0.0); n];
         let mut start = 0;
@@ -176,13 +186,7 @@ impl Reference {
             let row = self
                 .matrix
                 .chunks(bins)
-                .map(|weights| {
-                    log_of(
-                        c.log,
-                        weights.iter().zip(&spectrum).map(|(w, s)| w * s).sum(),
-                        floor,
-                    )
-                })
+                .map(|weights| weights.iter().zip(&spectrum).map(|(w, s)| w * s).sum())
                 .collect();
             frames.push(row);
             start += hop;
