@@ -165,3 +165,40 @@ fn log_then_quantise_then_window_equals_the_plain_front_end() {
     }
     assert!(windows > 300, "{windows} windows");
 }
+
+/// Per-band normalisation: as a stage, `(x − μ)/σ` exactly as f32 computes
+/// it; folded into the quantiser, every code equals the exact rounding (f64,
+/// ties away from zero) of `(x − μ_b)/(σ_b·S)` with the f32 product `σ_b·S`,
+/// plus the zero point, clamped. Impossible statistics are refused by band.
+#[test]
+fn normalisation_alone_and_folded_into_the_quantiser() {
+    use stapes_core::normalise::{BandStatistics, Normalise, NormalisedQuantise};
+    use stapes_core::stage::FrameStage;
+    let mut r = rng(12);
+    let mean: Vec<f32> = (0..40).map(|_| r.random_range(-80.0..0.0)).collect();
+    let deviation: Vec<f32> = (0..40).map(|_| r.random_range(0.5..20.0)).collect();
+    let stats = BandStatistics::new(&mean, &deviation).unwrap();
+    let q = AffineQuantiser::new(0.1, -5, CodeRange::Int8).unwrap();
+    let mut folded = NormalisedQuantise::<i8, 40>::new(stats, q).unwrap();
+    let mut alone = Normalise::new(stats);
+    for _ in 0..500 {
+        let x: Vec<f32> = (0..40).map(|_| r.random_range(-120.0..20.0)).collect();
+        let mut y = x.clone();
+        let normalised = alone.process(&mut y).to_vec();
+        for b in 0..40 {
+            assert_eq!(normalised[b], (x[b] - mean[b]) / deviation[b]);
+        }
+        let mut x2 = x.clone();
+        let codes = folded.process(&mut x2).to_vec();
+        for b in 0..40 {
+            let scale = deviation[b] * 0.1f32;
+            let v = ((x[b] - mean[b]) / scale) as f64;
+            let want = (v.round() as i64 - 5).clamp(-128, 127) as i8;
+            assert_eq!(codes[b], want, "band {b}");
+        }
+    }
+    let bad = [1.0f32, 0.0];
+    let e = BandStatistics::new(&[0.0, 0.0], &bad).unwrap_err();
+    assert!(e.to_string().contains("band 1"), "{e}");
+    assert!(BandStatistics::new(&[0.0], &[1.0, 1.0]).is_err());
+}

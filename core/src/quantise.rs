@@ -119,6 +119,21 @@ impl AffineQuantiser {
         })
     }
 
+    /// The scale `S`.
+    pub fn scale(&self) -> f32 {
+        self.scale
+    }
+
+    /// The zero point `Z`.
+    pub fn zero_point(&self) -> i32 {
+        self.zero_point
+    }
+
+    /// The code range.
+    pub fn range(&self) -> CodeRange {
+        self.range
+    }
+
     /// The code for one value, and whether it was clamped (or NaN).
     #[inline]
     pub fn code(&self, x: f32) -> (i32, bool) {
