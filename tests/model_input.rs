@@ -202,3 +202,90 @@ fn normalisation_alone_and_folded_into_the_quantiser() {
     assert!(e.to_string().contains("band 1"), "{e}");
     assert!(BandStatistics::new(&[0.0], &[1.0, 1.0]).is_err());
 }
+
+/// The fixed path's quantiser, integers only: for random scales and every
+/// 1/256-unit value of a wide range, its code equals the exact rounding (ties
+/// away from zero, in i128) of `x_raw·M / 2^k`, and differs from the ideal
+/// real quantiser `round(x / S)` nowhere on this data (M/2^k is within 2^-30
+/// of 1/(256·S)). As a stage after the fixed log, it gives the codes of its
+/// quantiser on each level.
+#[test]
+fn fixed_quantiser_is_the_exact_integer_rounding() {
+    use stapes_core::quantise::FixedQuantiser;
+    use stapes_sim::model_input::{fixed_quantiser, quantiser_parts};
+    let mut r = rng(21);
+    let mut differing = 0;
+    for _ in 0..300 {
+        let scale: f32 = 10f32.powf(r.random_range(-2.0..1.5));
+        let zero = r.random_range(-128..=127);
+        let (m, k) = quantiser_parts(scale).unwrap();
+        assert!(m > (1 << 29) || k == 62, "{m} {k}");
+        let q = fixed_quantiser(scale, zero, CodeRange::Int8).unwrap();
+        for _ in 0..200 {
+            let raw: i32 = r.random_range(-40_000..40_000);
+            let p = raw as i128 * m as i128;
+            let half = (1i128 << k) >> 1;
+            let mag = (p.abs() + half) >> k;
+            let exact = (p.signum() * mag + zero as i128).clamp(-128, 127) as i32;
+            assert_eq!(q.code(raw).0, exact, "raw {raw} scale {scale}");
+            let ideal = ((raw as f64 / 256.0) / scale as f64).round() as i64 + zero as i64;
+            differing += (ideal.clamp(-128, 127) as i32 != exact) as usize;
+        }
+    }
+    assert_eq!(differing, 0);
+    assert!(FixedQuantiser::from_parts(0, 3, 0, CodeRange::Int8).is_err());
+    assert!(quantiser_parts(0.0).is_err());
+}
+
+/// Per-band statistics from frames: population mean and deviation, a
+/// constant band's deviation 1.
+#[test]
+fn band_statistics_from_frames() {
+    use stapes_sim::model_input::band_statistics;
+    let frames = vec![vec![1.0, 5.0], vec![3.0, 5.0]];
+    let (mean, dev) = band_statistics(&frames).unwrap();
+    assert_eq!(mean, vec![2.0, 5.0]);
+    assert_eq!(dev, vec![1.0, 1.0]);
+    assert!(band_statistics(&[]).is_err());
+}
+
+/// The fixed chain: log then the integer quantiser, in the fixed16 front
+/// end, gives the quantiser's codes of the plain front end's levels.
+#[test]
+fn fixed_log_then_quantise_equals_the_plain_front_end() {
+    use stapes_core::FixedLog;
+    use stapes_core::int_fft::Fixed16;
+    use stapes_core::quantise::FixedQuantiseStage;
+    use stapes_core::stage::Then;
+    use stapes_sim::generate::GeneratedTables;
+    let c = stapes_core::presets::SPEECH16K_40;
+    let t = GeneratedTables::new(&c);
+    let fixed = t
+        .fixed_tables(stapes_core::table::FilterbankForm::Sparse)
+        .unwrap();
+    let q = stapes_sim::model_input::fixed_quantiser(0.5, 80, CodeRange::Int8).unwrap();
+    type Chain<'t> = Then<FixedLog<'t, 40>, FixedQuantiseStage<i8, 40>>;
+    let stages: Chain = Then(
+        FixedLog::for_tables(&fixed),
+        FixedQuantiseStage::new(q).unwrap(),
+    );
+    let mut chained = Box::new(
+        stapes_core::FixedFrontEnd::<Fixed16, 4096, 4096, 40, Chain>::with_stages(c, fixed, stages)
+            .unwrap(),
+    );
+    let mut plain =
+        Box::new(stapes_core::FixedFrontEnd::<Fixed16, 4096, 4096, 40>::new(c, fixed).unwrap());
+    let clip = stapes_sim::synth::demo_clip(c.sample_rate_hz, 9).samples;
+    let (mut a, mut b) = (&clip[..], &clip[..]);
+    let mut frames = 0;
+    while let Some(frame) = chained.next_frame(&mut a) {
+        let levels = plain.next_frame(&mut b).unwrap().bands.to_vec();
+        let want: Vec<i8> = levels
+            .iter()
+            .map(|l| q.code(l.to_bits() as i32).0 as i8)
+            .collect();
+        assert_eq!(frame.bands, &want[..], "frame {}", frame.index);
+        frames += 1;
+    }
+    assert!(frames > 300);
+}

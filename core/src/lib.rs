@@ -107,6 +107,6 @@ pub use log::{FixedLog, FloatLog};
 pub use mfcc::{DctTable, FixedMfcc, FloatMfcc};
 pub use normalise::{BandStatistics, Normalise, NormalisedQuantise};
 pub use pcen::{FloatPcen, PcenParams};
-pub use quantise::{AffineQuantiser, CodeRange, QuantiseStage};
+pub use quantise::{AffineQuantiser, CodeRange, FixedQuantiseStage, FixedQuantiser, QuantiseStage};
 pub use stage::{FrameStage, Then, Unchanged};
 pub use table::{FilterbankForm, TableView};

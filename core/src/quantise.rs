@@ -57,6 +57,13 @@ pub enum QuantiserError {
         /// The stage's code type's range.
         stage: CodeRange,
     },
+    /// A fixed quantiser's multiplier is not positive or its shift above 62.
+    Parts {
+        /// The multiplier given.
+        multiplier: i32,
+        /// The shift given.
+        shift: u32,
+    },
     /// The zero point lies outside the code range.
     ZeroPoint {
         /// The zero point given.
@@ -78,6 +85,11 @@ impl core::fmt::Display for QuantiserError {
                 f,
                 "the quantiser gives {quantiser:?} codes but the stage stores {stage:?}: use \
                  QuantiseStage<i8, _> for Int8 and QuantiseStage<u8, _> for Uint8"
+            ),
+            QuantiserError::Parts { multiplier, shift } => write!(
+                f,
+                "fixed quantiser multiplier {multiplier} and shift {shift}: the multiplier must \
+                 be at least 1 and the shift at most 62; derive both from the scale on the host"
             ),
             QuantiserError::ZeroPoint { zero_point, range } => {
                 let (lo, hi) = range.limits();
@@ -266,6 +278,149 @@ impl<T: Code, const C: usize> crate::stage::FrameStage<f32> for QuantiseStage<T,
         let n = input.len().min(C);
         for (o, &x) in self.out[..n].iter_mut().zip(&input[..n]) {
             let (q, c) = self.quantiser.code(x);
+            *o = T::from_code(q);
+            self.clamped += c as u64;
+        }
+        &mut self.out[..n]
+    }
+
+    fn reset(&mut self) {
+        self.clamped = 0;
+    }
+}
+
+/// The fixed path's affine quantiser, integers only: for a value `x_raw` in
+/// 1/256 units (the bits of an `I8F8` level or an `I24F8` coefficient),
+/// `q = clamp(round(x_raw·M / 2^k) + Z)`, ties away from zero, with the
+/// multiplier `M` and shift `k` the host derives from the model's scale
+/// (`M / 2^k ≈ 1 / (256·S)`, `M` below 2^31: a relative error under 2^-30;
+/// `stapes_sim::quantiser_parts`). The board needs no float.
+///
+/// ```
+/// use stapes_core::quantise::{CodeRange, FixedQuantiser};
+/// // S = 0.5 dB per code: M / 2^k = 1/128.
+/// let q = FixedQuantiser::from_parts(1, 7, 0, CodeRange::Int8).unwrap();
+/// assert_eq!(q.code(192), (2, false)); // 0.75 dB / 0.5 = 1.5 → 2
+/// assert_eq!(q.code(-192), (-2, false)); // ties away from zero
+/// assert_eq!(q.code(-40000), (-128, true));
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct FixedQuantiser {
+    multiplier: i32,
+    shift: u32,
+    zero_point: i32,
+    range: CodeRange,
+}
+
+impl FixedQuantiser {
+    /// A quantiser from its integer parts: `multiplier ≥ 1`, `shift ≤ 62`.
+    pub fn from_parts(
+        multiplier: i32,
+        shift: u32,
+        zero_point: i32,
+        range: CodeRange,
+    ) -> Result<Self, QuantiserError> {
+        if multiplier < 1 || shift > 62 {
+            return Err(QuantiserError::Parts { multiplier, shift });
+        }
+        let (lo, hi) = range.limits();
+        if !(lo..=hi).contains(&zero_point) {
+            return Err(QuantiserError::ZeroPoint { zero_point, range });
+        }
+        Ok(FixedQuantiser {
+            multiplier,
+            shift,
+            zero_point,
+            range,
+        })
+    }
+
+    /// The code range.
+    pub fn range(&self) -> CodeRange {
+        self.range
+    }
+
+    /// The code for a value in 1/256 units, and whether it was clamped.
+    #[inline]
+    pub fn code(&self, raw: i32) -> (i32, bool) {
+        let (lo, hi) = self.range.limits();
+        // |raw·M| < 2^62: exact in i64.
+        let p = raw as i64 * self.multiplier as i64;
+        let half = (1i64 << self.shift) >> 1;
+        let magnitude = (p.unsigned_abs() as i64 + half) >> self.shift;
+        let q = if p < 0 { -magnitude } else { magnitude } + self.zero_point as i64;
+        if q < lo as i64 {
+            (lo, true)
+        } else if q > hi as i64 {
+            (hi, true)
+        } else {
+            (q as i32, false)
+        }
+    }
+}
+
+/// A fixed-path value in 1/256 units.
+pub trait RawUnits: Copy {
+    /// The value's bits, in 1/256 units.
+    fn raw_units(self) -> i32;
+}
+
+impl RawUnits for fixed::types::I8F8 {
+    #[inline(always)]
+    fn raw_units(self) -> i32 {
+        self.to_bits() as i32
+    }
+}
+
+impl RawUnits for fixed::types::I24F8 {
+    #[inline(always)]
+    fn raw_units(self) -> i32 {
+        self.to_bits()
+    }
+}
+
+/// [`FixedQuantiser`] as a stage of the fixed path: up to `C` values in
+/// 1/256 units (after `FixedLog` or `FixedMfcc`) to codes of type `T`.
+#[derive(Clone, Debug)]
+pub struct FixedQuantiseStage<T, const C: usize> {
+    quantiser: FixedQuantiser,
+    out: [T; C],
+    clamped: u64,
+}
+
+impl<T: Code, const C: usize> FixedQuantiseStage<T, C> {
+    /// A stage for `quantiser`, whose code range must be `T`'s.
+    pub fn new(quantiser: FixedQuantiser) -> Result<Self, QuantiserError> {
+        if quantiser.range != T::RANGE {
+            return Err(QuantiserError::CodeType {
+                quantiser: quantiser.range,
+                stage: T::RANGE,
+            });
+        }
+        Ok(FixedQuantiseStage {
+            quantiser,
+            out: [T::default(); C],
+            clamped: 0,
+        })
+    }
+
+    /// Values clamped since the start or the last reset.
+    pub fn clamped(&self) -> u64 {
+        self.clamped
+    }
+}
+
+impl<In: RawUnits, T: Code, const C: usize> crate::stage::FrameStage<In>
+    for FixedQuantiseStage<T, C>
+{
+    type Out = T;
+
+    #[inline]
+    fn process<'a>(&'a mut self, input: &'a mut [In]) -> &'a mut [T] {
+        let n = input.len().min(C);
+        for (o, &x) in self.out[..n].iter_mut().zip(&input[..n]) {
+            let (q, c) = self.quantiser.code(x.raw_units());
             *o = T::from_code(q);
             self.clamped += c as u64;
         }

@@ -33,6 +33,7 @@ pub mod demo;
 pub mod design;
 pub mod emit;
 pub mod generate;
+pub mod model_input;
 pub mod npy;
 pub mod output;
 pub mod plots;
