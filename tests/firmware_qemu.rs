@@ -113,6 +113,8 @@ struct Run {
     per_kilotick: u64,
     state: u64,
     stack: u64,
+    /// `(frame index, CRC-32)` of each model window a model-input build handed out.
+    windows: Vec<(usize, u32)>,
 }
 
 fn run_qemu(qemu: &Path, board: &Board, elf: &Path) -> Run {
@@ -155,6 +157,7 @@ fn run_qemu(qemu: &Path, board: &Board, elf: &Path) -> Run {
         per_kilotick: 0,
         state: 0,
         stack: 0,
+        windows: Vec::new(),
     };
     let field = |line: &str, key: &str| -> u64 {
         line.split_whitespace()
@@ -171,6 +174,12 @@ fn run_qemu(qemu: &Path, board: &Board, elf: &Path) -> Run {
                 "frame order"
             );
             run.frames.push(hex.to_string());
+        } else if let Some(rest) = line.strip_prefix("W ") {
+            let (index, crc) = rest.split_once(' ').expect("window line");
+            run.windows.push((
+                index.parse().unwrap(),
+                u32::from_str_radix(crc, 16).expect("crc hex"),
+            ));
         } else if line.starts_with("STAPES-TICKS") {
             run.frames_reported = field(line, "frames");
             for s in STAGES {
@@ -356,6 +365,140 @@ fn firmware_frames_equal_the_host_and_figures_are_collected() {
     std::fs::write(out.join("firmware-figures.md"), &table).unwrap();
     print_fitted_costs(&figures);
     check_budget(&figures);
+    model_input_builds(&qemu, &clip_path, &samples);
+}
+
+/// The model's input on the boards (`model-input` builds, speech16k-40):
+/// log, int8 codes (scale 0.5 dB, zero point 80; the fixed builds carry the
+/// host's integer multiplier and shift) and the 49-frame window. Every
+/// frame's codes and every window's CRC-32 must equal the host's, computed
+/// with the same stages; prints the figures (the "log" stage column holds
+/// log and quantiser, "intake" the window's push).
+fn model_input_builds(qemu: &Path, clip_path: &Path, samples: &[i16]) {
+    use stapes_core::crc32::Crc32;
+    use stapes_core::quantise::{CodeRange, FixedQuantiseStage};
+    use stapes_core::stage::Then;
+    use stapes_core::{AffineQuantiser, FixedLog, FloatLog, FrameWindow, QuantiseStage};
+    let config = stapes_core::presets::SPEECH16K_40;
+    let t = GeneratedTables::new(&config);
+    let form = FilterbankForm::Sparse;
+    // The host's codes and window CRCs for one arithmetic.
+    let host = |arith: &str| -> (Vec<Vec<u32>>, Vec<(usize, u32)>) {
+        let mut codes: Vec<Vec<i8>> = Vec::new();
+        let mut rest = samples;
+        let mut push = |bands: &[i8]| codes.push(bands.to_vec());
+        match arith {
+            "f32" => {
+                let q = AffineQuantiser::new(0.5, 80, CodeRange::Int8).unwrap();
+                let chain = Then(
+                    FloatLog::for_config(&config),
+                    QuantiseStage::<i8, 40>::new(q).unwrap(),
+                );
+                let mut fe = Box::new(
+                    stapes_core::FloatFrontEnd::<512, 352, 40, _>::with_stages(
+                        config,
+                        t.view_f32(form),
+                        chain,
+                    )
+                    .unwrap(),
+                );
+                for block in rest.chunks(128) {
+                    let mut b = block;
+                    while let Some(f) = fe.next_frame(&mut b) {
+                        push(f.bands);
+                    }
+                }
+                rest = &[];
+            }
+            a => {
+                let tables = t.fixed_tables(form).unwrap();
+                let q = stapes_sim::model_input::fixed_quantiser(0.5, 80, CodeRange::Int8).unwrap();
+                let chain = || {
+                    Then(
+                        FixedLog::<40>::for_tables(&tables),
+                        FixedQuantiseStage::<i8, 40>::new(q).unwrap(),
+                    )
+                };
+                macro_rules! drive {
+                    ($p:ty) => {{
+                        let mut fe = Box::new(
+                            stapes_core::FixedFrontEnd::<$p, 512, 352, 40, _>::with_stages(
+                                config,
+                                tables,
+                                chain(),
+                            )
+                            .unwrap(),
+                        );
+                        for block in rest.chunks(128) {
+                            let mut b = block;
+                            while let Some(f) = fe.next_frame(&mut b) {
+                                push(f.bands);
+                            }
+                        }
+                    }};
+                }
+                if a == "fixed16" {
+                    drive!(stapes_core::int_fft::Fixed16)
+                } else {
+                    drive!(stapes_core::int_fft::Fixed32)
+                }
+            }
+        }
+        let _ = rest;
+        let mut window = FrameWindow::<i8, 49, 40>::new(1);
+        let mut crcs = Vec::new();
+        for (i, c) in codes.iter().enumerate() {
+            if let Some(w) = window.push(c) {
+                let mut crc = Crc32::new();
+                crc.update(&w.iter().map(|&v| v as u8).collect::<Vec<u8>>());
+                crcs.push((i, crc.finish()));
+            }
+        }
+        let frames = codes
+            .into_iter()
+            .map(|r| r.into_iter().map(|v| v as u8 as u32).collect())
+            .collect();
+        (frames, crcs)
+    };
+    println!(
+        "| model input (speech16k-40, int8, 49-frame window) | core | RAM B (state + stack) | instructions per frame: intake and window / log and int8 | total | frames and windows vs host |"
+    );
+    println!("|---|---|---|---|---|---|");
+    for (board, arith) in [
+        (&BOARDS[0], "f32"),
+        (&BOARDS[0], "fixed16"),
+        (&BOARDS[0], "fixed32"),
+        (&BOARDS[1], "fixed16"),
+    ] {
+        let elf = build(
+            board,
+            &format!("{arith},preset-speech16k-40,model-input"),
+            clip_path,
+        );
+        let run = run_qemu(qemu, board, &elf);
+        let got: Vec<Vec<u32>> = run.frames.iter().map(|h| regroup(h, 2)).collect();
+        let (want, want_windows) = host(arith);
+        assert_eq!(got, want, "model input {arith} {}: codes", board.machine);
+        assert_eq!(
+            run.windows, want_windows,
+            "model input {arith} {}: windows",
+            board.machine
+        );
+        assert!(!run.windows.is_empty());
+        let per = |ticks: u64| ticks * run.per_kilotick / 1000 / run.frames_reported.max(1);
+        println!(
+            "| {arith} | {} | {} ({} + {}) | {} / {} | {} | identical ({} frames, {} windows) |",
+            board.machine,
+            run.state + run.stack,
+            run.state,
+            run.stack,
+            per(run.ticks[0].1),
+            per(run.ticks[5].1),
+            per(run.ticks[6].1),
+            want.len(),
+            run.windows.len()
+        );
+    }
 }
 
 /// The instruction model's unit costs refitted from these measurements, as

@@ -72,6 +72,49 @@ trait UnderTest {
         input: &mut &[i16],
         probe: &mut P,
     ) -> Option<(u64, &[Self::Band])>;
+    /// The CRC-32 of the model's input window when the last step handed one
+    /// out (`model-input` builds only).
+    fn window_crc(&self) -> Option<u32> {
+        None
+    }
+}
+
+/// The model's input in `model-input` builds: int8 codes of the log-mel
+/// values (scale 0.5 dB, zero point 80) into a 49-frame window.
+#[cfg(feature = "model-input")]
+mod model_input {
+    use stapes_core::crc32::Crc32;
+    use stapes_core::FrameWindow;
+
+    /// Frames the model reads.
+    pub const FRAMES: usize = 49;
+    /// The front end and the model's window.
+    pub struct WithWindow<F, const C: usize> {
+        pub fe: F,
+        pub window: FrameWindow<i8, FRAMES, C>,
+        /// Whether the last frame completed a window the model would read.
+        pub handed: bool,
+    }
+    impl<F, const C: usize> WithWindow<F, C> {
+        /// The window's CRC-32 when the last frame handed it out; computed
+        /// outside the timed call (it is the harness's report, not the
+        /// front end's work).
+        pub fn crc(&self) -> Option<u32> {
+            let w = self.window.window().filter(|_| self.handed)?;
+            let mut crc = Crc32::new();
+            crc.update(bytemuck_bytes(w));
+            Some(crc.finish())
+        }
+    }
+    fn bytemuck_bytes(v: &[i8]) -> &[u8] {
+        // i8 and u8 have the same size and alignment.
+        let (ptr, len) = (v.as_ptr() as *const u8, v.len());
+        #[allow(unsafe_code)]
+        // SAFETY: reinterprets `len` initialised bytes of the same slice.
+        unsafe {
+            core::slice::from_raw_parts(ptr, len)
+        }
+    }
 }
 
 #[cfg(feature = "harness-only")]
@@ -104,7 +147,51 @@ mod under_test {
     }
 }
 
-#[cfg(all(feature = "f32", not(feature = "harness-only")))]
+#[cfg(all(feature = "f32", feature = "model-input", not(feature = "harness-only")))]
+mod under_test {
+    use super::*;
+    use stapes_core::{AffineQuantiser, CodeRange, FloatLog, QuantiseStage, Then};
+    type Chain = Then<FloatLog, QuantiseStage<i8, { preset::BANDS }>>;
+    pub type FrontEnd = model_input::WithWindow<
+        stapes_core::FloatFrontEnd<
+            'static,
+            { preset::FFT_POINTS },
+            { preset::OVERLAP_SAMPLES },
+            { preset::BANDS },
+            Chain,
+        >,
+        { preset::BANDS },
+    >;
+    pub fn make() -> Option<FrontEnd> {
+        let q = AffineQuantiser::new(0.5, 80, CodeRange::Int8).ok()?;
+        let chain = Then(FloatLog::for_config(&preset::CONFIG), QuantiseStage::new(q).ok()?);
+        let fe = stapes_core::FloatFrontEnd::with_stages(preset::CONFIG, preset::TABLE_F32_SPARSE, chain)
+            .ok()?;
+        Some(model_input::WithWindow { fe, window: stapes_core::FrameWindow::new(1), handed: false })
+    }
+    impl UnderTest for FrontEnd {
+        const ARITH: &'static str = "f32";
+        const HEX_DIGITS: usize = 2;
+        type Band = i8;
+        fn bits(b: i8) -> u32 {
+            b as u8 as u32
+        }
+        fn step<P: StageProbe>(
+            &mut self,
+            input: &mut &[i16],
+            probe: &mut P,
+        ) -> Option<(u64, &[i8])> {
+            let frame = self.fe.next_frame_probed(input, probe)?;
+            self.handed = self.window.push(frame.bands).is_some();
+            Some((frame.index, frame.bands))
+        }
+        fn window_crc(&self) -> Option<u32> {
+            self.crc()
+        }
+    }
+}
+
+#[cfg(all(feature = "f32", not(feature = "model-input"), not(feature = "harness-only")))]
 mod under_test {
     use super::*;
     pub type FrontEnd = stapes_core::float_path::FloatFrontEnd<
@@ -141,6 +228,72 @@ mod under_test {
 #[cfg(all(
     any(feature = "fixed16", feature = "fixed32"),
     not(feature = "f32"),
+    feature = "model-input",
+    not(feature = "harness-only")
+))]
+mod under_test {
+    use super::*;
+    use stapes_core::quantise::{CodeRange, FixedQuantiseStage, FixedQuantiser};
+    use stapes_core::{FixedLog, Then};
+    #[cfg(feature = "fixed16")]
+    type Precision = stapes_core::int_fft::Fixed16;
+    #[cfg(not(feature = "fixed16"))]
+    type Precision = stapes_core::int_fft::Fixed32;
+    type Chain = Then<FixedLog<'static, { preset::BANDS }>, FixedQuantiseStage<i8, { preset::BANDS }>>;
+    pub type FrontEnd = model_input::WithWindow<
+        stapes_core::FixedFrontEnd<
+            'static,
+            Precision,
+            { preset::FFT_POINTS },
+            { preset::OVERLAP_SAMPLES },
+            { preset::BANDS },
+            Chain,
+        >,
+        { preset::BANDS },
+    >;
+    pub fn make() -> Option<FrontEnd> {
+        #[cfg(feature = "fixed16")]
+        let tables = preset::FIXED16_SPARSE;
+        #[cfg(not(feature = "fixed16"))]
+        let tables = preset::FIXED32_SPARSE;
+        // Scale 0.5 dB, zero point 80: M = 2^30, k = 37, as the host's
+        // stapes_sim::model_input::quantiser_parts(0.5) gives (the QEMU test
+        // compares these codes with the host's).
+        let q = FixedQuantiser::from_parts(1 << 30, 37, 80, CodeRange::Int8).ok()?;
+        let chain = Then(FixedLog::for_tables(&tables), FixedQuantiseStage::new(q).ok()?);
+        let fe = stapes_core::FixedFrontEnd::with_stages(preset::CONFIG, tables, chain).ok()?;
+        Some(model_input::WithWindow { fe, window: stapes_core::FrameWindow::new(1), handed: false })
+    }
+    impl UnderTest for FrontEnd {
+        const ARITH: &'static str = if cfg!(feature = "fixed16") {
+            "fixed16"
+        } else {
+            "fixed32"
+        };
+        const HEX_DIGITS: usize = 2;
+        type Band = i8;
+        fn bits(b: i8) -> u32 {
+            b as u8 as u32
+        }
+        fn step<P: StageProbe>(
+            &mut self,
+            input: &mut &[i16],
+            probe: &mut P,
+        ) -> Option<(u64, &[i8])> {
+            let frame = self.fe.next_frame_probed(input, probe)?;
+            self.handed = self.window.push(frame.bands).is_some();
+            Some((frame.index, frame.bands))
+        }
+        fn window_crc(&self) -> Option<u32> {
+            self.crc()
+        }
+    }
+}
+
+#[cfg(all(
+    any(feature = "fixed16", feature = "fixed32"),
+    not(feature = "f32"),
+    not(feature = "model-input"),
     not(feature = "harness-only")
 ))]
 mod under_test {
@@ -267,6 +420,9 @@ fn run<F: UnderTest>(fe: &mut F, ticks: &Ticks, console: &mut Console) -> ! {
                 let _ = write!(line, "{:0width$x}", F::bits(b), width = F::HEX_DIGITS);
             }
             let _ = writeln!(console, "{line}");
+            if let Some(crc) = fe.window_crc() {
+                let _ = writeln!(console, "W {index} {crc:08x}");
+            }
         }
     }
     let s = clock.sums;
