@@ -69,7 +69,14 @@ fn the_fixed_paths_link_no_soft_float_helper_and_the_scan_can_see_them() {
         found.iter().any(|s| s.starts_with("__aeabi_f")),
         "the scan found no float helper in the f32 build: {found:?}"
     );
-    for feature in ["fixed16", "fixed32"] {
+    // The model-input builds too: log, the integer int8 quantiser and the
+    // frame window, on Cortex-M0 without a float.
+    for feature in [
+        "fixed16",
+        "fixed32",
+        "fixed16,model-input",
+        "fixed32,model-input",
+    ] {
         let syms = build_for_cortex_m0(feature);
         assert!(
             syms.iter().any(|s| s.contains("fixed_path")),
