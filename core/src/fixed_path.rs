@@ -1235,6 +1235,7 @@ where
         self.framer.reset();
         self.frame_start =
             IntConditioner::new(self.frame_start.dc_pole, self.frame_start.pre_emphasis);
+        self.stages.reset();
         self.next_index = 0;
     }
 
@@ -1578,6 +1579,33 @@ where
         }
         <P::Data as FrameData>::restore_shared(&mut self.framer);
         probe.mark(Stage::Mel);
+    }
+}
+
+impl<P, const FFT: usize, const OVERLAP: usize, const BANDS: usize, S>
+    crate::frame::StreamingFrontEnd for FixedFrontEnd<'_, P, FFT, OVERLAP, BANDS, S>
+where
+    P: Precision + TwiddlesFor,
+    P::Data: FrameData,
+    S: FrameStage<i32>,
+{
+    type Value = S::Out;
+
+    fn configuration(&self) -> &FeatureConfig {
+        &self.config
+    }
+
+    fn restart(&mut self) {
+        self.reset();
+    }
+
+    #[inline]
+    fn next_frame_with<Pr: StageProbe>(
+        &mut self,
+        input: &mut &[i16],
+        probe: &mut Pr,
+    ) -> Option<Frame<'_, S::Out>> {
+        self.next_frame_probed(input, probe)
     }
 }
 

@@ -180,3 +180,26 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize, S: FrameSta
         probe.mark(Stage::Mel);
     }
 }
+
+impl<const FFT: usize, const OVERLAP: usize, const BANDS: usize, S: FrameStage<f32>>
+    crate::frame::StreamingFrontEnd for FloatFrontEnd<'_, FFT, OVERLAP, BANDS, S>
+{
+    type Value = S::Out;
+
+    fn configuration(&self) -> &FeatureConfig {
+        &self.config
+    }
+
+    fn restart(&mut self) {
+        self.reset();
+    }
+
+    #[inline]
+    fn next_frame_with<P: StageProbe>(
+        &mut self,
+        input: &mut &[i16],
+        probe: &mut P,
+    ) -> Option<Frame<'_, S::Out>> {
+        self.next_frame_probed(input, probe)
+    }
+}

@@ -100,7 +100,7 @@ pub use error::FrontEndError;
 pub use fixed_path::FixedFrontEnd;
 pub use fixed_tables::FixedTables;
 pub use float_path::FloatFrontEnd;
-pub use frame::Frame;
+pub use frame::{Frame, StreamingFrontEnd};
 pub use frame_window::FrameWindow;
 pub use int_fft::{Fixed16, Fixed32};
 pub use log::{FixedLog, FloatLog};

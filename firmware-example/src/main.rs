@@ -60,6 +60,68 @@ const BLOCK: usize = 128;
 /// The core this build is for (set by build.rs from the target).
 const CORE: &str = env!("STAPES_CORE");
 
+/// The arithmetic of this build.
+const ARITH: &str = if cfg!(feature = "harness-only") {
+    "none"
+} else if cfg!(feature = "f32") {
+    "f32"
+} else if cfg!(feature = "fixed16") {
+    "fixed16"
+} else {
+    "fixed32"
+};
+
+/// A frame value as the report prints it: its bits, in so many hex digits
+/// (unused by the harness-only build).
+#[allow(dead_code)]
+trait Reported: Copy {
+    const HEX_DIGITS: usize;
+    fn bits(self) -> u32;
+}
+impl Reported for f32 {
+    const HEX_DIGITS: usize = 8;
+    fn bits(self) -> u32 {
+        self.to_bits()
+    }
+}
+impl Reported for stapes_core::fixed::types::I8F8 {
+    const HEX_DIGITS: usize = 4;
+    fn bits(self) -> u32 {
+        self.to_bits() as u16 as u32
+    }
+}
+impl Reported for i8 {
+    const HEX_DIGITS: usize = 2;
+    fn bits(self) -> u32 {
+        self as u8 as u32
+    }
+}
+
+/// Any front end of the core, as the board loop drives it.
+#[allow(dead_code)]
+struct Plain<F>(F);
+
+impl<F: stapes_core::StreamingFrontEnd> UnderTest for Plain<F>
+where
+    F::Value: Reported,
+{
+    const ARITH: &'static str = ARITH;
+    const HEX_DIGITS: usize = <F::Value as Reported>::HEX_DIGITS;
+    type Band = F::Value;
+    fn bits(b: F::Value) -> u32 {
+        b.bits()
+    }
+    fn step<P: StageProbe>(
+        &mut self,
+        input: &mut &[i16],
+        probe: &mut P,
+    ) -> Option<(u64, &[F::Value])> {
+        self.0
+            .next_frame_with(input, probe)
+            .map(|f| (f.index, f.bands))
+    }
+}
+
 /// A front end as the board loop drives it.
 trait UnderTest {
     const ARITH: &'static str;
@@ -84,7 +146,8 @@ trait UnderTest {
 #[cfg(feature = "model-input")]
 mod model_input {
     use stapes_core::crc32::Crc32;
-    use stapes_core::FrameWindow;
+    use stapes_core::probe::StageProbe;
+    use stapes_core::{FrameWindow, StreamingFrontEnd};
 
     /// Frames the model reads.
     pub const FRAMES: usize = 49;
@@ -94,6 +157,26 @@ mod model_input {
         pub window: FrameWindow<i8, FRAMES, C>,
         /// Whether the last frame completed a window the model would read.
         pub handed: bool,
+    }
+    impl<F: StreamingFrontEnd<Value = i8>, const C: usize> super::UnderTest for WithWindow<F, C> {
+        const ARITH: &'static str = super::ARITH;
+        const HEX_DIGITS: usize = <i8 as super::Reported>::HEX_DIGITS;
+        type Band = i8;
+        fn bits(b: i8) -> u32 {
+            super::Reported::bits(b)
+        }
+        fn step<P: StageProbe>(
+            &mut self,
+            input: &mut &[i16],
+            probe: &mut P,
+        ) -> Option<(u64, &[i8])> {
+            let frame = self.fe.next_frame_with(input, probe)?;
+            self.handed = self.window.push(frame.bands).is_some();
+            Some((frame.index, frame.bands))
+        }
+        fn window_crc(&self) -> Option<u32> {
+            self.crc()
+        }
     }
     impl<F, const C: usize> WithWindow<F, C> {
         /// The window's CRC-32 when the last frame handed it out; computed
@@ -126,7 +209,7 @@ mod under_test {
         Some(FrontEnd)
     }
     impl UnderTest for FrontEnd {
-        const ARITH: &'static str = "none";
+        const ARITH: &'static str = super::ARITH;
         const HEX_DIGITS: usize = 4;
         type Band = u16;
         fn bits(b: u16) -> u32 {
@@ -147,7 +230,11 @@ mod under_test {
     }
 }
 
-#[cfg(all(feature = "f32", feature = "model-input", not(feature = "harness-only")))]
+#[cfg(all(
+    feature = "f32",
+    feature = "model-input",
+    not(feature = "harness-only")
+))]
 mod under_test {
     use super::*;
     use stapes_core::{AffineQuantiser, CodeRange, FloatLog, QuantiseStage, Then};
@@ -164,64 +251,47 @@ mod under_test {
     >;
     pub fn make() -> Option<FrontEnd> {
         let q = AffineQuantiser::new(0.5, 80, CodeRange::Int8).ok()?;
-        let chain = Then(FloatLog::for_config(&preset::CONFIG), QuantiseStage::new(q).ok()?);
-        let fe = stapes_core::FloatFrontEnd::with_stages(preset::CONFIG, preset::TABLE_F32_SPARSE, chain)
-            .ok()?;
-        Some(model_input::WithWindow { fe, window: stapes_core::FrameWindow::new(1), handed: false })
-    }
-    impl UnderTest for FrontEnd {
-        const ARITH: &'static str = "f32";
-        const HEX_DIGITS: usize = 2;
-        type Band = i8;
-        fn bits(b: i8) -> u32 {
-            b as u8 as u32
-        }
-        fn step<P: StageProbe>(
-            &mut self,
-            input: &mut &[i16],
-            probe: &mut P,
-        ) -> Option<(u64, &[i8])> {
-            let frame = self.fe.next_frame_probed(input, probe)?;
-            self.handed = self.window.push(frame.bands).is_some();
-            Some((frame.index, frame.bands))
-        }
-        fn window_crc(&self) -> Option<u32> {
-            self.crc()
-        }
+        let chain = Then(
+            FloatLog::for_config(&preset::CONFIG),
+            QuantiseStage::new(q).ok()?,
+        );
+        let fe = stapes_core::FloatFrontEnd::with_stages(
+            preset::CONFIG,
+            preset::TABLE_F32_SPARSE,
+            chain,
+        )
+        .ok()?;
+        Some(model_input::WithWindow {
+            fe,
+            window: stapes_core::FrameWindow::new(1),
+            handed: false,
+        })
     }
 }
 
-#[cfg(all(feature = "f32", not(feature = "model-input"), not(feature = "harness-only")))]
+#[cfg(all(
+    feature = "f32",
+    not(feature = "model-input"),
+    not(feature = "harness-only")
+))]
 mod under_test {
     use super::*;
-    pub type FrontEnd = stapes_core::float_path::FloatFrontEnd<
-        'static,
-        { preset::FFT_POINTS },
-        { preset::OVERLAP_SAMPLES },
-        { preset::BANDS },
+    pub type FrontEnd = Plain<
+        stapes_core::FloatFrontEnd<
+            'static,
+            { preset::FFT_POINTS },
+            { preset::OVERLAP_SAMPLES },
+            { preset::BANDS },
+        >,
     >;
     pub fn make() -> Option<FrontEnd> {
         #[cfg(not(feature = "form-compact"))]
         let table = preset::TABLE_F32_SPARSE;
         #[cfg(feature = "form-compact")]
         let table = preset::TABLE_F32_COMPACT;
-        FrontEnd::new(preset::CONFIG, table).ok()
-    }
-    impl UnderTest for FrontEnd {
-        const ARITH: &'static str = "f32";
-        const HEX_DIGITS: usize = 8;
-        type Band = f32;
-        fn bits(b: f32) -> u32 {
-            b.to_bits()
-        }
-        fn step<P: StageProbe>(
-            &mut self,
-            input: &mut &[i16],
-            probe: &mut P,
-        ) -> Option<(u64, &[f32])> {
-            self.next_frame_probed(input, probe)
-                .map(|f| (f.index, f.bands))
-        }
+        stapes_core::FloatFrontEnd::new(preset::CONFIG, table)
+            .ok()
+            .map(Plain)
     }
 }
 
@@ -239,7 +309,8 @@ mod under_test {
     type Precision = stapes_core::int_fft::Fixed16;
     #[cfg(not(feature = "fixed16"))]
     type Precision = stapes_core::int_fft::Fixed32;
-    type Chain = Then<FixedLog<'static, { preset::BANDS }>, FixedQuantiseStage<i8, { preset::BANDS }>>;
+    type Chain =
+        Then<FixedLog<'static, { preset::BANDS }>, FixedQuantiseStage<i8, { preset::BANDS }>>;
     pub type FrontEnd = model_input::WithWindow<
         stapes_core::FixedFrontEnd<
             'static,
@@ -260,33 +331,16 @@ mod under_test {
         // stapes_sim::model_input::quantiser_parts(0.5) gives (the QEMU test
         // compares these codes with the host's).
         let q = FixedQuantiser::from_parts(1 << 30, 37, 80, CodeRange::Int8).ok()?;
-        let chain = Then(FixedLog::for_tables(&tables), FixedQuantiseStage::new(q).ok()?);
+        let chain = Then(
+            FixedLog::for_tables(&tables),
+            FixedQuantiseStage::new(q).ok()?,
+        );
         let fe = stapes_core::FixedFrontEnd::with_stages(preset::CONFIG, tables, chain).ok()?;
-        Some(model_input::WithWindow { fe, window: stapes_core::FrameWindow::new(1), handed: false })
-    }
-    impl UnderTest for FrontEnd {
-        const ARITH: &'static str = if cfg!(feature = "fixed16") {
-            "fixed16"
-        } else {
-            "fixed32"
-        };
-        const HEX_DIGITS: usize = 2;
-        type Band = i8;
-        fn bits(b: i8) -> u32 {
-            b as u8 as u32
-        }
-        fn step<P: StageProbe>(
-            &mut self,
-            input: &mut &[i16],
-            probe: &mut P,
-        ) -> Option<(u64, &[i8])> {
-            let frame = self.fe.next_frame_probed(input, probe)?;
-            self.handed = self.window.push(frame.bands).is_some();
-            Some((frame.index, frame.bands))
-        }
-        fn window_crc(&self) -> Option<u32> {
-            self.crc()
-        }
+        Some(model_input::WithWindow {
+            fe,
+            window: stapes_core::FrameWindow::new(1),
+            handed: false,
+        })
     }
 }
 
@@ -298,17 +352,18 @@ mod under_test {
 ))]
 mod under_test {
     use super::*;
-    use stapes_core::fixed::types::I8F8;
     #[cfg(feature = "fixed16")]
     type Precision = stapes_core::int_fft::Fixed16;
     #[cfg(not(feature = "fixed16"))]
     type Precision = stapes_core::int_fft::Fixed32;
-    pub type FrontEnd = stapes_core::fixed_path::FixedFrontEnd<
-        'static,
-        Precision,
-        { preset::FFT_POINTS },
-        { preset::OVERLAP_SAMPLES },
-        { preset::BANDS },
+    pub type FrontEnd = Plain<
+        stapes_core::FixedFrontEnd<
+            'static,
+            Precision,
+            { preset::FFT_POINTS },
+            { preset::OVERLAP_SAMPLES },
+            { preset::BANDS },
+        >,
     >;
     pub fn make() -> Option<FrontEnd> {
         // The precision's own tables only: a 16-bit build links no Q31 array.
@@ -320,27 +375,9 @@ mod under_test {
         let tables = preset::FIXED16_COMPACT;
         #[cfg(all(not(feature = "fixed16"), feature = "form-compact"))]
         let tables = preset::FIXED32_COMPACT;
-        FrontEnd::new(preset::CONFIG, tables).ok()
-    }
-    impl UnderTest for FrontEnd {
-        const ARITH: &'static str = if cfg!(feature = "fixed16") {
-            "fixed16"
-        } else {
-            "fixed32"
-        };
-        const HEX_DIGITS: usize = 4;
-        type Band = I8F8;
-        fn bits(b: I8F8) -> u32 {
-            b.to_bits() as u16 as u32
-        }
-        fn step<P: StageProbe>(
-            &mut self,
-            input: &mut &[i16],
-            probe: &mut P,
-        ) -> Option<(u64, &[I8F8])> {
-            self.next_frame_probed(input, probe)
-                .map(|f| (f.index, f.bands))
-        }
+        stapes_core::FixedFrontEnd::new(preset::CONFIG, tables)
+            .ok()
+            .map(Plain)
     }
 }
 
