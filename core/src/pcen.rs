@@ -1,6 +1,7 @@
 //! PCEN, per-channel energy normalisation (Wang et al., "Trainable
 //! frontend for robust and far-field keyword spotting", ICASSP 2017), as a
-//! stage after the filterbank in place of the static log.
+//! stage after the filterbank in place of the static log: [`FloatPcen`]
+//! here, the fixed path's in [`crate::pcen_fixed`].
 //!
 //! Per band, with the band energy `E[t]` (linear, as the filterbank hands
 //! it on):

@@ -72,3 +72,32 @@ pub fn band_statistics(frames: &[Vec<f32>]) -> Result<(Vec<f32>, Vec<f32>)> {
         .collect();
     Ok((mean.iter().map(|&m| m as f32).collect(), deviation))
 }
+
+/// A positive f64 as the fixed path's [`Soft`](stapes_core::pcen_fixed::Soft).
+pub fn soft(value: f64) -> stapes_core::pcen_fixed::Soft {
+    if !(value > 0.0 && value.is_finite()) {
+        return stapes_core::pcen_fixed::Soft::ZERO;
+    }
+    let e = value.log2().floor() as i32;
+    // value = m·2^(e − 31) with m in [2^31, 2^32).
+    let m = (value * 2f64.powi(31 - e)).round().min(u32::MAX as f64) as u64;
+    stapes_core::pcen_fixed::Soft::from_parts(m, e - 31)
+}
+
+/// The fixed PCEN stage's integer parameters for `params` at a hop of
+/// `hop_s` seconds.
+pub fn fixed_pcen_params(
+    params: &stapes_core::pcen::PcenParams,
+    hop_s: f32,
+) -> stapes_core::pcen_fixed::FixedPcenParams {
+    let (alpha, root) = (params.alpha as f64, params.root as f64);
+    let s = params.smoothing(hop_s) as f64;
+    stapes_core::pcen_fixed::FixedPcenParams {
+        alpha_q16: (alpha * 65536.0).round() as i32,
+        root_q16: (root * 65536.0).round() as i32,
+        smoothing_q31: (s * 2f64.powi(31)).round() as u32,
+        epsilon: soft(params.epsilon as f64),
+        delta: soft(params.delta as f64),
+        delta_root: soft((params.delta as f64).powf(root)),
+    }
+}
