@@ -116,6 +116,23 @@ pub fn demo(a: &DemoArgs) -> Result<Outcome> {
         "the core's log-mel frames, float32 [frames x bands], dB",
     ));
 
+    // The same frames through the f32 MFCC stage (13 coefficients, no
+    // lifter), for the numpy/scipy cross-check of the DCT.
+    let dct = crate::dct::DctTables::new(config.bands as usize, 13, None);
+    let mut mfcc = stapes_core::FloatMfcc::<13>::new(dct.view_f32())
+        .map_err(|e| anyhow::anyhow!("{e}"))?;
+    let mut coefficients = Vec::with_capacity(run.core.len() * 13);
+    for frame in &run.core {
+        let mut values = frame.clone();
+        coefficients.extend_from_slice(stapes_core::FrameStage::process(&mut mfcc, &mut values));
+    }
+    let mfcc_npy = dir.join("mfcc.npy");
+    crate::npy::write_f32(&mfcc_npy, run.core.len(), 13, coefficients.into_iter())?;
+    wrote.push((
+        mfcc_npy,
+        "those frames' first 13 MFCC (orthonormal DCT-II, no lifter), float32 [frames x 13]",
+    ));
+
     let hop_s = config.hop_samples as f64 / config.sample_rate_hz as f64;
     let core_f64: Vec<Vec<f64>> = run
         .core

@@ -4,11 +4,14 @@ numeric conventions in README.md, not from the Rust code.
 
 Usage: python numpy_cross_check.py DEMO_DIR
 Reads DEMO_DIR/demo-clip.wav and DEMO_DIR/features.npy (from `stapes demo`)
-and recomputes the speech16k-40 log-mel frames in float64.
+and recomputes the speech16k-40 log-mel frames in float64; reads
+DEMO_DIR/mfcc.npy and compares it with scipy's orthonormal DCT-II of those
+frames.
 """
 import sys
 
 import numpy as np
+import scipy.fft
 import scipy.io.wavfile
 import scipy.signal
 
@@ -57,6 +60,18 @@ def main(demo_dir):
           f"max |error| {worst:.2e} dB, mean {error.mean():.2e} dB over {error.size} values "
           f"(tolerance {TOLERANCE_DB} dB within {RANGE_DB} dB)")
     passed = worst <= TOLERANCE_DB
+
+    # MFCC: scipy's DCT-II with orthonormal scaling of the core's own frames
+    # (the DCT alone; README: 13 coefficients, no lifter, mfcc.npy).
+    mfcc = np.load(f"{demo_dir}/mfcc.npy")
+    want = scipy.fft.dct(core.astype(np.float64), type=2, norm="ortho", axis=1)[:, :13]
+    assert mfcc.shape == want.shape, (mfcc.shape, want.shape)
+    # f32 sums of 40 products of values up to ~100: a few 1e-5 of rounding.
+    mfcc_worst = float(np.abs(mfcc.astype(np.float64) - want).max())
+    mfcc_ok = mfcc_worst <= 1e-3
+    print(f"numpy/scipy cross-check: MFCC {mfcc.shape[0]} x 13 against scipy.fft.dct(type=2, "
+          f"norm='ortho'): max |error| {mfcc_worst:.2e} (tolerance 1e-3)")
+    passed = passed and mfcc_ok
     print("numpy/scipy cross-check:", "PASS" if passed else "FAIL")
     return 0 if passed else 1
 
