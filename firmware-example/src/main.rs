@@ -60,6 +60,14 @@ const BLOCK: usize = 128;
 /// The core this build is for (set by build.rs from the target).
 const CORE: &str = env!("STAPES_CORE");
 
+/// The fixed path's precision in fixed builds.
+#[cfg(feature = "fixed16")]
+#[allow(dead_code)]
+type Precision = stapes_core::int_fft::Fixed16;
+#[cfg(not(feature = "fixed16"))]
+#[allow(dead_code)]
+type Precision = stapes_core::int_fft::Fixed32;
+
 /// The arithmetic of this build.
 const ARITH: &str = if cfg!(feature = "harness-only") {
     "none"
@@ -305,10 +313,6 @@ mod under_test {
     use super::*;
     use stapes_core::quantise::{CodeRange, FixedQuantiseStage, FixedQuantiser};
     use stapes_core::{FixedLog, Then};
-    #[cfg(feature = "fixed16")]
-    type Precision = stapes_core::int_fft::Fixed16;
-    #[cfg(not(feature = "fixed16"))]
-    type Precision = stapes_core::int_fft::Fixed32;
     type Chain =
         Then<FixedLog<'static, { preset::BANDS }>, FixedQuantiseStage<i8, { preset::BANDS }>>;
     pub type FrontEnd = model_input::WithWindow<
@@ -352,10 +356,6 @@ mod under_test {
 ))]
 mod under_test {
     use super::*;
-    #[cfg(feature = "fixed16")]
-    type Precision = stapes_core::int_fft::Fixed16;
-    #[cfg(not(feature = "fixed16"))]
-    type Precision = stapes_core::int_fft::Fixed32;
     pub type FrontEnd = Plain<
         stapes_core::FixedFrontEnd<
             'static,
