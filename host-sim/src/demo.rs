@@ -119,8 +119,8 @@ pub fn demo(a: &DemoArgs) -> Result<Outcome> {
     // The same frames through the f32 MFCC stage (13 coefficients, no
     // lifter), for the numpy/scipy cross-check of the DCT.
     let dct = crate::dct::DctTables::new(config.bands as usize, 13, None);
-    let mut mfcc = stapes_core::FloatMfcc::<13>::new(dct.view_f32())
-        .map_err(|e| anyhow::anyhow!("{e}"))?;
+    let mut mfcc =
+        stapes_core::FloatMfcc::<13>::new(dct.view_f32()).map_err(|e| anyhow::anyhow!("{e}"))?;
     let mut coefficients = Vec::with_capacity(run.core.len() * 13);
     for frame in &run.core {
         let mut values = frame.clone();
