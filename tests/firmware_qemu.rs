@@ -87,6 +87,10 @@ fn build(board: &Board, features: &str, clip: &Path) -> PathBuf {
         .args([
             "build",
             "--release",
+            // Its own target folder whatever CARGO_TARGET_DIR says: the
+            // ELF is read from there.
+            "--target-dir",
+            "target",
             "--target",
             board.target,
             "--no-default-features",

@@ -36,6 +36,10 @@ fn build_for_cortex_m0(feature: &str) -> Vec<String> {
         .args([
             "build",
             "--release",
+            // Its own target folder whatever CARGO_TARGET_DIR says: the
+            // ELF is read from there.
+            "--target-dir",
+            "target",
             "--target",
             "thumbv6m-none-eabi",
             "--no-default-features",
