@@ -14,7 +14,8 @@
 //! with `p = 0.9465`), 1e-3 to 3e-3 dB on 8 kHz speech with a DC offset
 //! (`p = 0.999`). Here only `(1 − p)·y` is rounded before the compensated
 //! sum, and the gain undoes the factor `1 − p`: measured 2e-4 dB and 2e-5 to
-//! 1e-4 dB on the same material (numpy model of both forms against float64).
+//! 1e-4 dB on the same material (numpy model of both forms against float64:
+//! `tests/python/fixed_point_models.py`).
 
 /// `f32` stream conditioner.
 #[derive(Clone, Copy, Debug, Default)]

@@ -776,11 +776,13 @@ pub fn isqrt_u64_by_halves(v: u64) -> u64 {
 /// raw frame's range (its largest `|c − d|`) wastes bits whenever that peak
 /// sits where the window is small: a speech onset at the frame's end, for
 /// example, sets the shift while the windowed frame is tens of dB quieter,
-/// and the rounding then buries the weak bands (0.31–0.35 dB at R = 40 on
-/// three clean corpus clips, 0.35 dB on one through `tiny16k-10`). A model
-/// in numpy (16-bit windowed frame, exact FFT, against float64; speech16k-40
-/// on those three clips) gives 0.20–0.35 dB with the raw-range shift,
-/// 0.009–0.013 dB with the windowed frame's exact peak, and 0.025–0.042 dB
+/// and the rounding then buries the weak bands (0.28–0.31 dB at R = 40 on
+/// two clean corpus clips and 1.01 dB at R = 60 on a third, 0.35 dB on one
+/// through `tiny16k-10`). A model in numpy (16-bit windowed frame, exact
+/// FFT, against float64; speech16k-40 on those three clips;
+/// `tests/python/fixed_point_models.py`) gives 0.20–0.35 dB at R = 40 with
+/// the raw-range shift, 0.009–0.013 dB with the windowed frame's exact
+/// peak, and 0.025–0.042 dB
 /// with this bound over eight segments (0.016–0.022 dB over sixteen, which
 /// cost 460 more Cortex-M4 instructions per frame): per segment, its largest
 /// `|c − d|` times its largest window coefficient. It costs one range per
