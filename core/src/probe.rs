@@ -27,10 +27,10 @@ pub enum Stage {
     /// Power or magnitude, once per bin (the fixed path also adds back the
     /// frame's offset here).
     Spectrum = 2,
-    /// Filterbank accumulation and gains (the fixed path also takes the log
-    /// here, band by band).
+    /// Filterbank accumulation and gains, and the overlap's restore.
     Mel = 3,
-    /// Log and floor (in the fixed path only the overlap restore remains).
+    /// The stages after the filterbank: the log (and floor) by default,
+    /// whatever chain the front end was built with otherwise.
     Log = 4,
 }
 
