@@ -164,16 +164,21 @@ fn f32_stays_at_its_measured_level_on_the_corpus() {
 /// f64 reference. MFCC mixes every band into every coefficient, the bands
 /// far below a frame's loudest too, which no log-mel tolerance covers (R
 /// selects bands), so it is compared on frames clipped 60 dB below their
-/// loudest band (both sides), and the unclipped figure is printed beside it.
-/// Measured: MFCC clipped f32 2.4e-3, fixed16 3.3 (unclipped 0.63 and 435,
-/// from bands at the floor on one side only); PCEN f32 1.6e-4, fixed16 0.19.
-/// Held within 5e-3, 5, 5e-4 and 0.4.
+/// loudest band (both sides), and the unclipped figure is printed beside it;
+/// the chains with a `RangeFloor` stage (60 dB) before the MFCC do that
+/// clipping on the board. Measured: MFCC clipped f32 2.4e-3, fixed16 3.3
+/// (unclipped 0.63 and 435, from bands at the floor on one side only), with
+/// the stage 2.4e-3 and 3.3; PCEN f32 1.6e-4, fixed16 0.19. Held within
+/// 5e-3, 5, 5e-4 and 0.4.
 #[test]
 fn model_input_stages_on_speech() {
+    use stapes_core::fixed::types::I8F8;
     use stapes_core::int_fft::Fixed16;
     use stapes_core::pcen::{FloatPcen, PcenParams};
     use stapes_core::pcen_fixed::FixedPcen;
+    use stapes_core::stage::Then;
     use stapes_core::table::FilterbankForm;
+    use stapes_core::{FixedLog, FixedMfcc, FloatLog, FloatMfcc, RangeFloor};
     use stapes_sim::dct::DctTables;
     use stapes_sim::generate::GeneratedTables;
     use stapes_sim::reference::Reference;
@@ -211,8 +216,9 @@ fn model_input_stages_on_speech() {
             .collect()
     };
     let clip = |v: &[f64], top: f64| -> Vec<f64> { v.iter().map(|&x| x.max(top - 60.0)).collect() };
-    // [f32 clipped, fixed16 clipped, f32 unclipped, fixed16 unclipped, PCEN f32, PCEN fixed16]
-    let mut worst = [0.0f64; 6];
+    // [f32 clipped, fixed16 clipped, f32 unclipped, fixed16 unclipped, PCEN f32, PCEN fixed16,
+    //  f32 and fixed16 chains with a RangeFloor of 60 dB before the MFCC]
+    let mut worst = [0.0f64; 8];
     let mut clips = 0;
     for entry in std::fs::read_dir(dir.join("16000")).unwrap() {
         let path = entry.unwrap().path();
@@ -269,6 +275,52 @@ fn model_input_stages_on_speech() {
                 1,
             );
         }
+        // The chains with the relative floor as a stage, against the
+        // reference clipped 60 dB below its own loudest band.
+        let want = |i: usize| {
+            let r = &logs[i];
+            dct.apply_f64(&clip(r, r.iter().cloned().fold(f64::MIN, f64::max)))
+        };
+        let mut m32 = Box::new(
+            stapes_core::FloatFrontEnd::<4096, 4096, 40, _>::with_stages(
+                c,
+                t.view_f32(FilterbankForm::Sparse),
+                Then(
+                    FloatLog::for_config(&c),
+                    Then(
+                        RangeFloor::new(60.0f32),
+                        FloatMfcc::<13>::new(dct.view_f32()).unwrap(),
+                    ),
+                ),
+            )
+            .unwrap(),
+        );
+        let mut rest = &x[..];
+        while let Some(f) = m32.next_frame(&mut rest) {
+            for (g, w) in f.bands.iter().zip(want(f.index as usize)) {
+                worst[6] = worst[6].max((*g as f64 - w).abs());
+            }
+        }
+        let mut m16 = Box::new(
+            stapes_core::FixedFrontEnd::<Fixed16, 4096, 4096, 40, _>::with_stages(
+                c,
+                fixed,
+                Then(
+                    FixedLog::<40>::for_tables(&fixed),
+                    Then(
+                        RangeFloor::new(I8F8::from_num(60)),
+                        FixedMfcc::<13>::new(dct.view_q15()).unwrap(),
+                    ),
+                ),
+            )
+            .unwrap(),
+        );
+        let mut rest = &x[..];
+        while let Some(f) = m16.next_frame(&mut rest) {
+            for (g, w) in f.bands.iter().zip(want(f.index as usize)) {
+                worst[7] = worst[7].max((g.to_num::<f64>() - w).abs());
+            }
+        }
         let mut p32 = Box::new(
             stapes_core::FloatFrontEnd::<4096, 4096, 40, _>::with_stages(
                 c,
@@ -299,12 +351,14 @@ fn model_input_stages_on_speech() {
         }
     }
     println!(
-        "{clips} clips: MFCC clipped 60 dB f32 {:.2e}, fixed16 {:.3} (unclipped {:.2e}, {:.1}); PCEN f32 {:.2e}, fixed16 {:.3}",
-        worst[0], worst[1], worst[2], worst[3], worst[4], worst[5]
+        "{clips} clips: MFCC clipped 60 dB f32 {:.2e}, fixed16 {:.3} (unclipped {:.2e}, {:.1}; with a RangeFloor stage {:.2e}, {:.3}); PCEN f32 {:.2e}, fixed16 {:.3}",
+        worst[0], worst[1], worst[2], worst[3], worst[6], worst[7], worst[4], worst[5]
     );
     assert!(clips >= 150, "{clips} clips");
     assert!(worst[0] <= 5e-3, "f32 MFCC {:.2e}", worst[0]);
     assert!(worst[1] <= 5.0, "fixed16 MFCC {:.3}", worst[1]);
+    assert!(worst[6] <= 5e-3, "f32 MFCC after RangeFloor {:.2e}", worst[6]);
+    assert!(worst[7] <= 5.0, "fixed16 MFCC after RangeFloor {:.3}", worst[7]);
     assert!(worst[4] <= 5e-4, "f32 PCEN {:.2e}", worst[4]);
     assert!(worst[5] <= 0.4, "fixed16 PCEN {:.3}", worst[5]);
 }
