@@ -357,8 +357,16 @@ fn model_input_stages_on_speech() {
     assert!(clips >= 150, "{clips} clips");
     assert!(worst[0] <= 5e-3, "f32 MFCC {:.2e}", worst[0]);
     assert!(worst[1] <= 5.0, "fixed16 MFCC {:.3}", worst[1]);
-    assert!(worst[6] <= 5e-3, "f32 MFCC after RangeFloor {:.2e}", worst[6]);
-    assert!(worst[7] <= 5.0, "fixed16 MFCC after RangeFloor {:.3}", worst[7]);
+    assert!(
+        worst[6] <= 5e-3,
+        "f32 MFCC after RangeFloor {:.2e}",
+        worst[6]
+    );
+    assert!(
+        worst[7] <= 5.0,
+        "fixed16 MFCC after RangeFloor {:.3}",
+        worst[7]
+    );
     assert!(worst[4] <= 5e-4, "f32 PCEN {:.2e}", worst[4]);
     assert!(worst[5] <= 0.4, "fixed16 PCEN {:.3}", worst[5]);
 }
