@@ -8,30 +8,6 @@ use stapes_sim::generate::GeneratedTables;
 use stapes_sim::reference::Reference;
 use stapes_sim::run::Samples;
 
-/// The paper's formula in f64: smoother from the first frame's energies,
-/// `M = (1 − s)·M + s·E`, `P = (E/(ε + M)^α + δ)^r − δ^r`.
-fn pcen_f64(frames: &[Vec<f64>], p: PcenParams, s: f64) -> Vec<Vec<f64>> {
-    let (a, d, r, e) = (
-        p.alpha as f64,
-        p.delta as f64,
-        p.root as f64,
-        p.epsilon as f64,
-    );
-    let mut m = frames[0].clone();
-    frames
-        .iter()
-        .map(|row| {
-            row.iter()
-                .zip(m.iter_mut())
-                .map(|(&x, mi)| {
-                    *mi = (1.0 - s) * *mi + s * x;
-                    (x / (e + *mi).powf(a) + d).powf(r) - d.powf(r)
-                })
-                .collect()
-        })
-        .collect()
-}
-
 /// On the demo clip through every preset: the f32 stage chained after the
 /// filterbank equals the stage applied to the front end's own energies
 /// (bit for bit), and stays within 1e-5 (absolute, PCEN units) of the f64
@@ -61,9 +37,9 @@ fn float_pcen_matches_its_f64_model() {
         let mut alone = FloatPcen::<64>::new(p, s).unwrap();
         let clip =
             stapes_sim::synth::demo_clip(c.sample_rate_hz, stapes_sim::synth::DEMO_SEED).samples;
-        let reference = pcen_f64(
+        let reference = stapes_sim::model_input::pcen_f64(
             &Reference::new(&c).energies(&Samples::I16(clip.clone()).to_f64()),
-            p,
+            &p,
             s as f64,
         );
         let (mut a, mut b) = (&clip[..], &clip[..]);
@@ -150,10 +126,10 @@ fn fixed_pcen_matches_its_f64_model() {
             );
         }
         let s = p.smoothing(hop_s) as f64;
-        let own_model = pcen_f64(&own_energies, p, s);
-        let reference = pcen_f64(
+        let own_model = stapes_sim::model_input::pcen_f64(&own_energies, &p, s);
+        let reference = stapes_sim::model_input::pcen_f64(
             &Reference::new(&c).energies(&Samples::I16(clip.clone()).to_f64()),
-            p,
+            &p,
             s,
         );
         let (mut own, mut whole) = (0.0f64, 0.0f64);

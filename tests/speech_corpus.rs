@@ -194,27 +194,6 @@ fn model_input_stages_on_speech() {
         p.smoothing(hop_s),
         stapes_sim::model_input::fixed_pcen_params(&p, hop_s),
     );
-    let pcen_f64 = |frames: &[Vec<f64>]| -> Vec<Vec<f64>> {
-        let (a, d, r, e) = (
-            p.alpha as f64,
-            p.delta as f64,
-            p.root as f64,
-            p.epsilon as f64,
-        );
-        let mut m = frames[0].clone();
-        frames
-            .iter()
-            .map(|row| {
-                row.iter()
-                    .zip(m.iter_mut())
-                    .map(|(&x, mi)| {
-                        *mi = (1.0 - s as f64) * *mi + s as f64 * x;
-                        (x / (e + *mi).powf(a) + d).powf(r) - d.powf(r)
-                    })
-                    .collect()
-            })
-            .collect()
-    };
     let clip = |v: &[f64], top: f64| -> Vec<f64> { v.iter().map(|&x| x.max(top - 60.0)).collect() };
     // [f32 clipped, fixed16 clipped, f32 unclipped, fixed16 unclipped, PCEN f32, PCEN fixed16,
     //  f32 and fixed16 chains with a RangeFloor of 60 dB before the MFCC]
@@ -237,7 +216,7 @@ fn model_input_stages_on_speech() {
         let reference = Reference::new(&c);
         let input = Samples::I16(x.clone()).to_f64();
         let logs = reference.run(&input);
-        let pcen_ref = pcen_f64(&reference.energies(&input));
+        let pcen_ref = stapes_sim::model_input::pcen_f64(&reference.energies(&input), &p, s as f64);
         let mut mfcc = |levels: Vec<f64>, i: usize, slot: usize| {
             let r = &logs[i];
             let top = r.iter().cloned().fold(f64::MIN, f64::max);

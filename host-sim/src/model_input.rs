@@ -101,3 +101,35 @@ pub fn fixed_pcen_params(
         delta_root: soft((params.delta as f64).powf(root)),
     }
 }
+
+/// PCEN in f64 (the checks' model, Wang et al. 2017): per band the smoother
+/// `M = (1 − s)·M + s·E`, started at the first frame's energies, and
+/// `P = (E/(ε + M)^α + δ)^r − δ^r`, for linear band energies `frames`.
+pub fn pcen_f64(
+    frames: &[Vec<f64>],
+    params: &stapes_core::pcen::PcenParams,
+    smoothing: f64,
+) -> Vec<Vec<f64>> {
+    let Some(first) = frames.first() else {
+        return Vec::new();
+    };
+    let (a, d, r, e) = (
+        params.alpha as f64,
+        params.delta as f64,
+        params.root as f64,
+        params.epsilon as f64,
+    );
+    let mut m = first.clone();
+    frames
+        .iter()
+        .map(|row| {
+            row.iter()
+                .zip(m.iter_mut())
+                .map(|(&x, mi)| {
+                    *mi = (1.0 - smoothing) * *mi + smoothing * x;
+                    (x / (e + *mi).powf(a) + d).powf(r) - d.powf(r)
+                })
+                .collect()
+        })
+        .collect()
+}
