@@ -21,6 +21,12 @@
 /* spectrum = magnitude */
 /* log = natural */
 /* floor_db = -217.14725 */
+/* stages.pcen = off */
+/* stages.range_floor = off */
+/* stages.mfcc = off */
+/* stages.normalise = false */
+/* stages.quantise = off */
+/* stages.model_window = off */
 #define STAPES_DSR8K_23_FINGERPRINT 0x6384bfbbu
 #define STAPES_DSR8K_23_SAMPLE_RATE_HZ 8000u
 #define STAPES_DSR8K_23_WINDOW_SAMPLES 200u

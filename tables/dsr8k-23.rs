@@ -19,6 +19,7 @@ pub const CONFIG: stapes_core::config::FeatureConfig = stapes_core::config::Feat
     spectrum: stapes_core::config::SpectrumKind::Magnitude,
     log: stapes_core::config::LogKind::Natural,
     floor_db: -217.14725,
+    stages: stapes_core::config::StageConfig::NONE,
 };
 
 /// `CONFIG.fingerprint()`, checked when a front end is built.

@@ -21,6 +21,12 @@
 /* spectrum = power */
 /* log = decibel */
 /* floor_db = -100 */
+/* stages.pcen = off */
+/* stages.range_floor = off */
+/* stages.mfcc = off */
+/* stages.normalise = false */
+/* stages.quantise = off */
+/* stages.model_window = off */
 #define STAPES_SPEECH16K_40_FINGERPRINT 0x7e159e0du
 #define STAPES_SPEECH16K_40_SAMPLE_RATE_HZ 16000u
 #define STAPES_SPEECH16K_40_WINDOW_SAMPLES 512u

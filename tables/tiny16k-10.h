@@ -21,6 +21,12 @@
 /* spectrum = power */
 /* log = decibel */
 /* floor_db = -100 */
+/* stages.pcen = off */
+/* stages.range_floor = off */
+/* stages.mfcc = off */
+/* stages.normalise = false */
+/* stages.quantise = off */
+/* stages.model_window = off */
 #define STAPES_TINY16K_10_FINGERPRINT 0x8c23368au
 #define STAPES_TINY16K_10_SAMPLE_RATE_HZ 16000u
 #define STAPES_TINY16K_10_WINDOW_SAMPLES 256u

@@ -73,6 +73,7 @@ fn random_config(r: &mut impl Rng) -> FeatureConfig {
             spectrum: [SpectrumKind::Power, SpectrumKind::Magnitude][r.random_range(0..2)],
             log: [LogKind::Decibel, LogKind::Natural][r.random_range(0..2)],
             floor_db: -r.random_range(60.0..127.0),
+            stages: stapes_core::config::StageConfig::NONE,
         };
         if c.validate().is_ok() {
             return c;

@@ -27,16 +27,20 @@
 
 use core::fmt;
 
-use crate::config::{CONFIG_BYTES, FeatureConfig};
+use crate::config::{CONFIG_BYTES, FeatureConfig, STAGE_CONFIG_BYTES, StageConfig};
 use crate::crc32::Crc32;
 use crate::fixed_tables::{FixedParams, FixedTableError, FixedTables};
+use crate::stage_tables::{FixedStageParams, StageTableError, StageTables};
 use crate::table::{BinSpan, Filterbank, FilterbankForm, TableError, TableView, WeightType};
 
 /// First eight bytes of every blob.
 pub const MAGIC: [u8; 8] = *b"STAPESTB";
 /// Format version the generator writes. Version 2 added the Q31 window
-/// ([`SectionKind::WindowQ31`]) that the 32-bit fixed path reads.
-pub const FORMAT_VERSION: u16 = 2;
+/// ([`SectionKind::WindowQ31`]) that the 32-bit fixed path reads; version 3
+/// the optional sections of the stages after the filterbank
+/// ([`SectionKind::StageConfig`] and the tables [`TableBlob::stage_tables`]
+/// reads). Versions 1 and 2 still parse (their configurations have no stages).
+pub const FORMAT_VERSION: u16 = 3;
 /// Oldest format version this parser reads: a version-1 blob gives `f32` and
 /// Q15 views, and its fixed-point tables are refused as missing the Q31
 /// window (regenerate it).
@@ -83,6 +87,24 @@ pub enum SectionKind {
     FixedParams = 14,
     /// Window, Q31 (`i32`), read by the 32-bit fixed path (format version 2).
     WindowQ31 = 15,
+    /// [`StageConfig::to_bytes`](crate::stage_config::StageConfig::to_bytes)
+    /// (format version 3; absent for a configuration without stages).
+    StageConfig = 16,
+    /// The MFCC's DCT matrix, f32.
+    DctF32 = 17,
+    /// The MFCC's DCT matrix, Q15.
+    DctQ15 = 18,
+    /// The MFCC's lifter, f32.
+    LifterF32 = 19,
+    /// The MFCC's lifter, Q11.
+    LifterQ11 = 20,
+    /// Normalisation means, f32.
+    NormaliseMean = 21,
+    /// Normalisation deviations, f32.
+    NormaliseDeviation = 22,
+    /// The fixed path's stage parameters,
+    /// [`FixedStageParams::to_words`](crate::stage_tables::FixedStageParams::to_words).
+    FixedStageParams = 23,
 }
 
 impl SectionKind {
@@ -104,6 +126,14 @@ impl SectionKind {
             SectionKind::TwiddlesQ31 => "twiddles q31",
             SectionKind::FixedParams => "fixed-point constants",
             SectionKind::WindowQ31 => "window q31",
+            SectionKind::StageConfig => "stage configuration",
+            SectionKind::DctF32 => "dct f32",
+            SectionKind::DctQ15 => "dct q15",
+            SectionKind::LifterF32 => "lifter f32",
+            SectionKind::LifterQ11 => "lifter q11",
+            SectionKind::NormaliseMean => "normalisation means",
+            SectionKind::NormaliseDeviation => "normalisation deviations",
+            SectionKind::FixedStageParams => "fixed-point stage constants",
         }
     }
 }
@@ -191,6 +221,8 @@ pub enum BlobError {
     Table(TableError),
     /// The fixed-point sections hold values no generator writes.
     FixedContents(FixedTableError),
+    /// The stage sections do not fit the configuration's stages.
+    StageTables(StageTableError),
 }
 
 impl From<TableError> for BlobError {
@@ -261,6 +293,7 @@ impl fmt::Display for BlobError {
             ),
             BlobError::Table(e) => write!(f, "table blob: {e}"),
             BlobError::FixedContents(e) => write!(f, "table blob: {e}"),
+            BlobError::StageTables(e) => write!(f, "table blob: {e}"),
         }
     }
 }
@@ -347,7 +380,12 @@ impl<'a> TableBlob<'a> {
         };
         let raw = blob.section_bytes(SectionKind::Config)?;
         let raw: &[u8; CONFIG_BYTES] = raw.try_into().map_err(|_| BlobError::BadConfig)?;
-        let config = FeatureConfig::from_bytes(raw).ok_or(BlobError::BadConfig)?;
+        let mut config = FeatureConfig::from_bytes(raw).ok_or(BlobError::BadConfig)?;
+        if let Ok(raw) = blob.section_bytes(SectionKind::StageConfig) {
+            let raw: &[u8; STAGE_CONFIG_BYTES] =
+                raw.try_into().map_err(|_| BlobError::BadConfig)?;
+            config.stages = StageConfig::from_bytes(raw).ok_or(BlobError::BadConfig)?;
+        }
         if config.fingerprint() != le_u32(bytes, 16) {
             return Err(BlobError::BadConfig);
         }
@@ -439,6 +477,50 @@ impl<'a> TableBlob<'a> {
             },
             other => BlobError::FixedContents(other),
         })?;
+        Ok(tables)
+    }
+
+    /// The checked tables of the stages after the filterbank (empty where the
+    /// configuration has no such stage; a blob older than version 3 has
+    /// none).
+    pub fn stage_tables(&self) -> Result<StageTables<'a>, BlobError> {
+        let or_empty = |kind| -> Result<&'a [u8], BlobError> {
+            match self.section_bytes(kind) {
+                Ok(b) => Ok(b),
+                Err(_) => Ok(&[]),
+            }
+        };
+        let cast = |kind, raw: &'a [u8]| -> Result<&'a [f32], BlobError> {
+            bytemuck::try_cast_slice(raw).map_err(|_| BlobError::BadSectionLength { kind })
+        };
+        let cast16 = |kind, raw: &'a [u8]| -> Result<&'a [i16], BlobError> {
+            bytemuck::try_cast_slice(raw).map_err(|_| BlobError::BadSectionLength { kind })
+        };
+        let fixed = match self.section::<i32>(SectionKind::FixedStageParams) {
+            Ok(words) => {
+                FixedStageParams::from_words(words).ok_or(BlobError::BadSectionLength {
+                    kind: SectionKind::FixedStageParams,
+                })?
+            }
+            Err(BlobError::MissingSection { .. }) => FixedStageParams::NONE,
+            Err(e) => return Err(e),
+        };
+        let tables = StageTables {
+            dct_f32: cast(SectionKind::DctF32, or_empty(SectionKind::DctF32)?)?,
+            dct_q15: cast16(SectionKind::DctQ15, or_empty(SectionKind::DctQ15)?)?,
+            lifter_f32: cast(SectionKind::LifterF32, or_empty(SectionKind::LifterF32)?)?,
+            lifter_q11: cast16(SectionKind::LifterQ11, or_empty(SectionKind::LifterQ11)?)?,
+            mean: cast(
+                SectionKind::NormaliseMean,
+                or_empty(SectionKind::NormaliseMean)?,
+            )?,
+            deviation: cast(
+                SectionKind::NormaliseDeviation,
+                or_empty(SectionKind::NormaliseDeviation)?,
+            )?,
+            fixed,
+        };
+        tables.check(&self.config).map_err(BlobError::StageTables)?;
         Ok(tables)
     }
 }

@@ -20,7 +20,12 @@
 use core::fmt;
 
 use crate::crc32::Crc32;
+use crate::quantise::CodeRange;
 use crate::scale;
+pub use crate::stage_config::{
+    MfccConfig, ModelWindowConfig, QuantiseConfig, RangeFloorConfig, STAGE_CONFIG_BYTES,
+    StageConfig,
+};
 
 /// Largest FFT length the configuration accepts (a compile-time FFT must exist).
 pub const MAX_FFT_POINTS: usize = 4096;
@@ -144,6 +149,10 @@ pub struct FeatureConfig {
     /// Energy floor in dB (`10·log10` of the smallest band energy kept),
     /// whatever the output log; the output never goes below it.
     pub floor_db: f32,
+    /// The stages after the filterbank (PCEN, range floor, MFCC,
+    /// normalisation, quantisation, the model's window);
+    /// [`StageConfig::NONE`] for plain log-mel frames.
+    pub stages: StageConfig,
 }
 
 /// Why a configuration was rejected. [`fmt::Display`] gives the full sentence
@@ -217,6 +226,15 @@ pub enum ConfigError {
     },
     /// The ES 201 108 construction fixes its own weights.
     GainNotForRoundedBins,
+    /// Two stages that cannot be chained.
+    StageConflict {
+        /// The stage at fault.
+        field: &'static str,
+        /// The stage it conflicts with.
+        with: &'static str,
+        /// Why, and what to change.
+        fix: &'static str,
+    },
 }
 
 impl ConfigError {
@@ -232,6 +250,7 @@ impl ConfigError {
             }
             ConfigError::EmptyBand { .. } | ConfigError::SharedCentreBin { .. } => "bands",
             ConfigError::GainNotForRoundedBins => "band_gain",
+            ConfigError::StageConflict { field, .. } => field,
         }
     }
 }
@@ -308,6 +327,9 @@ impl fmt::Display for ConfigError {
                  rounded-centre-bins (that construction fixes its own weights): allowed \
                  peak-one; use band_gain = peak-one or triangles = exact-frequency"
             ),
+            ConfigError::StageConflict { field, with, fix } => {
+                write!(f, "`{field}` cannot be combined with `{with}`: {fix}")
+            }
         }
     }
 }
@@ -377,6 +399,8 @@ fn check_float(
 pub enum Value {
     /// An integer field.
     Int(u32),
+    /// A signed integer field.
+    Signed(i32),
     /// A float field.
     Float(f32),
 }
@@ -385,6 +409,7 @@ impl fmt::Display for Value {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
             Value::Int(v) => write!(f, "{v}"),
+            Value::Signed(v) => write!(f, "{v}"),
             Value::Float(v) => write!(f, "{v}"),
         }
     }
@@ -394,7 +419,8 @@ impl fmt::Display for Value {
 pub const CONFIG_BYTES: usize = 60;
 
 impl FeatureConfig {
-    /// Checks every field and the band layout this configuration implies.
+    /// Checks every field, the band layout this configuration implies and the
+    /// stages after the filterbank.
     ///
     /// Uses `f64` arithmetic (through `libm`) to place the bands; call it on the
     /// host or once at start-up, never on the per-frame path.
@@ -488,13 +514,125 @@ impl FeatureConfig {
             "use a floor such as -100 dB (energies below it are clamped)",
         )?;
         match self.triangles {
-            TrianglePlacement::ExactFrequency => self.check_exact_bands(),
+            TrianglePlacement::ExactFrequency => self.check_exact_bands()?,
             TrianglePlacement::RoundedCentreBins => {
                 if self.band_gain != BandGain::PeakOne {
                     return Err(ConfigError::GainNotForRoundedBins);
                 }
-                self.check_rounded_bands()
+                self.check_rounded_bands()?
             }
+        }
+        self.check_stages()
+    }
+
+    fn check_stages(&self) -> Result<(), ConfigError> {
+        let s = &self.stages;
+        if let Some(p) = s.pcen {
+            let fields = [
+                ("stages.pcen.alpha", p.alpha, 1e-6, 1.0),
+                ("stages.pcen.delta", p.delta, 1e-12, 1e6),
+                ("stages.pcen.root", p.root, 1e-6, 1.0),
+                ("stages.pcen.epsilon", p.epsilon, 1e-30, 1e6),
+                ("stages.pcen.time_constant_s", p.time_constant_s, 1e-4, 1e4),
+            ];
+            for (field, v, lo, hi) in fields {
+                check_float(
+                    field,
+                    v,
+                    lo,
+                    hi,
+                    "see the PCEN defaults (alpha 0.98, delta 2, root 0.5, epsilon 1e-6, time constant 0.4 s)",
+                )?;
+            }
+            if s.range_floor.is_some() {
+                return Err(ConfigError::StageConflict {
+                    field: "stages.range_floor",
+                    with: "stages.pcen",
+                    fix: "the range floor acts on log values and PCEN replaces the log; drop one",
+                });
+            }
+            if s.mfcc.is_some() {
+                return Err(ConfigError::StageConflict {
+                    field: "stages.mfcc",
+                    with: "stages.pcen",
+                    fix: "MFCC transforms log-mel values and PCEN replaces the log; drop one",
+                });
+            }
+        }
+        if let Some(r) = s.range_floor {
+            check_float(
+                "stages.range_floor.below_peak_db",
+                r.below_peak_db,
+                1e-3,
+                300.0,
+                "give how far below each frame's loudest value the floor sits, such as 60 dB",
+            )?;
+        }
+        if let Some(m) = s.mfcc {
+            check_int(
+                "stages.mfcc.coefficients",
+                m.coefficients,
+                1,
+                self.bands,
+                "keep at most one coefficient per mel band",
+            )?;
+            if let Some(l) = m.lifter {
+                check_int(
+                    "stages.mfcc.lifter",
+                    l,
+                    1,
+                    1000,
+                    "use a lifter parameter such as 22, or none",
+                )?;
+            }
+        }
+        if let Some(q) = s.quantise {
+            check_float(
+                "stages.quantise.scale",
+                q.scale,
+                1e-6,
+                1e6,
+                "give the model input tensor's scale",
+            )?;
+            let (lo, hi) = q.codes.limits();
+            if !(lo..=hi).contains(&q.zero_point) {
+                return Err(ConfigError::OutOfRange {
+                    field: "stages.quantise.zero_point",
+                    value: Value::Signed(q.zero_point),
+                    min: Value::Signed(lo),
+                    max: Value::Signed(hi),
+                    fix: match q.codes {
+                        CodeRange::Int8 => "an int8 zero point lies in the code range",
+                        CodeRange::Uint8 => "a uint8 zero point lies in the code range",
+                    },
+                });
+            }
+        }
+        if let Some(w) = s.model_window {
+            check_int(
+                "stages.model_window.frames",
+                w.frames,
+                1,
+                1024,
+                "give the frames the model reads, such as 49",
+            )?;
+            check_int(
+                "stages.model_window.stride",
+                w.stride,
+                1,
+                w.frames,
+                "run the model every 1 to `frames` frames",
+            )?;
+        }
+        Ok(())
+    }
+
+    /// Values per frame after the stages: the MFCC's coefficients, or the
+    /// bands.
+    pub const fn stage_values(&self) -> usize {
+        match self.stages.mfcc {
+            Some(m) => m.coefficients as usize,
+            None => self.bands as usize,
         }
     }
 
@@ -579,7 +717,8 @@ impl FeatureConfig {
     }
 
     /// Decodes [`FeatureConfig::to_bytes`]; `None` when an enum tag is unknown
-    /// or a reserved byte is set. The result is not validated.
+    /// or a reserved byte is set. The result has no stages (they travel in
+    /// their own bytes, [`StageConfig::from_bytes`]) and is not validated.
     pub fn from_bytes(b: &[u8; CONFIG_BYTES]) -> Option<FeatureConfig> {
         let mut r = ByteReader { buf: b, at: 0 };
         let sample_rate_hz = r.u32();
@@ -647,14 +786,20 @@ impl FeatureConfig {
             spectrum,
             log,
             floor_db,
+            stages: StageConfig::NONE,
         })
     }
 
-    /// CRC-32 of [`FeatureConfig::to_bytes`]: ties a table to the configuration
-    /// it was generated for.
+    /// CRC-32 of [`FeatureConfig::to_bytes`], followed by
+    /// [`StageConfig::to_bytes`] when any stage is configured: ties a table
+    /// to the configuration it was generated for. A configuration without
+    /// stages keeps the fingerprint it had before stages existed.
     pub fn fingerprint(&self) -> u32 {
         let mut crc = Crc32::new();
         crc.update(&self.to_bytes());
+        if self.stages.any() {
+            crc.update(&self.stages.to_bytes());
+        }
         crc.finish()
     }
 }

@@ -90,6 +90,8 @@ pub mod sample;
 pub mod scale;
 pub mod spectrum_f32;
 pub mod stage;
+pub mod stage_config;
+pub mod stage_tables;
 pub mod table;
 pub mod window;
 
@@ -113,4 +115,6 @@ pub use pcen_fixed::{FixedPcen, FixedPcenParams};
 pub use quantise::{AffineQuantiser, CodeRange, FixedQuantiseStage, FixedQuantiser, QuantiseStage};
 pub use range_floor::RangeFloor;
 pub use stage::{FrameStage, Then, Unchanged};
+pub use stage_config::StageConfig;
+pub use stage_tables::StageTables;
 pub use table::{FilterbankForm, TableView};

@@ -25,6 +25,7 @@ pub const SPEECH16K_40: FeatureConfig = FeatureConfig {
     spectrum: SpectrumKind::Power,
     log: LogKind::Decibel,
     floor_db: -100.0,
+    stages: crate::config::StageConfig::NONE,
 };
 
 /// The filterbank construction of ETSI ES 201 108 (distributed speech
@@ -51,6 +52,7 @@ pub const DSR8K_23: FeatureConfig = FeatureConfig {
     log: LogKind::Natural,
     // ln floor of -50 expressed in dB: -50 · 10 / ln(10).
     floor_db: -217.147_24,
+    stages: crate::config::StageConfig::NONE,
 };
 
 /// A small front end: 16 kHz, periodic Hann, 256-sample window and FFT,

@@ -341,7 +341,8 @@ impl FixedQuantiser {
         self.range
     }
 
-    /// The code for a value in 1/256 units, and whether it was clamped.
+    /// The code for a value in the units its parts were derived for (1/256
+    /// for log and MFCC values), and whether it was clamped.
     #[inline]
     pub fn code(&self, raw: i32) -> (i32, bool) {
         let (lo, hi) = self.range.limits();
@@ -360,9 +361,10 @@ impl FixedQuantiser {
     }
 }
 
-/// A fixed-path value in 1/256 units.
+/// A fixed-path value as the integer the quantiser reads: its bits (1/256
+/// units for `I8F8` and `I24F8`, 1/65536 for `I16F16`).
 pub trait RawUnits: Copy {
-    /// The value's bits, in 1/256 units.
+    /// The value's bits.
     fn raw_units(self) -> i32;
 }
 
@@ -370,6 +372,15 @@ impl RawUnits for fixed::types::I8F8 {
     #[inline(always)]
     fn raw_units(self) -> i32 {
         self.to_bits() as i32
+    }
+}
+
+/// PCEN's output: 1/65536 units (the host derives the quantiser's parts for
+/// 16 fraction bits).
+impl RawUnits for fixed::types::I16F16 {
+    #[inline(always)]
+    fn raw_units(self) -> i32 {
+        self.to_bits()
     }
 }
 

@@ -93,10 +93,18 @@ fn load_input(
 }
 
 fn tables(a: &TablesArgs) -> Result<Outcome> {
-    let configs: Vec<(String, FeatureConfig, String)> = if a.all_presets {
+    type Statistics = Option<(Vec<f32>, Vec<f32>)>;
+    let configs: Vec<(String, FeatureConfig, String, Statistics)> = if a.all_presets {
         presets::ALL
             .iter()
-            .map(|(n, c)| (n.to_string(), *c, format!("stapes tables --preset {n}")))
+            .map(|(n, c)| {
+                (
+                    n.to_string(),
+                    *c,
+                    format!("stapes tables --preset {n}"),
+                    None,
+                )
+            })
             .collect()
     } else {
         let named = a.config.resolve()?;
@@ -107,10 +115,10 @@ fn tables(a: &TablesArgs) -> Result<Outcome> {
             _ if named.name.ends_with("-custom") => "stapes tables with custom options".to_string(),
             _ => format!("stapes tables --preset {}", named.name),
         };
-        vec![(named.name.clone(), named.config, command)]
+        vec![(named.name.clone(), named.config, command, named.statistics)]
     };
-    for (name, config, command) in configs {
-        let t = GeneratedTables::new(&config);
+    for (name, config, command, statistics) in configs {
+        let t = GeneratedTables::with_statistics(&config, statistics)?;
         let written = write_all(&t, &name, &a.out_dir, &command, BlobContents::ALL)?;
         crate::say_text!(size_report(&t, &name, Some(written.blob_bytes)));
         for line in crate::predict::report_lines(&config)? {
@@ -152,7 +160,21 @@ fn check_command(a: &CheckArgs) -> Result<Outcome> {
     }
     let run = check(arith, &config, tables, &samples, a.input_args.chunk_samples)?;
     crate::say_text!(report(&run, &band_centres(&config), !a.worst_bands));
-    Ok(if run.passed() {
+    let mut stages_passed = true;
+    if config.stages.any() {
+        let stage_tables = loaded.stage_tables()?;
+        let comparisons = crate::stage_check::check_stages(
+            arith,
+            &config,
+            tables,
+            &stage_tables,
+            &samples,
+            a.input_args.chunk_samples,
+        )?;
+        stages_passed = comparisons.iter().all(|c| c.passed());
+        crate::say_text!(crate::stage_check::stage_report(arith, &comparisons, None));
+    }
+    Ok(if run.passed() && stages_passed {
         Outcome::Success
     } else {
         Outcome::CheckFailed

@@ -10,6 +10,29 @@
 //! window = "hamming"
 //! pre_emphasis = 0.97
 //! ```
+//!
+//! The stages after the filterbank each have a table under `[stages]`;
+//! a table's presence turns its stage on:
+//!
+//! ```toml
+//! [stages.range_floor]
+//! below_peak_db = 60.0
+//! [stages.mfcc]
+//! coefficients = 10
+//! lifter = 22            # optional
+//! [stages.normalise]     # one mean and deviation per output value
+//! mean = [0.0, 0.0]
+//! deviation = [1.0, 1.0]
+//! [stages.quantise]
+//! scale = 2.0
+//! zero_point = 0
+//! codes = "int8"         # or "uint8"
+//! [stages.model_window]
+//! frames = 49
+//! stride = 1             # optional
+//! [stages.pcen]          # in place of the log; every key optional
+//! alpha = 0.98
+//! ```
 
 use std::path::{Path, PathBuf};
 
@@ -17,9 +40,12 @@ use anyhow::{Context, Result, anyhow, bail};
 use clap::Args;
 use serde::Deserialize;
 use stapes_core::config::{
-    BandGain, FeatureConfig, LogKind, MelScale, SpectrumKind, TrianglePlacement, WindowShape,
+    BandGain, FeatureConfig, LogKind, MelScale, MfccConfig, ModelWindowConfig, QuantiseConfig,
+    RangeFloorConfig, SpectrumKind, TrianglePlacement, WindowShape,
 };
+use stapes_core::pcen::PcenParams;
 use stapes_core::presets;
+use stapes_core::quantise::CodeRange;
 
 /// Configuration selection shared by every subcommand.
 #[derive(Args, Debug, Clone, Default)]
@@ -78,6 +104,24 @@ pub struct ConfigArgs {
     /// Override: energy floor in dB.
     #[arg(long, value_name = "DB", allow_hyphen_values = true)]
     pub floor_db: Option<f32>,
+    /// Stage: PCEN in place of the log, with its default parameters ("on"), or "off".
+    #[arg(long, value_name = "on|off")]
+    pub pcen: Option<String>,
+    /// Stage: floor each frame this many dB below its loudest value; "off" disables.
+    #[arg(long, value_name = "DB|off")]
+    pub range_floor_db: Option<String>,
+    /// Stage: MFCC with this many coefficients; "off" disables.
+    #[arg(long, value_name = "K|off")]
+    pub mfcc: Option<String>,
+    /// Stage: the MFCC's sinusoidal lifter parameter; "off" disables.
+    #[arg(long, value_name = "L|off")]
+    pub lifter: Option<String>,
+    /// Stage: quantise to codes, as SCALE,ZERO_POINT[,int8|uint8]; "off" disables.
+    #[arg(long, value_name = "S,Z[,CODES]|off", allow_hyphen_values = true)]
+    pub quantise: Option<String>,
+    /// Stage: the model's window, as FRAMES[,STRIDE]; "off" disables.
+    #[arg(long, value_name = "F[,K]|off")]
+    pub model_window: Option<String>,
 }
 
 /// A configuration and the name it goes by in reports and file names.
@@ -87,6 +131,9 @@ pub struct NamedConfig {
     pub name: String,
     /// The validated configuration.
     pub config: FeatureConfig,
+    /// Normalisation statistics (means, deviations) from the configuration
+    /// file, when it normalises.
+    pub statistics: Option<(Vec<f32>, Vec<f32>)>,
 }
 
 /// The TOML file layout: every field of [`FeatureConfig`] under its own name.
@@ -110,6 +157,196 @@ struct ConfigFile {
     spectrum: Option<String>,
     log: Option<String>,
     floor_db: Option<f32>,
+    stages: Option<StagesFile>,
+}
+
+/// `[stages]`: one table per stage.
+#[derive(Deserialize, Debug, Default)]
+#[serde(deny_unknown_fields)]
+struct StagesFile {
+    pcen: Option<PcenFile>,
+    range_floor: Option<RangeFloorFile>,
+    mfcc: Option<MfccFile>,
+    normalise: Option<NormaliseFile>,
+    quantise: Option<QuantiseFile>,
+    model_window: Option<ModelWindowFile>,
+}
+
+#[derive(Deserialize, Debug, Default)]
+#[serde(deny_unknown_fields)]
+struct PcenFile {
+    alpha: Option<f32>,
+    delta: Option<f32>,
+    root: Option<f32>,
+    epsilon: Option<f32>,
+    time_constant_s: Option<f32>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields)]
+struct RangeFloorFile {
+    below_peak_db: f32,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields)]
+struct MfccFile {
+    coefficients: u32,
+    lifter: Option<u32>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields)]
+struct NormaliseFile {
+    mean: Vec<f32>,
+    deviation: Vec<f32>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields)]
+struct QuantiseFile {
+    scale: f32,
+    zero_point: i32,
+    codes: Option<String>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields)]
+struct ModelWindowFile {
+    frames: u32,
+    stride: Option<u32>,
+}
+
+const CODES: &[(&str, CodeRange)] = &[("int8", CodeRange::Int8), ("uint8", CodeRange::Uint8)];
+
+/// Applies a configuration file's `[stages]` to `c`; returns its statistics.
+fn apply_stages_file(
+    c: &mut FeatureConfig,
+    file: StagesFile,
+) -> Result<Option<(Vec<f32>, Vec<f32>)>> {
+    let st = &mut c.stages;
+    if let Some(p) = file.pcen {
+        let d = PcenParams::DEFAULT;
+        st.pcen = Some(PcenParams {
+            alpha: p.alpha.unwrap_or(d.alpha),
+            delta: p.delta.unwrap_or(d.delta),
+            root: p.root.unwrap_or(d.root),
+            epsilon: p.epsilon.unwrap_or(d.epsilon),
+            time_constant_s: p.time_constant_s.unwrap_or(d.time_constant_s),
+        });
+    }
+    if let Some(r) = file.range_floor {
+        st.range_floor = Some(RangeFloorConfig {
+            below_peak_db: r.below_peak_db,
+        });
+    }
+    if let Some(m) = file.mfcc {
+        st.mfcc = Some(MfccConfig {
+            coefficients: m.coefficients,
+            lifter: m.lifter,
+        });
+    }
+    if let Some(q) = file.quantise {
+        st.quantise = Some(QuantiseConfig {
+            scale: q.scale,
+            zero_point: q.zero_point,
+            codes: match q.codes.as_deref() {
+                Some(t) => pick("stages.quantise.codes", t, CODES)?,
+                None => CodeRange::Int8,
+            },
+        });
+    }
+    if let Some(w) = file.model_window {
+        st.model_window = Some(ModelWindowConfig {
+            frames: w.frames,
+            stride: w.stride.unwrap_or(1),
+        });
+    }
+    Ok(file.normalise.map(|n| {
+        st.normalise = true;
+        (n.mean, n.deviation)
+    }))
+}
+
+fn parse_u32(field: &str, text: &str) -> Result<u32> {
+    text.trim().parse::<u32>().map_err(|_| {
+        anyhow!("`{field}` = \"{text}\" is not a whole number: give one such as 10, or off")
+    })
+}
+
+/// Applies the stage flags to `c`.
+fn apply_stage_flags(c: &mut FeatureConfig, a: &ConfigArgs) -> Result<()> {
+    let st = &mut c.stages;
+    if let Some(t) = &a.pcen {
+        st.pcen = match t.as_str() {
+            "on" => Some(PcenParams::DEFAULT),
+            "off" => None,
+            _ => bail!("`--pcen` = \"{t}\" is not known: give on or off"),
+        };
+    }
+    if let Some(t) = &a.range_floor_db {
+        st.range_floor =
+            on_off("range_floor_db", t)?.map(|below_peak_db| RangeFloorConfig { below_peak_db });
+    }
+    if let Some(t) = &a.mfcc {
+        st.mfcc = if t == "off" {
+            None
+        } else {
+            Some(MfccConfig {
+                coefficients: parse_u32("mfcc", t)?,
+                lifter: st.mfcc.and_then(|m| m.lifter),
+            })
+        };
+    }
+    if let Some(t) = &a.lifter {
+        let lifter = if t == "off" {
+            None
+        } else {
+            Some(parse_u32("lifter", t)?)
+        };
+        match &mut st.mfcc {
+            Some(m) => m.lifter = lifter,
+            None => bail!("`--lifter` acts on the MFCC stage, which is off: add --mfcc K"),
+        }
+    }
+    if let Some(t) = &a.quantise {
+        st.quantise = if t == "off" {
+            None
+        } else {
+            let parts: Vec<&str> = t.split(',').map(str::trim).collect();
+            let usage = || {
+                anyhow!(
+                    "`--quantise` = \"{t}\" is not SCALE,ZERO_POINT[,int8|uint8]: give for \
+                     example 0.5,-10,int8, or off"
+                )
+            };
+            if parts.len() < 2 || parts.len() > 3 {
+                return Err(usage());
+            }
+            Some(QuantiseConfig {
+                scale: parts[0].parse().map_err(|_| usage())?,
+                zero_point: parts[1].parse().map_err(|_| usage())?,
+                codes: match parts.get(2) {
+                    Some(c) => pick("quantise codes", c, CODES)?,
+                    None => CodeRange::Int8,
+                },
+            })
+        };
+    }
+    if let Some(t) = &a.model_window {
+        st.model_window = if t == "off" {
+            None
+        } else {
+            let mut parts = t.split(',');
+            let frames = parse_u32("model_window", parts.next().unwrap_or(""))?;
+            let stride = match parts.next() {
+                Some(k) => parse_u32("model_window stride", k)?,
+                None => 1,
+            };
+            Some(ModelWindowConfig { frames, stride })
+        };
+    }
+    Ok(())
 }
 
 fn preset(name: &str) -> Result<FeatureConfig> {
@@ -192,6 +429,49 @@ pub fn describe(config: &FeatureConfig) -> Vec<(&'static str, String)> {
         ("spectrum", name_of(SPECTRA, config.spectrum).to_string()),
         ("log", name_of(LOGS, config.log).to_string()),
         ("floor_db", config.floor_db.to_string()),
+        (
+            "stages.pcen",
+            config.stages.pcen.map_or("off".into(), |p| {
+                format!(
+                    "alpha {} delta {} root {} epsilon {} time_constant_s {}",
+                    p.alpha, p.delta, p.root, p.epsilon, p.time_constant_s
+                )
+            }),
+        ),
+        (
+            "stages.range_floor",
+            config.stages.range_floor.map_or("off".into(), |r| {
+                format!("{} dB below the peak", r.below_peak_db)
+            }),
+        ),
+        (
+            "stages.mfcc",
+            config.stages.mfcc.map_or("off".into(), |m| {
+                format!(
+                    "{} coefficients, lifter {}",
+                    m.coefficients,
+                    m.lifter.map_or("off".into(), |l| l.to_string())
+                )
+            }),
+        ),
+        ("stages.normalise", config.stages.normalise.to_string()),
+        (
+            "stages.quantise",
+            config.stages.quantise.map_or("off".into(), |q| {
+                format!(
+                    "scale {} zero_point {} {}",
+                    q.scale,
+                    q.zero_point,
+                    name_of(CODES, q.codes)
+                )
+            }),
+        ),
+        (
+            "stages.model_window",
+            config.stages.model_window.map_or("off".into(), |w| {
+                format!("{} frames, stride {}", w.frames, w.stride)
+            }),
+        ),
     ]
 }
 
@@ -204,7 +484,7 @@ fn on_off(field: &str, text: &str) -> Result<Option<f32>> {
     })
 }
 
-fn from_file(path: &Path) -> Result<(String, FeatureConfig)> {
+fn from_file(path: &Path) -> Result<(String, FeatureConfig, Option<(Vec<f32>, Vec<f32>)>)> {
     let text = std::fs::read_to_string(path)
         .with_context(|| format!("cannot read configuration file {}", path.display()))?;
     let file: ConfigFile = toml::from_str(&text).map_err(|e| {
@@ -279,7 +559,11 @@ fn from_file(path: &Path) -> Result<(String, FeatureConfig)> {
         file.spectrum.as_deref(),
         file.log.as_deref(),
     )?;
-    Ok((stem, c))
+    let statistics = match file.stages {
+        Some(st) => apply_stages_file(&mut c, st)?,
+        None => None,
+    };
+    Ok((stem, c, statistics))
 }
 
 fn apply_names(
@@ -315,10 +599,14 @@ fn apply_names(
 impl ConfigArgs {
     /// Resolves preset, file and flags into a validated configuration.
     pub fn resolve(&self) -> Result<NamedConfig> {
-        let (mut name, mut c) = match (&self.preset, &self.config) {
-            (Some(p), _) => (p.clone(), preset(p)?),
+        let (mut name, mut c, statistics) = match (&self.preset, &self.config) {
+            (Some(p), _) => (p.clone(), preset(p)?, None),
             (None, Some(path)) => from_file(path)?,
-            (None, None) => (presets::DEFAULT_NAME.to_string(), presets::SPEECH16K_40),
+            (None, None) => (
+                presets::DEFAULT_NAME.to_string(),
+                presets::SPEECH16K_40,
+                None,
+            ),
         };
         let before = c;
         macro_rules! set {
@@ -351,12 +639,23 @@ impl ConfigArgs {
             self.spectrum.as_deref(),
             self.log.as_deref(),
         )?;
+        apply_stage_flags(&mut c, self)?;
         if c != before {
             name.push_str("-custom");
         }
         c.validate()
             .map_err(|e| anyhow!("invalid configuration: {e}"))?;
-        Ok(NamedConfig { name, config: c })
+        if c.stages.normalise && statistics.is_none() {
+            bail!(
+                "the configuration normalises but gives no statistics: add `mean` and \
+                 `deviation` under [stages.normalise] in the configuration file"
+            );
+        }
+        Ok(NamedConfig {
+            name,
+            config: c,
+            statistics,
+        })
     }
 
     /// Arguments selecting a named preset and nothing else.

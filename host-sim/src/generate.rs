@@ -56,6 +56,9 @@ pub struct GeneratedTables {
     /// Fixed-path constants; `None` when the floor is outside the fixed
     /// output's range (±128 output units).
     pub fixed_params: Option<FixedParams>,
+    /// The tables of the stages after the filterbank (DCT, statistics, the
+    /// fixed path's stage parameters).
+    pub stages: crate::model_input::GeneratedStageTables,
     /// What quantisation cost.
     pub quantisation: QuantisationReport,
 }
@@ -131,8 +134,32 @@ fn max_abs_diff(a: impl Iterator<Item = f64>, b: impl Iterator<Item = f64>) -> f
 }
 
 impl GeneratedTables {
-    /// Designs and quantises the tables of a validated configuration.
+    /// Designs and quantises the tables of a validated configuration, with
+    /// the normalisation statistics it needs (one mean and deviation per
+    /// output value) when it normalises.
+    pub fn with_statistics(
+        config: &FeatureConfig,
+        statistics: Option<(Vec<f32>, Vec<f32>)>,
+    ) -> anyhow::Result<GeneratedTables> {
+        let stages = crate::model_input::GeneratedStageTables::new(config, statistics)?;
+        let mut tables = Self::filterbank(config);
+        tables.stages = stages;
+        Ok(tables)
+    }
+
+    /// Designs and quantises the tables of a validated configuration that
+    /// does not normalise (a normalising one needs
+    /// [`GeneratedTables::with_statistics`]; here its statistics stay empty
+    /// and its stage tables fail their check).
     pub fn new(config: &FeatureConfig) -> GeneratedTables {
+        let mut tables = Self::filterbank(config);
+        if let Ok(stages) = crate::model_input::GeneratedStageTables::new(config, None) {
+            tables.stages = stages;
+        }
+        tables
+    }
+
+    fn filterbank(config: &FeatureConfig) -> GeneratedTables {
         let design = design(config);
         let mut report = QuantisationReport::default();
 
@@ -216,6 +243,12 @@ impl GeneratedTables {
             twiddles_q15,
             twiddles_q31,
             fixed_params: fixed_params(config),
+            stages: crate::model_input::GeneratedStageTables {
+                dct: None,
+                mean: Vec::new(),
+                deviation: Vec::new(),
+                fixed: stapes_core::stage_tables::FixedStageParams::NONE,
+            },
             design,
             window_f32,
             window_q15,

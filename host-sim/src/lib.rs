@@ -41,6 +41,8 @@ pub mod predict;
 pub mod reference;
 pub mod run;
 pub mod speed;
+pub mod stage_check;
+pub mod stages;
 pub mod sweep;
 pub mod synth;
 pub mod table_source;

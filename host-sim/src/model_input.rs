@@ -6,14 +6,21 @@ use anyhow::{Result, bail};
 use stapes_core::quantise::{CodeRange, FixedQuantiser};
 
 /// `(M, k)` with `M / 2^k` the nearest to `1 / (256·scale)` for the largest
-/// `k ≤ 62` that keeps `M` below 2^31 (a relative error under 2^-30).
+/// `k ≤ 62` that keeps `M` below 2^31 (a relative error under 2^-30), for
+/// values in 1/256 units.
 pub fn quantiser_parts(scale: f32) -> Result<(i32, u32)> {
+    quantiser_parts_for(scale, 8)
+}
+
+/// [`quantiser_parts`] for values with `fraction_bits` fraction bits (8 for
+/// log and MFCC values, 16 for PCEN's `I16F16`).
+pub fn quantiser_parts_for(scale: f32, fraction_bits: u32) -> Result<(i32, u32)> {
     if !(scale.is_normal() && scale > 0.0) {
         bail!(
             "quantiser scale {scale} is not a positive finite number: give the model input tensor's scale"
         );
     }
-    let ratio = 1.0 / (256.0 * scale as f64);
+    let ratio = 1.0 / (2f64.powi(fraction_bits as i32) * scale as f64);
     let mut best = None;
     for k in (0..=62u32).rev() {
         let m = (ratio * 2f64.powi(k as i32)).round();
@@ -132,4 +139,103 @@ pub fn pcen_f64(
                 .collect()
         })
         .collect()
+}
+
+/// The stage tables of one configuration, owned (the generator's output for
+/// the stages after the filterbank; [`GeneratedStageTables::view`] gives the
+/// core's [`StageTables`](stapes_core::StageTables)).
+#[derive(Clone, Debug, PartialEq)]
+pub struct GeneratedStageTables {
+    /// The MFCC's DCT matrix and lifter, if the configuration has MFCC.
+    pub dct: Option<crate::dct::DctTables>,
+    /// Per-value means (empty without normalisation).
+    pub mean: Vec<f32>,
+    /// Per-value standard deviations (empty without normalisation).
+    pub deviation: Vec<f32>,
+    /// The fixed path's integer parameters.
+    pub fixed: stapes_core::stage_tables::FixedStageParams,
+}
+
+impl GeneratedStageTables {
+    /// The stage tables of a validated `config`, with `statistics` (means and
+    /// deviations, one per output value) when it normalises.
+    pub fn new(
+        config: &stapes_core::FeatureConfig,
+        statistics: Option<(Vec<f32>, Vec<f32>)>,
+    ) -> Result<Self> {
+        let s = &config.stages;
+        let dct = s.mfcc.map(|m| {
+            crate::dct::DctTables::new(config.bands as usize, m.coefficients as usize, m.lifter)
+        });
+        let (mean, deviation) = match (s.normalise, statistics) {
+            (false, _) => (Vec::new(), Vec::new()),
+            (true, Some((m, d))) => {
+                let n = config.stage_values();
+                if m.len() != n || d.len() != n {
+                    bail!(
+                        "normalisation statistics hold {} means and {} deviations but the \
+                         configuration's frames have {n} values: give one of each per value",
+                        m.len(),
+                        d.len()
+                    );
+                }
+                if let Some(i) = d.iter().position(|v| !(v.is_finite() && *v > 0.0)) {
+                    bail!(
+                        "normalisation deviation {i} = {} is not a positive finite number: \
+                         give positive deviations",
+                        d[i]
+                    );
+                }
+                if let Some(i) = m.iter().position(|v| !v.is_finite()) {
+                    bail!("normalisation mean {i} is not finite: give finite means");
+                }
+                (m, d)
+            }
+            (true, None) => bail!(
+                "the configuration normalises but no statistics were given: add `mean` and \
+                 `deviation` under [stages.normalise] in the configuration file, or compute \
+                 them from clips with --statistics-from DIR"
+            ),
+        };
+        let mut fixed = stapes_core::stage_tables::FixedStageParams::NONE;
+        let hop_s = config.hop_samples as f32 / config.sample_rate_hz as f32;
+        if let Some(p) = &s.pcen {
+            fixed.pcen = fixed_pcen_params(p, hop_s);
+        }
+        if let Some(q) = s.quantise {
+            let bits = if s.pcen.is_some() { 16 } else { 8 };
+            let (m, k) = quantiser_parts_for(q.scale, bits)?;
+            fixed.quantise_multiplier = m;
+            fixed.quantise_shift = k;
+            fixed.quantise_fraction_bits = bits;
+        }
+        Ok(GeneratedStageTables {
+            dct,
+            mean,
+            deviation,
+            fixed,
+        })
+    }
+
+    /// The core's view of these tables.
+    pub fn view(&self) -> stapes_core::StageTables<'_> {
+        let dct = self.dct.as_ref();
+        stapes_core::StageTables {
+            dct_f32: dct.map_or(&[][..], |d| &d.matrix_f32),
+            dct_q15: dct.map_or(&[][..], |d| &d.matrix_q15),
+            lifter_f32: dct.and_then(|d| d.lifter_f32.as_deref()).unwrap_or(&[]),
+            lifter_q11: dct.and_then(|d| d.lifter_q11.as_deref()).unwrap_or(&[]),
+            mean: &self.mean,
+            deviation: &self.deviation,
+            fixed: self.fixed,
+        }
+    }
+
+    /// Bytes these tables take in flash (f32 and Q15 forms both).
+    pub fn flash_bytes(&self) -> usize {
+        let v = self.view();
+        4 * (v.dct_f32.len() + v.lifter_f32.len() + v.mean.len() + v.deviation.len())
+            + 2 * (v.dct_q15.len() + v.lifter_q11.len())
+            + 4 * stapes_core::stage_tables::FIXED_STAGE_WORDS
+    }
 }

@@ -41,10 +41,14 @@ impl LoadedTables {
                 Ok(loaded)
             }
             None => {
-                let NamedConfig { name, config } = config.resolve()?;
+                let NamedConfig {
+                    name,
+                    config,
+                    statistics,
+                } = config.resolve()?;
                 Ok(LoadedTables::Generated(
                     name,
-                    Box::new(GeneratedTables::new(&config)),
+                    Box::new(GeneratedTables::with_statistics(&config, statistics)?),
                 ))
             }
         }
@@ -98,6 +102,22 @@ impl LoadedTables {
 }
 
 impl LoadedTables {
+    /// The checked tables of the stages after the filterbank.
+    pub fn stage_tables(&self) -> Result<stapes_core::StageTables<'_>> {
+        match self {
+            LoadedTables::Generated(name, t) => {
+                let v = t.stages.view();
+                v.check(&t.config).map_err(|e| anyhow!("{name}: {e}"))?;
+                Ok(v)
+            }
+            LoadedTables::Blob(path, ..) => self
+                .blob()?
+                .expect("blob")
+                .stage_tables()
+                .map_err(|e| anyhow!("{path}: {e}")),
+        }
+    }
+
     /// Fixed-point tables in `form`.
     pub fn fixed_tables(&self, form: FilterbankForm) -> Result<FixedTables<'_>> {
         match self {

@@ -63,6 +63,25 @@ fn bytes_of<T: LeBytes>(items: &[T]) -> Vec<u8> {
 /// The sections of `tables` selected by `contents`, in blob order.
 pub fn sections(tables: &GeneratedTables, contents: BlobContents) -> Vec<(SectionKind, Vec<u8>)> {
     let mut out = vec![(SectionKind::Config, tables.config.to_bytes().to_vec())];
+    if tables.config.stages.any() {
+        out.push((
+            SectionKind::StageConfig,
+            tables.config.stages.to_bytes().to_vec(),
+        ));
+        let v = tables.stages.view();
+        let optional: [(SectionKind, Vec<u8>); 6] = [
+            (SectionKind::DctF32, bytes_of(v.dct_f32)),
+            (SectionKind::DctQ15, bytes_of(v.dct_q15)),
+            (SectionKind::LifterF32, bytes_of(v.lifter_f32)),
+            (SectionKind::LifterQ11, bytes_of(v.lifter_q11)),
+            (SectionKind::NormaliseMean, bytes_of(v.mean)),
+            (SectionKind::NormaliseDeviation, bytes_of(v.deviation)),
+        ];
+        out.extend(optional.into_iter().filter(|(_, b)| !b.is_empty()));
+        if v.fixed != stapes_core::stage_tables::FixedStageParams::NONE {
+            out.push((SectionKind::FixedStageParams, bytes_of(&v.fixed.to_words())));
+        }
+    }
     let compact = contents.compact && tables.has_compact();
     if contents.f32 {
         out.push((SectionKind::WindowF32, bytes_of(&tables.window_f32)));

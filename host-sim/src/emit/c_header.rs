@@ -210,6 +210,62 @@ pub fn c_header(tables: &GeneratedTables, prefix: &str, command: &str) -> String
             p.log2_to_output.to_bits()
         );
     }
+    if c.stages.any() {
+        let v = tables.stages.view();
+        let _ = writeln!(
+            s,
+            "/* Stages after the filterbank: values per frame after them. */"
+        );
+        let _ = writeln!(s, "#define {upper}_STAGE_VALUES {}u", c.stage_values());
+        if let Some(m) = c.stages.mfcc {
+            let _ = writeln!(s, "#define {upper}_MFCC_COEFFICIENTS {}u", m.coefficients);
+            let _ = writeln!(
+                s,
+                "/* DCT-II, orthonormal: coefficient k's row at k * BANDS. Q15 = raw / 32768; lifter Q11 = raw / 2048. */"
+            );
+        }
+        for (name, items) in [
+            ("dct_f32", v.dct_f32),
+            ("lifter_f32", v.lifter_f32),
+            ("normalise_mean", v.mean),
+            ("normalise_deviation", v.deviation),
+        ] {
+            if !items.is_empty() {
+                array(
+                    &mut s,
+                    "float",
+                    &format!("{prefix}_{name}"),
+                    items,
+                    6,
+                    c_float,
+                );
+            }
+        }
+        for (name, items) in [("dct_q15", v.dct_q15), ("lifter_q11", v.lifter_q11)] {
+            if !items.is_empty() {
+                array(
+                    &mut s,
+                    "int16_t",
+                    &format!("{prefix}_{name}"),
+                    items,
+                    12,
+                    |v| v.to_string(),
+                );
+            }
+        }
+        let _ = writeln!(
+            s,
+            "/* Fixed-path stage constants: PCEN alpha Q16, root Q16, smoothing Q31, epsilon, delta, delta^root (mantissa, exponent: m * 2^(e - 31)), quantiser multiplier, shift, input fraction bits, 2 reserved. */"
+        );
+        array(
+            &mut s,
+            "int32_t",
+            &format!("{prefix}_fixed_stage_params"),
+            &v.fixed.to_words(),
+            7,
+            |v| v.to_string(),
+        );
+    }
     let _ = writeln!(s);
     let _ = writeln!(s, "#endif /* {upper}_H */");
     s

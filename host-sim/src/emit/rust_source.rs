@@ -38,6 +38,148 @@ fn f32_literal(v: &f32) -> String {
     format!("{v:?}")
 }
 
+fn option<T>(v: Option<T>, f: impl Fn(T) -> String) -> String {
+    v.map_or("None".into(), |x| format!("Some({})", f(x)))
+}
+
+/// The `StageConfig` literal of `stages`.
+fn stage_literal(st: &stapes_core::StageConfig) -> String {
+    if !st.any() {
+        return "stapes_core::config::StageConfig::NONE".into();
+    }
+    let m = "stapes_core::stage_config";
+    let pcen = option(st.pcen, |p| {
+        format!(
+            "stapes_core::pcen::PcenParams {{ alpha: {:?}, delta: {:?}, root: {:?}, epsilon: {:?}, time_constant_s: {:?} }}",
+            p.alpha, p.delta, p.root, p.epsilon, p.time_constant_s
+        )
+    });
+    let floor = option(st.range_floor, |r| {
+        format!(
+            "{m}::RangeFloorConfig {{ below_peak_db: {:?} }}",
+            r.below_peak_db
+        )
+    });
+    let mfcc = option(st.mfcc, |x| {
+        format!(
+            "{m}::MfccConfig {{ coefficients: {}, lifter: {:?} }}",
+            x.coefficients, x.lifter
+        )
+    });
+    let quantise = option(st.quantise, |q| {
+        format!(
+            "{m}::QuantiseConfig {{ scale: {:?}, zero_point: {}, codes: stapes_core::quantise::CodeRange::{:?} }}",
+            q.scale, q.zero_point, q.codes
+        )
+    });
+    let window = option(st.model_window, |w| {
+        format!(
+            "{m}::ModelWindowConfig {{ frames: {}, stride: {} }}",
+            w.frames, w.stride
+        )
+    });
+    format!(
+        "stapes_core::config::StageConfig {{\n        pcen: {pcen},\n        range_floor: {floor},\n        mfcc: {mfcc},\n        normalise: {},\n        quantise: {quantise},\n        model_window: {window},\n    }}",
+        st.normalise
+    )
+}
+
+fn soft_literal(v: &stapes_core::pcen_fixed::Soft) -> String {
+    format!(
+        "stapes_core::pcen_fixed::Soft {{ mantissa: {:#010x}, exponent: {} }}",
+        v.mantissa, v.exponent
+    )
+}
+
+/// The stage tables' arrays and `STAGE_TABLES`, for a configuration with stages.
+fn stage_tables(s: &mut String, tables: &GeneratedTables) {
+    let v = tables.stages.view();
+    let _ = writeln!(s);
+    let _ = writeln!(
+        s,
+        "/// Values per frame after the stages (MFCC coefficients or bands)."
+    );
+    let _ = writeln!(
+        s,
+        "pub const STAGE_VALUES: usize = {};",
+        tables.config.stage_values()
+    );
+    let slice = |name: &str, len: usize| {
+        if len == 0 {
+            "&[]".to_string()
+        } else {
+            format!("&{name}")
+        }
+    };
+    for (name, items) in [
+        ("DCT_F32", v.dct_f32),
+        ("LIFTER_F32", v.lifter_f32),
+        ("NORMALISE_MEAN", v.mean),
+        ("NORMALISE_DEVIATION", v.deviation),
+    ] {
+        if !items.is_empty() {
+            array(s, name, "f32", items, 6, f32_literal);
+        }
+    }
+    for (name, items) in [("DCT_Q15", v.dct_q15), ("LIFTER_Q11", v.lifter_q11)] {
+        if !items.is_empty() {
+            array(s, name, "i16", items, 12, |v| v.to_string());
+        }
+    }
+    let f = &v.fixed;
+    let p = &f.pcen;
+    let _ = writeln!(s);
+    let _ = writeln!(
+        s,
+        "/// The tables of the stages after the filterbank (check with `STAGE_TABLES.check(&CONFIG)`)."
+    );
+    let _ = writeln!(
+        s,
+        "pub static STAGE_TABLES: stapes_core::stage_tables::StageTables<'static> = stapes_core::stage_tables::StageTables {{"
+    );
+    let _ = writeln!(s, "    dct_f32: {},", slice("DCT_F32", v.dct_f32.len()));
+    let _ = writeln!(s, "    dct_q15: {},", slice("DCT_Q15", v.dct_q15.len()));
+    let _ = writeln!(
+        s,
+        "    lifter_f32: {},",
+        slice("LIFTER_F32", v.lifter_f32.len())
+    );
+    let _ = writeln!(
+        s,
+        "    lifter_q11: {},",
+        slice("LIFTER_Q11", v.lifter_q11.len())
+    );
+    let _ = writeln!(s, "    mean: {},", slice("NORMALISE_MEAN", v.mean.len()));
+    let _ = writeln!(
+        s,
+        "    deviation: {},",
+        slice("NORMALISE_DEVIATION", v.deviation.len())
+    );
+    let _ = writeln!(
+        s,
+        "    fixed: stapes_core::stage_tables::FixedStageParams {{"
+    );
+    let _ = writeln!(
+        s,
+        "        pcen: stapes_core::pcen_fixed::FixedPcenParams {{ alpha_q16: {}, root_q16: {}, smoothing_q31: {}, epsilon: {}, delta: {}, delta_root: {} }},",
+        p.alpha_q16,
+        p.root_q16,
+        p.smoothing_q31,
+        soft_literal(&p.epsilon),
+        soft_literal(&p.delta),
+        soft_literal(&p.delta_root)
+    );
+    let _ = writeln!(s, "        quantise_multiplier: {},", f.quantise_multiplier);
+    let _ = writeln!(s, "        quantise_shift: {},", f.quantise_shift);
+    let _ = writeln!(
+        s,
+        "        quantise_fraction_bits: {},",
+        f.quantise_fraction_bits
+    );
+    let _ = writeln!(s, "    }},");
+    let _ = writeln!(s, "}};");
+}
+
 /// The Rust source for `tables`, generated as `command` describes.
 pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
     let c = &tables.config;
@@ -92,6 +234,7 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
     );
     let _ = writeln!(s, "    log: stapes_core::config::LogKind::{:?},", c.log);
     let _ = writeln!(s, "    floor_db: {:?},", c.floor_db);
+    let _ = writeln!(s, "    stages: {},", stage_literal(&c.stages));
     let _ = writeln!(s, "}};");
     let _ = writeln!(s);
     let _ = writeln!(
@@ -307,6 +450,9 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
             let _ = writeln!(s, "    band_gains: {gains},");
             let _ = writeln!(s, "}};");
         }
+    }
+    if tables.config.stages.any() {
+        stage_tables(&mut s, tables);
     }
     s
 }

@@ -1,0 +1,250 @@
+//! The configuration of the stages after the filterbank: one sub-structure
+//! per stage, gathered in [`StageConfig`] (the `stages` field of
+//! [`FeatureConfig`](crate::config::FeatureConfig)).
+//!
+//! The chain they describe, in data-flow order:
+//!
+//! ```text
+//! band energies ─► log (or PCEN) ─► range floor ─► MFCC ─► normalise + quantise ─► model window
+//! ```
+//!
+//! Every stage but the level (log or PCEN) is optional; [`StageConfig::NONE`]
+//! is the plain log-mel front end. Arrays (the DCT matrix, the per-value
+//! statistics) are not configuration: the host generator derives them and
+//! ships them with the tables ([`crate::stage_tables`]).
+//!
+//! ```
+//! use stapes_core::config::FeatureConfig;
+//! use stapes_core::presets::SPEECH16K_40;
+//! use stapes_core::stage_config::{MfccConfig, StageConfig};
+//!
+//! let mut config = SPEECH16K_40;
+//! config.stages.mfcc = Some(MfccConfig { coefficients: 13, lifter: Some(22) });
+//! assert!(config.validate().is_ok());
+//! assert_eq!(config.stage_values(), 13);
+//! config.stages.mfcc = Some(MfccConfig { coefficients: 41, lifter: None });
+//! assert_eq!(config.validate().unwrap_err().field(), "stages.mfcc.coefficients");
+//! ```
+
+use crate::pcen::PcenParams;
+use crate::quantise::CodeRange;
+
+/// The MFCC stage: the orthonormal DCT-II of the log-mel values to
+/// `coefficients` values, optionally liftered.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct MfccConfig {
+    /// Coefficients kept, `1 ..= bands` (c0 first).
+    pub coefficients: u32,
+    /// Sinusoidal lifter parameter `L` (`1 + (L/2)·sin(πk/L)`), or none.
+    pub lifter: Option<u32>,
+}
+
+/// The per-frame range floor: every value is raised to at least the frame's
+/// loudest value minus `below_peak_db` (in the log's own unit: dB, or
+/// `below_peak_db · ln(10)/10` for a natural log).
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct RangeFloorConfig {
+    /// How far below the frame's loudest value the floor sits, in dB (> 0).
+    pub below_peak_db: f32,
+}
+
+/// Affine quantisation to the model's input codes: `q = clamp(round(x / scale)
+/// + zero_point)`, ties away from zero.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct QuantiseConfig {
+    /// The input tensor's scale (> 0).
+    pub scale: f32,
+    /// The input tensor's zero point, within the code range.
+    pub zero_point: i32,
+    /// `int8` or `uint8` codes.
+    pub codes: CodeRange,
+}
+
+/// The window of frames the model reads.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ModelWindowConfig {
+    /// Frames in the window (`F`, 1 ..= 1024).
+    pub frames: u32,
+    /// The model runs every `stride` frames (1 ..= `frames`).
+    pub stride: u32,
+}
+
+/// The stages after the filterbank. See the module docs for their order.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct StageConfig {
+    /// PCEN in place of the static log (the energies' level stage).
+    pub pcen: Option<PcenParams>,
+    /// A floor relative to each frame's loudest log value.
+    pub range_floor: Option<RangeFloorConfig>,
+    /// MFCC from the log-mel values.
+    pub mfcc: Option<MfccConfig>,
+    /// Per-value normalisation `(x − mean) / deviation`, with the statistics
+    /// shipped in the tables; folded into the quantiser when there is one.
+    pub normalise: bool,
+    /// Quantisation to int8 or uint8 codes.
+    pub quantise: Option<QuantiseConfig>,
+    /// The window of frames the model reads.
+    pub model_window: Option<ModelWindowConfig>,
+}
+
+impl StageConfig {
+    /// No stage after the log: the plain log-mel front end.
+    pub const NONE: StageConfig = StageConfig {
+        pcen: None,
+        range_floor: None,
+        mfcc: None,
+        normalise: false,
+        quantise: None,
+        model_window: None,
+    };
+
+    /// Whether any stage beyond the plain log is configured.
+    pub fn any(&self) -> bool {
+        *self != StageConfig::NONE
+    }
+}
+
+/// Length in bytes of [`StageConfig::to_bytes`].
+pub const STAGE_CONFIG_BYTES: usize = 64;
+
+const HAS_PCEN: u8 = 1;
+const HAS_RANGE_FLOOR: u8 = 2;
+const HAS_MFCC: u8 = 4;
+const HAS_NORMALISE: u8 = 8;
+const HAS_QUANTISE: u8 = 16;
+const HAS_MODEL_WINDOW: u8 = 32;
+const HAS_LIFTER: u8 = 64;
+
+impl StageConfig {
+    /// Canonical little-endian encoding (the fingerprint's extension and the
+    /// blob's stage section).
+    pub fn to_bytes(&self) -> [u8; STAGE_CONFIG_BYTES] {
+        let mut out = [0u8; STAGE_CONFIG_BYTES];
+        let mut at = 4;
+        let mut put = |bytes: [u8; 4]| {
+            out[at..at + 4].copy_from_slice(&bytes);
+            at += 4;
+        };
+        let mut flags = 0u8;
+        let mut codes = 0u8;
+        let p = self.pcen.unwrap_or(PcenParams {
+            alpha: 0.0,
+            delta: 0.0,
+            root: 0.0,
+            epsilon: 0.0,
+            time_constant_s: 0.0,
+        });
+        flags |= if self.pcen.is_some() { HAS_PCEN } else { 0 };
+        for v in [p.alpha, p.delta, p.root, p.epsilon, p.time_constant_s] {
+            put(v.to_bits().to_le_bytes());
+        }
+        flags |= if self.range_floor.is_some() {
+            HAS_RANGE_FLOOR
+        } else {
+            0
+        };
+        put(self
+            .range_floor
+            .map_or(0.0f32, |r| r.below_peak_db)
+            .to_bits()
+            .to_le_bytes());
+        if let Some(m) = self.mfcc {
+            flags |= HAS_MFCC;
+            if m.lifter.is_some() {
+                flags |= HAS_LIFTER;
+            }
+        }
+        put(self.mfcc.map_or(0, |m| m.coefficients).to_le_bytes());
+        put(self.mfcc.and_then(|m| m.lifter).unwrap_or(0).to_le_bytes());
+        if self.normalise {
+            flags |= HAS_NORMALISE;
+        }
+        if let Some(q) = self.quantise {
+            flags |= HAS_QUANTISE;
+            codes = match q.codes {
+                CodeRange::Int8 => 0,
+                CodeRange::Uint8 => 1,
+            };
+        }
+        put(self
+            .quantise
+            .map_or(0.0f32, |q| q.scale)
+            .to_bits()
+            .to_le_bytes());
+        put(self.quantise.map_or(0, |q| q.zero_point).to_le_bytes());
+        if self.model_window.is_some() {
+            flags |= HAS_MODEL_WINDOW;
+        }
+        put(self.model_window.map_or(0, |w| w.frames).to_le_bytes());
+        put(self.model_window.map_or(0, |w| w.stride).to_le_bytes());
+        // 4 + 11·4 = 48 bytes used; the rest is reserved and stays zero.
+        out[0] = flags;
+        out[1] = codes;
+        out
+    }
+
+    /// Decodes [`StageConfig::to_bytes`]; `None` for an unknown flag or code
+    /// range, a set reserved byte, or a value present without its flag.
+    pub fn from_bytes(b: &[u8; STAGE_CONFIG_BYTES]) -> Option<StageConfig> {
+        let word = |i: usize| {
+            let at = 4 + 4 * i;
+            u32::from_le_bytes([b[at], b[at + 1], b[at + 2], b[at + 3]])
+        };
+        let float = |i: usize| f32::from_bits(word(i));
+        let (flags, codes) = (b[0], b[1]);
+        if flags & 0x80 != 0
+            || codes > 1
+            || b[2] != 0
+            || b[3] != 0
+            || b[48..].iter().any(|&x| x != 0)
+        {
+            return None;
+        }
+        let has = |bit: u8| flags & bit != 0;
+        // A value without its flag would be a second spelling of the same
+        // configuration: refuse it, so the encoding stays canonical.
+        let zero = |range: core::ops::Range<usize>| range.into_iter().all(|i| word(i) == 0);
+        let stages = StageConfig {
+            pcen: has(HAS_PCEN).then(|| PcenParams {
+                alpha: float(0),
+                delta: float(1),
+                root: float(2),
+                epsilon: float(3),
+                time_constant_s: float(4),
+            }),
+            range_floor: has(HAS_RANGE_FLOOR).then(|| RangeFloorConfig {
+                below_peak_db: float(5),
+            }),
+            mfcc: has(HAS_MFCC).then(|| MfccConfig {
+                coefficients: word(6),
+                lifter: has(HAS_LIFTER).then(|| word(7)),
+            }),
+            normalise: has(HAS_NORMALISE),
+            quantise: has(HAS_QUANTISE).then(|| QuantiseConfig {
+                scale: float(8),
+                zero_point: word(9) as i32,
+                codes: if codes == 1 {
+                    CodeRange::Uint8
+                } else {
+                    CodeRange::Int8
+                },
+            }),
+            model_window: has(HAS_MODEL_WINDOW).then(|| ModelWindowConfig {
+                frames: word(10),
+                stride: word(11),
+            }),
+        };
+        let canonical = (has(HAS_PCEN) || zero(0..5))
+            && (has(HAS_RANGE_FLOOR) || zero(5..6))
+            && (has(HAS_MFCC) || (zero(6..8) && !has(HAS_LIFTER)))
+            && (has(HAS_LIFTER) || zero(7..8))
+            && (has(HAS_QUANTISE) || (zero(8..10) && codes == 0))
+            && (has(HAS_MODEL_WINDOW) || zero(10..12));
+        canonical.then_some(stages)
+    }
+}
