@@ -22,6 +22,14 @@ mod dsr8k_23 {
 mod tiny16k_10 {
     include!("../tables/tiny16k-10.rs");
 }
+#[allow(dead_code)]
+mod kws16k_mel40 {
+    include!("../tables/kws16k-mel40.rs");
+}
+#[allow(dead_code)]
+mod kws16k_mfcc10 {
+    include!("../tables/kws16k-mfcc10.rs");
+}
 
 #[test]
 fn regenerating_the_shipped_tables_changes_no_byte() {
@@ -92,8 +100,22 @@ fn the_rust_source_holds_the_generated_views() {
         tiny16k_10::TABLE_Q15_COMPACT,
         t.view_q15(FilterbankForm::Compact)
     );
+    for (module_config, stage_tables) in [
+        (kws16k_mel40::CONFIG, kws16k_mel40::STAGE_TABLES),
+        (kws16k_mfcc10::CONFIG, kws16k_mfcc10::STAGE_TABLES),
+    ] {
+        let t = GeneratedTables::new(&module_config);
+        assert_eq!(stage_tables, t.stages.view());
+        stage_tables.check(&module_config).unwrap();
+    }
     for (name, c) in all_presets() {
-        let shipped = [speech16k_40::CONFIG, dsr8k_23::CONFIG, tiny16k_10::CONFIG];
+        let shipped = [
+            speech16k_40::CONFIG,
+            dsr8k_23::CONFIG,
+            tiny16k_10::CONFIG,
+            kws16k_mel40::CONFIG,
+            kws16k_mfcc10::CONFIG,
+        ];
         assert!(shipped.contains(&c), "{name} has no shipped Rust source");
     }
 }

@@ -490,10 +490,18 @@ impl<'a> TableBlob<'a> {
                 Err(_) => Ok(&[]),
             }
         };
+        // An absent section is an empty slice (whose address need not be
+        // aligned, so it is not cast).
         let cast = |kind, raw: &'a [u8]| -> Result<&'a [f32], BlobError> {
+            if raw.is_empty() {
+                return Ok(&[]);
+            }
             bytemuck::try_cast_slice(raw).map_err(|_| BlobError::BadSectionLength { kind })
         };
         let cast16 = |kind, raw: &'a [u8]| -> Result<&'a [i16], BlobError> {
+            if raw.is_empty() {
+                return Ok(&[]);
+            }
             bytemuck::try_cast_slice(raw).map_err(|_| BlobError::BadSectionLength { kind })
         };
         let fixed = match self.section::<i32>(SectionKind::FixedStageParams) {

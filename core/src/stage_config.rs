@@ -182,7 +182,7 @@ impl StageConfig {
         }
         put(self.model_window.map_or(0, |w| w.frames).to_le_bytes());
         put(self.model_window.map_or(0, |w| w.stride).to_le_bytes());
-        // 4 + 11·4 = 48 bytes used; the rest is reserved and stays zero.
+        // 4 + 12·4 = 52 bytes used; the rest is reserved and stays zero.
         out[0] = flags;
         out[1] = codes;
         out
@@ -201,7 +201,7 @@ impl StageConfig {
             || codes > 1
             || b[2] != 0
             || b[3] != 0
-            || b[48..].iter().any(|&x| x != 0)
+            || b[52..].iter().any(|&x| x != 0)
         {
             return None;
         }

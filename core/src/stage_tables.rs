@@ -36,6 +36,9 @@ pub struct FixedStageParams {
     /// Fraction bits of the values the quantiser reads (8 for log and MFCC
     /// values in 1/256 units, 16 for PCEN's `I16F16`).
     pub quantise_fraction_bits: u32,
+    /// The range floor's distance below each frame's peak in 1/256 units of
+    /// the log's output (`I8F8` bits); 0 when there is no range floor.
+    pub range_floor_q8: i32,
 }
 
 impl FixedStageParams {
@@ -52,6 +55,7 @@ impl FixedStageParams {
         quantise_multiplier: 0,
         quantise_shift: 0,
         quantise_fraction_bits: 0,
+        range_floor_q8: 0,
     };
 
     /// The blob encoding: one little-endian word per field, [`Soft`]s as
@@ -71,7 +75,7 @@ impl FixedStageParams {
             self.quantise_multiplier,
             self.quantise_shift as i32,
             self.quantise_fraction_bits as i32,
-            0,
+            self.range_floor_q8,
             0,
         ]
     }
@@ -79,7 +83,7 @@ impl FixedStageParams {
     /// Decodes [`FixedStageParams::to_words`]; `None` for a wrong length or a
     /// set reserved word.
     pub fn from_words(w: &[i32]) -> Option<FixedStageParams> {
-        if w.len() != FIXED_STAGE_WORDS || w[12] != 0 || w[13] != 0 {
+        if w.len() != FIXED_STAGE_WORDS || w[13] != 0 {
             return None;
         }
         let soft = |m: i32, e: i32| Soft {
@@ -98,6 +102,7 @@ impl FixedStageParams {
             quantise_multiplier: w[9],
             quantise_shift: w[10] as u32,
             quantise_fraction_bits: w[11] as u32,
+            range_floor_q8: w[12],
         })
     }
 }
@@ -232,6 +237,7 @@ impl<'t> StageTables<'t> {
         }
         let f = &self.fixed;
         let pcen_ok = (s.pcen.is_some()) == (f.pcen.smoothing_q31 != 0);
+        let floor_ok = (s.range_floor.is_some()) == (f.range_floor_q8 > 0);
         let quantise_ok = match s.quantise {
             Some(_) => {
                 f.quantise_multiplier >= 1
@@ -239,13 +245,10 @@ impl<'t> StageTables<'t> {
                     && f.quantise_fraction_bits == if s.pcen.is_some() { 16 } else { 8 }
             }
             None => {
-                *f == FixedStageParams {
-                    pcen: f.pcen,
-                    ..FixedStageParams::NONE
-                }
+                f.quantise_multiplier == 0 && f.quantise_shift == 0 && f.quantise_fraction_bits == 0
             }
         };
-        if !(pcen_ok && quantise_ok) {
+        if !(pcen_ok && floor_ok && quantise_ok) {
             return Err(StageTableError::FixedParams);
         }
         Ok(())
@@ -290,6 +293,17 @@ impl<'t> StageTables<'t> {
             q.codes,
         )
         .ok()
+    }
+
+    /// The fixed path's range floor (`I8F8`), if the configuration has one.
+    pub fn fixed_range_floor(
+        &self,
+        config: &FeatureConfig,
+    ) -> Option<crate::range_floor::RangeFloor<fixed::types::I8F8>> {
+        config.stages.range_floor.map(|_| {
+            let bits = self.fixed.range_floor_q8.clamp(0, i16::MAX as i32) as i16;
+            crate::range_floor::RangeFloor::new(fixed::types::I8F8::from_bits(bits))
+        })
     }
 
     /// The fixed path's PCEN parameters, if the configuration has PCEN.

@@ -16,9 +16,16 @@ compile_error!("enable exactly one arithmetic feature: f32, fixed16 or fixed32")
 #[cfg(not(any(
     feature = "preset-speech16k-40",
     feature = "preset-dsr8k-23",
-    feature = "preset-tiny16k-10"
+    feature = "preset-tiny16k-10",
+    feature = "preset-kws16k-mel40",
+    feature = "preset-kws16k-mfcc10"
 )))]
 compile_error!("enable exactly one preset feature");
+#[cfg(all(
+    feature = "model-input",
+    not(any(feature = "preset-kws16k-mel40", feature = "preset-kws16k-mfcc10"))
+))]
+compile_error!("model-input runs a preset's stages: use preset-kws16k-mel40 or preset-kws16k-mfcc10");
 
 mod board;
 mod emulator;
@@ -52,6 +59,103 @@ mod preset {
 mod preset {
     pub const NAME: &str = "tiny16k-10";
     include!("../../tables/tiny16k-10.rs");
+}
+
+#[cfg(all(
+    feature = "preset-kws16k-mel40",
+    not(any(
+        feature = "preset-speech16k-40",
+        feature = "preset-dsr8k-23",
+        feature = "preset-tiny16k-10"
+    ))
+))]
+#[allow(dead_code)]
+mod preset {
+    pub const NAME: &str = "kws16k-mel40";
+    include!("../../tables/kws16k-mel40.rs");
+}
+#[cfg(all(
+    feature = "preset-kws16k-mfcc10",
+    not(any(
+        feature = "preset-speech16k-40",
+        feature = "preset-dsr8k-23",
+        feature = "preset-tiny16k-10",
+        feature = "preset-kws16k-mel40"
+    ))
+))]
+#[allow(dead_code)]
+mod preset {
+    pub const NAME: &str = "kws16k-mfcc10";
+    include!("../../tables/kws16k-mfcc10.rs");
+}
+
+/// The stages after the filterbank of a kws16k preset, chained at compile
+/// time from its configuration and generated stage tables: log (and, for
+/// MFCC, the range floor and the DCT), then int8 codes.
+#[cfg(feature = "model-input")]
+mod chain {
+    use super::preset;
+    #[cfg(feature = "preset-kws16k-mfcc10")]
+    use stapes_core::{FixedMfcc, FloatMfcc, RangeFloor};
+    use stapes_core::{
+        AffineQuantiser, FixedLog, FixedQuantiseStage, FixedTables, FloatLog, QuantiseStage, Then,
+    };
+
+    const V: usize = preset::STAGE_VALUES;
+    const B: usize = preset::BANDS;
+
+    #[cfg(feature = "preset-kws16k-mel40")]
+    pub type FloatLevels = FloatLog;
+    #[cfg(feature = "preset-kws16k-mfcc10")]
+    pub type FloatLevels = Then<Then<FloatLog, RangeFloor<f32>>, FloatMfcc<'static, V>>;
+    /// The f32 chain.
+    pub type Float = Then<FloatLevels, QuantiseStage<i8, V>>;
+
+    #[cfg(feature = "preset-kws16k-mel40")]
+    pub type FixedLevels = FixedLog<'static, B>;
+    #[cfg(feature = "preset-kws16k-mfcc10")]
+    pub type FixedLevels = Then<
+        Then<FixedLog<'static, B>, RangeFloor<stapes_core::fixed::types::I8F8>>,
+        FixedMfcc<'static, V>,
+    >;
+    /// The fixed chain.
+    pub type Fixed = Then<FixedLevels, FixedQuantiseStage<i8, V>>;
+
+    #[allow(dead_code)]
+    pub fn float() -> Option<Float> {
+        let c = &preset::CONFIG;
+        preset::STAGE_TABLES.check(c).ok()?;
+        let q = c.stages.quantise?;
+        let log = FloatLog::for_config(c);
+        #[cfg(feature = "preset-kws16k-mel40")]
+        let levels = log;
+        #[cfg(feature = "preset-kws16k-mfcc10")]
+        let levels = Then(
+            Then(log, RangeFloor::new(c.stages.range_floor?.below_peak_db)),
+            FloatMfcc::new(preset::STAGE_TABLES.dct_f32(c)?).ok()?,
+        );
+        let quantiser = AffineQuantiser::new(q.scale, q.zero_point, q.codes).ok()?;
+        Some(Then(levels, QuantiseStage::new(quantiser).ok()?))
+    }
+
+    #[allow(dead_code)]
+    pub fn fixed(tables: &FixedTables<'static>) -> Option<Fixed> {
+        let c = &preset::CONFIG;
+        let st = &preset::STAGE_TABLES;
+        st.check(c).ok()?;
+        let log = FixedLog::for_tables(tables);
+        #[cfg(feature = "preset-kws16k-mel40")]
+        let levels = log;
+        #[cfg(feature = "preset-kws16k-mfcc10")]
+        let levels = Then(
+            Then(log, st.fixed_range_floor(c)?),
+            FixedMfcc::new(st.dct_q15(c)?).ok()?,
+        );
+        Some(Then(
+            levels,
+            FixedQuantiseStage::new(st.fixed_quantiser(c)?).ok()?,
+        ))
+    }
 }
 
 /// Samples per DMA half-buffer (deliberately not a multiple of the hop).
@@ -149,16 +253,24 @@ trait UnderTest {
     }
 }
 
-/// The model's input in `model-input` builds: int8 codes of the log-mel
-/// values (scale 0.5 dB, zero point 80) into a 49-frame window.
+/// The model's input in `model-input` builds: the preset's int8 codes into
+/// its model window.
 #[cfg(feature = "model-input")]
 mod model_input {
     use stapes_core::crc32::Crc32;
     use stapes_core::probe::StageProbe;
     use stapes_core::{FrameWindow, StreamingFrontEnd};
 
-    /// Frames the model reads.
-    pub const FRAMES: usize = 49;
+    /// Frames the model reads (the preset's model window).
+    pub const FRAMES: usize = match super::preset::CONFIG.stages.model_window {
+        Some(w) => w.frames as usize,
+        None => 1,
+    };
+    /// The model runs every `STRIDE` frames.
+    pub const STRIDE: u32 = match super::preset::CONFIG.stages.model_window {
+        Some(w) => w.stride,
+        None => 1,
+    };
     /// The front end and the model's window.
     pub struct WithWindow<F, const C: usize> {
         pub fe: F,
@@ -245,33 +357,26 @@ mod under_test {
 ))]
 mod under_test {
     use super::*;
-    use stapes_core::{AffineQuantiser, CodeRange, FloatLog, QuantiseStage, Then};
-    type Chain = Then<FloatLog, QuantiseStage<i8, { preset::BANDS }>>;
     pub type FrontEnd = model_input::WithWindow<
         stapes_core::FloatFrontEnd<
             'static,
             { preset::FFT_POINTS },
             { preset::OVERLAP_SAMPLES },
             { preset::BANDS },
-            Chain,
+            chain::Float,
         >,
-        { preset::BANDS },
+        { preset::STAGE_VALUES },
     >;
     pub fn make() -> Option<FrontEnd> {
-        let q = AffineQuantiser::new(0.5, 80, CodeRange::Int8).ok()?;
-        let chain = Then(
-            FloatLog::for_config(&preset::CONFIG),
-            QuantiseStage::new(q).ok()?,
-        );
         let fe = stapes_core::FloatFrontEnd::with_stages(
             preset::CONFIG,
             preset::TABLE_F32_SPARSE,
-            chain,
+            chain::float()?,
         )
         .ok()?;
         Some(model_input::WithWindow {
             fe,
-            window: stapes_core::FrameWindow::new(1),
+            window: stapes_core::FrameWindow::new(model_input::STRIDE),
             handed: false,
         })
     }
@@ -311,10 +416,6 @@ mod under_test {
 ))]
 mod under_test {
     use super::*;
-    use stapes_core::quantise::{CodeRange, FixedQuantiseStage, FixedQuantiser};
-    use stapes_core::{FixedLog, Then};
-    type Chain =
-        Then<FixedLog<'static, { preset::BANDS }>, FixedQuantiseStage<i8, { preset::BANDS }>>;
     pub type FrontEnd = model_input::WithWindow<
         stapes_core::FixedFrontEnd<
             'static,
@@ -322,27 +423,21 @@ mod under_test {
             { preset::FFT_POINTS },
             { preset::OVERLAP_SAMPLES },
             { preset::BANDS },
-            Chain,
+            chain::Fixed,
         >,
-        { preset::BANDS },
+        { preset::STAGE_VALUES },
     >;
     pub fn make() -> Option<FrontEnd> {
         #[cfg(feature = "fixed16")]
         let tables = preset::FIXED16_SPARSE;
         #[cfg(not(feature = "fixed16"))]
         let tables = preset::FIXED32_SPARSE;
-        // Scale 0.5 dB, zero point 80: M = 2^30, k = 37, as the host's
-        // stapes_sim::model_input::quantiser_parts(0.5) gives (the QEMU test
-        // compares these codes with the host's).
-        let q = FixedQuantiser::from_parts(1 << 30, 37, 80, CodeRange::Int8).ok()?;
-        let chain = Then(
-            FixedLog::for_tables(&tables),
-            FixedQuantiseStage::new(q).ok()?,
-        );
-        let fe = stapes_core::FixedFrontEnd::with_stages(preset::CONFIG, tables, chain).ok()?;
+        let fe =
+            stapes_core::FixedFrontEnd::with_stages(preset::CONFIG, tables, chain::fixed(&tables)?)
+                .ok()?;
         Some(model_input::WithWindow {
             fe,
-            window: stapes_core::FrameWindow::new(1),
+            window: stapes_core::FrameWindow::new(model_input::STRIDE),
             handed: false,
         })
     }

@@ -174,7 +174,7 @@ impl StageInstructions {
 
 /// Instructions per unit of work for (core, arithmetic): per hop sample,
 /// per window sample (plus per conditioned sample), per `(N/2)·log2(N/2)`
-/// of the FFT (plus per point where `log2(N/2)` is odd), per bin (plus per bin of a magnitude spectrum), per sparse
+/// of the FFT and per point (plus per point where `log2(N/2)` is odd), per bin (plus per bin of a magnitude spectrum), per sparse
 /// filterbank weight, per band. Fitted to the firmware's QEMU counts
 /// (`bash tests/firmware-figures.sh` prints them refitted as `fitted costs`): everything from speech16k-40, the
 /// conditioning, odd-level and magnitude terms from dsr8k-23's remainder; tiny16k-10
@@ -184,8 +184,12 @@ struct InstructionCosts {
     window: f64,
     conditioned: f64,
     fft: f64,
+    /// Per complex point of the FFT, every size (the real split and the
+    /// passes' fixed work).
+    fft_point: f64,
     /// Per complex point when `log2(N/2)` is odd (a radix-2 first level
-    /// before the radix-4 passes), fitted from dsr8k-23's FFT.
+    /// before the radix-4 passes); with `fft` and `fft_point` fitted from
+    /// speech16k-40's (even), dsr8k-23's and kws16k-mel40's (odd) FFTs.
     odd_level: f64,
     bin: f64,
     magnitude_bin: f64,
@@ -201,6 +205,7 @@ fn instruction_costs(core: Core, arith: Arith) -> Option<InstructionCosts> {
              window,
              conditioned,
              fft,
+             fft_point,
              odd_level,
              bin,
              magnitude_bin,
@@ -212,6 +217,7 @@ fn instruction_costs(core: Core, arith: Arith) -> Option<InstructionCosts> {
             window,
             conditioned,
             fft,
+            fft_point,
             odd_level,
             bin,
             magnitude_bin,
@@ -222,19 +228,19 @@ fn instruction_costs(core: Core, arith: Arith) -> Option<InstructionCosts> {
     };
     match (core, arith) {
         (Core::CortexM4F, Arith::F32) => Some(c(
-            3.77, 1.88, 0.77, 10.64, -1.96, 3.10, 5.19, 3.56, 25.93, 23.01,
+            3.77, 1.88, 0.77, 12.24, -12.22, -0.93, 3.10, 5.19, 3.56, 25.93, 23.01,
         )),
         (Core::CortexM4F, Arith::Fixed16) => Some(c(
-            3.23, 9.56, 102.95, 14.60, 23.30, 7.07, 47.47, 11.48, 35.65, 31.45,
+            3.23, 9.56, 102.95, 7.10, 60.07, 15.76, 7.07, 47.47, 11.48, 35.65, 31.45,
         )),
         (Core::CortexM4F, Arith::Fixed32) => Some(c(
-            3.54, 18.58, 51.79, 25.80, 18.21, 16.60, 272.51, 19.21, 35.60, 40.83,
+            3.54, 18.58, 51.79, 16.54, 74.14, 8.93, 16.60, 272.51, 19.21, 35.60, 40.83,
         )),
         (Core::CortexM0, Arith::Fixed16) => Some(c(
-            3.48, 35.36, 267.27, 35.41, 31.52, 11.75, 253.00, 31.50, 88.17, 71.06,
+            3.48, 35.36, 267.27, 20.30, 120.89, 16.39, 11.75, 253.00, 31.50, 88.17, 71.06,
         )),
         (Core::CortexM0, Arith::Fixed32) => Some(c(
-            5.85, 61.37, 140.85, 67.64, 34.61, 111.27, 832.69, 35.06, 88.10, 82.86,
+            5.85, 61.37, 140.85, 60.02, 60.90, 27.00, 111.27, 832.69, 35.06, 88.10, 82.86,
         )),
         (Core::CortexM0, Arith::F32) => None,
     }
@@ -264,6 +270,7 @@ pub fn predict_instructions(
         intake: k.intake * config.hop_samples as f64,
         window: k.window * w + if conditioned { k.conditioned * w } else { 0.0 },
         fft: k.fft * half * half.log2()
+            + k.fft_point * half
             + if config.fft_points.trailing_zeros() % 2 == 0 {
                 k.odd_level * half
             } else {

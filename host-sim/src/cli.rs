@@ -161,9 +161,19 @@ pub struct FeaturesArgs {
     #[arg(long, value_enum, default_value = "f32")]
     pub arith: Arith,
     /// With a fixed arithmetic: write the board's exact int16 values (1/256 dB
-    /// or 1/256 ln per LSB) instead of float32.
+    /// or 1/256 ln per LSB) instead of float32; for a stage, its exact
+    /// integers (int32; int8/uint8 codes for `quantise`).
     #[arg(long)]
     pub raw: bool,
+    /// With a configuration that has stages: write this stage's output
+    /// (log, pcen, range_floor, mfcc, normalise, quantise) instead of the
+    /// last one, the model's input.
+    #[arg(long, value_name = "STAGE")]
+    pub stage: Option<String>,
+    /// With a model window: write the windows the model reads, as
+    /// `[windows, frames, values]`, instead of one row per frame.
+    #[arg(long)]
+    pub windows: bool,
 }
 
 /// `stapes demo`.

@@ -163,7 +163,7 @@ fn check_command(a: &CheckArgs) -> Result<Outcome> {
     let mut stages_passed = true;
     if config.stages.any() {
         let stage_tables = loaded.stage_tables()?;
-        let comparisons = crate::stage_check::check_stages(
+        let (comparisons, clamped) = crate::stage_check::check_stages(
             arith,
             &config,
             tables,
@@ -172,13 +172,131 @@ fn check_command(a: &CheckArgs) -> Result<Outcome> {
             a.input_args.chunk_samples,
         )?;
         stages_passed = comparisons.iter().all(|c| c.passed());
-        crate::say_text!(crate::stage_check::stage_report(arith, &comparisons, None));
+        let clamped = config.stages.quantise.map(|_| clamped);
+        crate::say_text!(crate::stage_check::stage_report(
+            arith,
+            &comparisons,
+            clamped
+        ));
     }
     Ok(if run.passed() && stages_passed {
         Outcome::Success
     } else {
         Outcome::CheckFailed
     })
+}
+
+/// `features` for a configuration with stages: the chosen stage's output
+/// (the last by default), per frame or as the model's windows.
+fn stage_features(
+    a: &FeaturesArgs,
+    loaded: &LoadedTables,
+    config: &FeatureConfig,
+    tables: CoreTables<'_>,
+    samples: &crate::run::Samples,
+    chunk: usize,
+) -> Result<Outcome> {
+    let names = crate::stages::stage_names(config);
+    let name = match &a.stage {
+        Some(n) => names.iter().copied().find(|s| s == n).ok_or_else(|| {
+            anyhow!(
+                "--stage {n} is not a stage of this configuration: choose one of {}",
+                names.join(", ")
+            )
+        })?,
+        None => *names.last().expect("at least the level stage"),
+    };
+    let stage_tables = loaded.stage_tables()?;
+    let run =
+        crate::stage_check::run_arith(a.arith, config, tables, &stage_tables, samples, chunk)?;
+    let out = run.stage(name).expect("a configured stage");
+    let values = out.values.first().map_or(0, Vec::len);
+    let (rows, shape, data): (usize, Vec<usize>, Vec<f64>) = if a.windows {
+        let Some(w) = config.stages.model_window else {
+            return Err(anyhow!(
+                "--windows writes the model's windows, and this configuration has none: add \
+                 [stages.model_window] or --model-window F"
+            ));
+        };
+        if name != *names.last().expect("stages") {
+            return Err(anyhow!(
+                "--windows takes the model's input, the last stage ({}): drop --stage {name}",
+                names.last().expect("stages")
+            ));
+        }
+        let windows = crate::stages::model_windows(config, &out.values);
+        let n = windows.len();
+        (
+            n,
+            vec![n, w.frames as usize, values],
+            windows.into_iter().flatten().collect(),
+        )
+    } else {
+        let n = out.values.len();
+        (
+            n,
+            vec![n, values],
+            out.values.iter().flatten().copied().collect(),
+        )
+    };
+    let what = if a.raw {
+        let Some(raw) = &out.raw else {
+            return Err(anyhow!(
+                "--raw writes the board's exact integers, which {} stage in {} does not hold: \
+                 use a fixed arithmetic, or --stage quantise",
+                name,
+                a.arith.name()
+            ));
+        };
+        let raw_rows: Vec<i64> = if a.windows {
+            let as_f64: Vec<Vec<f64>> = raw
+                .iter()
+                .map(|r| r.iter().map(|&v| v as f64).collect())
+                .collect();
+            crate::stages::model_windows(config, &as_f64)
+                .into_iter()
+                .flatten()
+                .map(|v| v as i64)
+                .collect()
+        } else {
+            raw.iter().flatten().copied().collect()
+        };
+        match (name, config.stages.quantise.map(|q| q.codes)) {
+            ("quantise", Some(stapes_core::CodeRange::Int8)) => {
+                crate::npy::write_shaped(&a.output, &shape, raw_rows.iter().map(|&v| v as i8))?;
+                "int8 codes".to_string()
+            }
+            ("quantise", _) => {
+                crate::npy::write_shaped(&a.output, &shape, raw_rows.iter().map(|&v| v as u8))?;
+                "uint8 codes".to_string()
+            }
+            _ => {
+                crate::npy::write_shaped(&a.output, &shape, raw_rows.iter().map(|&v| v as i32))?;
+                "int32, the board's exact integers (1/256 units; PCEN 1/65536)".to_string()
+            }
+        }
+    } else {
+        crate::npy::write_shaped(&a.output, &shape, data.iter().map(|&v| v as f32))?;
+        "float32".to_string()
+    };
+    crate::say!(
+        "features: {} with {} ({} core), stage {name}",
+        a.input.display(),
+        loaded.name(),
+        a.arith.name()
+    );
+    crate::say!(
+        "  output: {} {what}, shape {:?}{}",
+        a.output.display(),
+        shape,
+        if config.stages.quantise.is_some() {
+            format!(", {} values clamped by the quantiser", run.clamped)
+        } else {
+            String::new()
+        }
+    );
+    let _ = rows;
+    Ok(Outcome::Success)
 }
 
 fn unit(config: &FeatureConfig) -> &'static str {
@@ -201,6 +319,9 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
     let tables = loaded.core_tables(a.arith, form(a.input_args.form))?;
     for w in crate::predict::warnings(&config, a.arith)? {
         eprintln!("{w}");
+    }
+    if config.stages.any() || a.stage.is_some() || a.windows {
+        return stage_features(a, &loaded, &config, tables, &samples, chunk);
     }
     let (frames, what) = if a.raw {
         let CoreTables::Fixed(fixed) = tables else {

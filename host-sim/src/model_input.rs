@@ -202,6 +202,10 @@ impl GeneratedStageTables {
         if let Some(p) = &s.pcen {
             fixed.pcen = fixed_pcen_params(p, hop_s);
         }
+        if let Some(units) = crate::stages::range_floor_units(config) {
+            // The log's output units in 1/256, as the fixed path's I8F8.
+            fixed.range_floor_q8 = (units * 256.0).round().clamp(1.0, i16::MAX as f64) as i32;
+        }
         if let Some(q) = s.quantise {
             let bits = if s.pcen.is_some() { 16 } else { 8 };
             let (m, k) = quantiser_parts_for(q.scale, bits)?;

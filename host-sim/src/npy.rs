@@ -27,6 +27,25 @@ pub fn write<T: AutoSerialize>(
     })
 }
 
+/// Writes an array of any `shape` (C order).
+pub fn write_shaped<T: AutoSerialize>(
+    path: &Path,
+    shape: &[usize],
+    data: impl IntoIterator<Item = T>,
+) -> Result<()> {
+    let shape: Vec<u64> = shape.iter().map(|&d| d as u64).collect();
+    write_atomic_with(path, |file| {
+        let mut w = npyz::WriteOptions::new()
+            .default_dtype()
+            .shape(&shape)
+            .writer(BufWriter::new(file))
+            .begin_nd()?;
+        w.extend(data)?;
+        w.finish()?;
+        Ok(())
+    })
+}
+
 /// Writes a `rows × cols` array of `f32`.
 pub fn write_f32(
     path: &Path,

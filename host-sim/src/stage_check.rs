@@ -140,7 +140,8 @@ pub fn tolerances(
 }
 
 /// Runs the core's stages in `arith` and their reference over `samples`,
-/// and compares them stage by stage.
+/// and compares them stage by stage; also returns the values the core's
+/// quantiser clamped.
 pub fn check_stages(
     arith: Arith,
     config: &FeatureConfig,
@@ -148,7 +149,7 @@ pub fn check_stages(
     stage_tables: &StageTables<'_>,
     samples: &Samples,
     chunk: usize,
-) -> Result<Vec<StageComparison>> {
+) -> Result<(Vec<StageComparison>, u64)> {
     let chunk = if chunk == 0 {
         samples.len().max(1)
     } else {
@@ -166,7 +167,10 @@ pub fn check_stages(
         .iter()
         .map(|f| f.iter().zip(&floor).all(|(e, n)| e <= n))
         .collect();
-    Ok(compare(arith, config, stage_tables, &got, &want, &silent))
+    Ok((
+        compare(arith, config, stage_tables, &got, &want, &silent),
+        got.clamped,
+    ))
 }
 
 /// The core's stage outputs in `arith`.

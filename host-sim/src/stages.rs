@@ -318,9 +318,8 @@ pub fn run_fixed_stages(
         let bits = |v: I8F8| v.to_bits() as i64;
         run.stages
             .push(record("log", &levels, |v| unit8(bits(v)), Some(&bits)));
-        if let Some(r) = range_floor_units(config) {
-            let range = I8F8::saturating_from_num(r);
-            levels = apply(&mut RangeFloor::new(range), &mut levels);
+        if let Some(mut floor) = stages.fixed_range_floor(config) {
+            levels = apply(&mut floor, &mut levels);
             run.stages.push(record(
                 "range_floor",
                 &levels,

@@ -255,7 +255,7 @@ pub fn c_header(tables: &GeneratedTables, prefix: &str, command: &str) -> String
         }
         let _ = writeln!(
             s,
-            "/* Fixed-path stage constants: PCEN alpha Q16, root Q16, smoothing Q31, epsilon, delta, delta^root (mantissa, exponent: m * 2^(e - 31)), quantiser multiplier, shift, input fraction bits, 2 reserved. */"
+            "/* Fixed-path stage constants: PCEN alpha Q16, root Q16, smoothing Q31, epsilon, delta, delta^root (mantissa, exponent: m * 2^(e - 31)), quantiser multiplier, shift, input fraction bits, range floor in 1/256 output units, 1 reserved. */"
         );
         array(
             &mut s,

@@ -238,6 +238,32 @@ pub fn size_report(tables: &GeneratedTables, name: &str, blob_bytes: Option<usiz
         p.twiddles_q15
     );
     let _ = writeln!(s, "  {:<34} {:>10}", "fixed32 window (q31)", p.window_q31);
+    if c.stages.any() {
+        let v = tables.stages.view();
+        if !v.dct_f32.is_empty() {
+            let _ = writeln!(
+                s,
+                "  {:<34} {:>10} {:>10}",
+                format!("MFCC DCT ({} x {}) + lifter", c.stage_values(), c.bands),
+                4 * (v.dct_f32.len() + v.lifter_f32.len()),
+                2 * (v.dct_q15.len() + v.lifter_q11.len())
+            );
+        }
+        if !v.mean.is_empty() {
+            let _ = writeln!(
+                s,
+                "  {:<34} {:>10}",
+                format!("normalisation ({} x 2 f32)", v.mean.len()),
+                4 * (v.mean.len() + v.deviation.len())
+            );
+        }
+        let _ = writeln!(
+            s,
+            "  {:<34} {:>10}",
+            "fixed stage constants",
+            4 * stapes_core::stage_tables::FIXED_STAGE_WORDS
+        );
+    }
     if tables.fixed_params.is_none() {
         let _ = writeln!(
             s,

@@ -176,6 +176,7 @@ fn stage_tables(s: &mut String, tables: &GeneratedTables) {
         "        quantise_fraction_bits: {},",
         f.quantise_fraction_bits
     );
+    let _ = writeln!(s, "        range_floor_q8: {},", f.range_floor_q8);
     let _ = writeln!(s, "    }},");
     let _ = writeln!(s, "}};");
 }

@@ -1,0 +1,320 @@
+//! The stage configuration: its encoding, validation, configuration file,
+//! the blob's stage sections (format version 3), and `check` and
+//! `features` on the kws16k presets.
+
+use stapes_core::blob::{BlobError, SectionKind, TableBlob, blob_crc};
+use stapes_core::config::{
+    FeatureConfig, MfccConfig, ModelWindowConfig, QuantiseConfig, RangeFloorConfig,
+    STAGE_CONFIG_BYTES, StageConfig,
+};
+use stapes_core::pcen::PcenParams;
+use stapes_core::presets::{KWS16K_MEL40, KWS16K_MFCC10, SPEECH16K_40};
+use stapes_core::quantise::CodeRange;
+use stapes_sim::emit::{BlobContents, blob};
+use stapes_sim::generate::GeneratedTables;
+use stapes_tests::AlignedBytes as Aligned;
+
+fn every_stage() -> StageConfig {
+    StageConfig {
+        pcen: None,
+        range_floor: Some(RangeFloorConfig {
+            below_peak_db: 55.5,
+        }),
+        mfcc: Some(MfccConfig {
+            coefficients: 13,
+            lifter: Some(22),
+        }),
+        normalise: true,
+        quantise: Some(QuantiseConfig {
+            scale: 0.75,
+            zero_point: 130,
+            codes: CodeRange::Uint8,
+        }),
+        model_window: Some(ModelWindowConfig {
+            frames: 98,
+            stride: 3,
+        }),
+    }
+}
+
+#[test]
+fn the_encoding_round_trips_and_is_canonical() {
+    let pcen = StageConfig {
+        pcen: Some(PcenParams::DEFAULT),
+        ..StageConfig::NONE
+    };
+    for st in [
+        StageConfig::NONE,
+        every_stage(),
+        pcen,
+        KWS16K_MEL40.stages,
+        KWS16K_MFCC10.stages,
+    ] {
+        assert_eq!(StageConfig::from_bytes(&st.to_bytes()), Some(st));
+    }
+    // A value without its flag, an unknown flag, a reserved byte: refused.
+    let mut b = StageConfig::NONE.to_bytes();
+    b[4 + 6 * 4] = 13; // MFCC coefficients without the MFCC flag
+    assert_eq!(StageConfig::from_bytes(&b), None);
+    let mut b = every_stage().to_bytes();
+    b[0] |= 0x80;
+    assert_eq!(StageConfig::from_bytes(&b), None);
+    let mut b = every_stage().to_bytes();
+    b[STAGE_CONFIG_BYTES - 1] = 1;
+    assert_eq!(StageConfig::from_bytes(&b), None);
+}
+
+#[test]
+fn a_configuration_without_stages_keeps_its_fingerprint() {
+    // The fingerprints the committed tables carried before stages existed.
+    assert_eq!(SPEECH16K_40.fingerprint(), 0x7e15_9e0d);
+    assert_ne!(KWS16K_MEL40.fingerprint(), {
+        let mut plain = KWS16K_MEL40;
+        plain.stages = StageConfig::NONE;
+        plain.fingerprint()
+    });
+}
+
+#[test]
+fn impossible_stage_configurations_are_refused_with_the_field() {
+    let with = |st: StageConfig| FeatureConfig {
+        stages: st,
+        ..SPEECH16K_40
+    };
+    let cases: [(StageConfig, &str); 6] = [
+        (
+            StageConfig {
+                mfcc: Some(MfccConfig {
+                    coefficients: 41,
+                    lifter: None,
+                }),
+                ..StageConfig::NONE
+            },
+            "stages.mfcc.coefficients",
+        ),
+        (
+            StageConfig {
+                pcen: Some(PcenParams::DEFAULT),
+                mfcc: Some(MfccConfig {
+                    coefficients: 10,
+                    lifter: None,
+                }),
+                ..StageConfig::NONE
+            },
+            "stages.mfcc",
+        ),
+        (
+            StageConfig {
+                quantise: Some(QuantiseConfig {
+                    scale: 1.0,
+                    zero_point: 200,
+                    codes: CodeRange::Int8,
+                }),
+                ..StageConfig::NONE
+            },
+            "stages.quantise.zero_point",
+        ),
+        (
+            StageConfig {
+                quantise: Some(QuantiseConfig {
+                    scale: f32::NAN,
+                    zero_point: 0,
+                    codes: CodeRange::Int8,
+                }),
+                ..StageConfig::NONE
+            },
+            "stages.quantise.scale",
+        ),
+        (
+            StageConfig {
+                model_window: Some(ModelWindowConfig {
+                    frames: 49,
+                    stride: 50,
+                }),
+                ..StageConfig::NONE
+            },
+            "stages.model_window.stride",
+        ),
+        (
+            StageConfig {
+                pcen: Some(PcenParams {
+                    alpha: 1.5,
+                    ..PcenParams::DEFAULT
+                }),
+                ..StageConfig::NONE
+            },
+            "stages.pcen.alpha",
+        ),
+    ];
+    for (st, field) in cases {
+        let err = with(st).validate().unwrap_err();
+        assert_eq!(err.field(), field, "{err}");
+        assert!(err.to_string().contains(field.rsplit('.').next().unwrap()));
+    }
+    assert!(with(every_stage()).validate().is_ok());
+}
+
+#[test]
+fn version_three_blobs_carry_the_stage_tables_and_refuse_bad_ones() {
+    for c in [KWS16K_MEL40, KWS16K_MFCC10] {
+        let t = GeneratedTables::new(&c);
+        let stored = Aligned::new(&blob(&t, BlobContents::ALL));
+        let parsed = TableBlob::parse(stored.bytes()).unwrap();
+        assert_eq!(parsed.config(), c);
+        assert_eq!(parsed.stage_tables().unwrap(), t.stages.view());
+    }
+    // Normalisation statistics through the blob.
+    let c = FeatureConfig {
+        stages: every_stage(),
+        ..SPEECH16K_40
+    };
+    let stats = (vec![1.5f32; 13], vec![2.0f32; 13]);
+    let t = GeneratedTables::with_statistics(&c, Some(stats.clone())).unwrap();
+    let bytes = blob(&t, BlobContents::ALL);
+    let parsed_tables = {
+        let stored = Aligned::new(&bytes);
+        let p = TableBlob::parse(stored.bytes()).unwrap();
+        let s = p.stage_tables().unwrap();
+        (s.mean.to_vec(), s.deviation.to_vec(), s.lifter_q11.len())
+    };
+    assert_eq!(parsed_tables, (stats.0.clone(), stats.1.clone(), 13));
+    // Without statistics the generator says what to give.
+    let err = GeneratedTables::with_statistics(&c, None).unwrap_err();
+    assert!(err.to_string().contains("[stages.normalise]"), "{err}");
+    // A DCT section cut short: refused, naming the table.
+    let mut b = bytes.clone();
+    let sections = u16::from_le_bytes([b[10], b[11]]) as usize;
+    for entry in 0..sections {
+        let at = 32 + entry * 12;
+        if u16::from_le_bytes([b[at], b[at + 1]]) == SectionKind::DctF32 as u16 {
+            let len = u32::from_le_bytes(b[at + 8..at + 12].try_into().unwrap());
+            b[at + 8..at + 12].copy_from_slice(&(len - 4).to_le_bytes());
+        }
+    }
+    let crc = blob_crc(&b);
+    b[28..32].copy_from_slice(&crc.to_le_bytes());
+    let stored = Aligned::new(&b);
+    let err = TableBlob::parse(stored.bytes())
+        .unwrap()
+        .stage_tables()
+        .unwrap_err();
+    assert!(matches!(err, BlobError::StageTables(_)), "{err:?}");
+    assert!(err.to_string().contains("dct_f32"), "{err}");
+}
+
+fn stapes(args: &[&str]) -> anyhow::Result<stapes_sim::commands::Outcome> {
+    use clap::Parser;
+    let mut all = vec!["stapes"];
+    all.extend_from_slice(args);
+    stapes_sim::commands::run(stapes_sim::cli::Cli::try_parse_from(all)?)
+}
+
+#[test]
+fn a_configuration_file_sets_every_stage_and_check_holds_each() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("mine.toml");
+    let mean: Vec<String> = (0..13).map(|i| format!("{}.0", i)).collect();
+    let dev: Vec<String> = (0..13).map(|i| format!("{}.5", i + 5)).collect();
+    std::fs::write(
+        &file,
+        format!(
+            "base_preset = \"kws16k-mel40\"\n[stages.range_floor]\nbelow_peak_db = 60.0\n\
+             [stages.mfcc]\ncoefficients = 13\nlifter = 22\n\
+             [stages.normalise]\nmean = [{}]\ndeviation = [{}]\n\
+             [stages.quantise]\nscale = 0.1\nzero_point = -3\ncodes = \"int8\"\n",
+            mean.join(", "),
+            dev.join(", ")
+        ),
+    )
+    .unwrap();
+    for arith in ["f32", "fixed16"] {
+        let out = stapes(&[
+            "check",
+            "--config",
+            file.to_str().unwrap(),
+            "--arith",
+            arith,
+        ]);
+        match (arith, out) {
+            ("f32", Ok(o)) => assert_eq!(o, stapes_sim::commands::Outcome::Success),
+            // The fixed paths do not normalise yet, and say so.
+            (_, Err(e)) => assert!(e.to_string().contains("--arith f32"), "{e}"),
+            (a, o) => panic!("{a}: {o:?}"),
+        }
+    }
+    let named = stapes_sim::config_source::ConfigArgs {
+        config: Some(file.clone()),
+        ..Default::default()
+    }
+    .resolve()
+    .unwrap();
+    let t = GeneratedTables::with_statistics(&named.config, named.statistics).unwrap();
+    let names: Vec<&str> = stapes_sim::stage_check::tolerances(
+        stapes_sim::check::Arith::F32,
+        &named.config,
+        &t.stages.view(),
+    )
+    .iter()
+    .map(|(n, _)| *n)
+    .collect();
+    assert_eq!(names, ["range_floor", "mfcc", "quantise"]);
+    // An unknown key under a stage is named.
+    std::fs::write(
+        &file,
+        "base_preset = \"kws16k-mel40\"\n[stages.mfcc]\ncoeffs = 3\n",
+    )
+    .unwrap();
+    let err = stapes(&["check", "--config", file.to_str().unwrap()]).unwrap_err();
+    assert!(err.to_string().contains("coeffs"), "{err}");
+}
+
+#[test]
+fn features_writes_the_model_windows_and_any_stage() {
+    let dir = tempfile::tempdir().unwrap();
+    let wav = dir.path().join("clip.wav");
+    let x = stapes_tests::noise_i16(&mut stapes_tests::rng(8), 24_000, 0.2);
+    let spec = hound::WavSpec {
+        channels: 1,
+        sample_rate: 16_000,
+        bits_per_sample: 16,
+        sample_format: hound::SampleFormat::Int,
+    };
+    let mut w = hound::WavWriter::create(&wav, spec).unwrap();
+    for v in &x {
+        w.write_sample(*v).unwrap();
+    }
+    w.finalize().unwrap();
+    let npy = dir.path().join("windows.npy");
+    let out = stapes(&[
+        "features",
+        "--preset",
+        "kws16k-mfcc10",
+        "--arith",
+        "fixed16",
+        "--raw",
+        "--windows",
+        "--input",
+        wav.to_str().unwrap(),
+        "--output",
+        npy.to_str().unwrap(),
+    ]);
+    assert_eq!(out.unwrap(), stapes_sim::commands::Outcome::Success);
+    // 24 000 samples: (24000 - 640) / 320 + 1 = 74 frames, 74 - 49 + 1 = 26 windows.
+    let bytes = std::fs::read(&npy).unwrap();
+    let header = String::from_utf8_lossy(&bytes[..128]);
+    assert!(header.contains("'descr': '|i1'"), "{header}");
+    assert!(header.contains("(26, 49, 10"), "{header}");
+    let out = stapes(&[
+        "features",
+        "--preset",
+        "kws16k-mfcc10",
+        "--stage",
+        "cepstrum",
+        "--input",
+        wav.to_str().unwrap(),
+        "--output",
+        npy.to_str().unwrap(),
+    ]);
+    let err = out.unwrap_err().to_string();
+    assert!(err.contains("range_floor, mfcc, quantise"), "{err}");
+}
