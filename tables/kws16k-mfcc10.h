@@ -22,12 +22,12 @@
 /* log = decibel */
 /* floor_db = -100 */
 /* stages.pcen = off */
-/* stages.range_floor = 60 dB below the peak */
+/* stages.range_floor = 40 dB below the peak */
 /* stages.mfcc = 10 coefficients, lifter off */
 /* stages.normalise = false */
 /* stages.quantise = scale 4 zero_point 0 int8 */
 /* stages.model_window = 49 frames, stride 1 */
-#define STAPES_KWS16K_MFCC10_FINGERPRINT 0x6514a9e0u
+#define STAPES_KWS16K_MFCC10_FINGERPRINT 0x6bfe9dfau
 #define STAPES_KWS16K_MFCC10_SAMPLE_RATE_HZ 16000u
 #define STAPES_KWS16K_MFCC10_WINDOW_SAMPLES 640u
 #define STAPES_KWS16K_MFCC10_FFT_POINTS 1024u
@@ -857,7 +857,7 @@ static const int16_t stapes_kws16k_mfcc10_dct_q15[400] = {
 /* Fixed-path stage constants: PCEN alpha Q16, root Q16, smoothing Q31, epsilon, delta, delta^root (mantissa, exponent: m * 2^(e - 31)), quantiser multiplier, shift, input fraction bits, range floor in 1/256 output units, 1 reserved. */
 static const int32_t stapes_kws16k_mfcc10_fixed_stage_params[14] = {
     0, 0, 0, 0, 0, 0, 0,
-    0, 0, 1073741824, 40, 8, 15360, 0,
+    0, 0, 1073741824, 40, 8, 10240, 0,
 };
 
 #endif /* STAPES_KWS16K_MFCC10_H */

@@ -21,7 +21,7 @@ pub const CONFIG: stapes_core::config::FeatureConfig = stapes_core::config::Feat
     floor_db: -100.0,
     stages: stapes_core::config::StageConfig {
         pcen: None,
-        range_floor: Some(stapes_core::stage_config::RangeFloorConfig { below_peak_db: 60.0 }),
+        range_floor: Some(stapes_core::stage_config::RangeFloorConfig { below_peak_db: 40.0 }),
         mfcc: Some(stapes_core::stage_config::MfccConfig { coefficients: 10, lifter: None }),
         normalise: false,
         quantise: Some(stapes_core::stage_config::QuantiseConfig { scale: 4.0, zero_point: 0, codes: stapes_core::quantise::CodeRange::Int8 }),
@@ -30,7 +30,7 @@ pub const CONFIG: stapes_core::config::FeatureConfig = stapes_core::config::Feat
 };
 
 /// `CONFIG.fingerprint()`, checked when a front end is built.
-pub const FINGERPRINT: u32 = 0x6514a9e0;
+pub const FINGERPRINT: u32 = 0x6bfe9dfa;
 /// FFT buffer elements a front end needs.
 pub const FFT_POINTS: usize = 1024;
 /// Overlap store elements a front end needs.
@@ -956,6 +956,6 @@ pub static STAGE_TABLES: stapes_core::stage_tables::StageTables<'static> = stape
         quantise_multiplier: 1073741824,
         quantise_shift: 40,
         quantise_fraction_bits: 8,
-        range_floor_q8: 15360,
+        range_floor_q8: 10240,
     },
 };

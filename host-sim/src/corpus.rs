@@ -209,6 +209,136 @@ pub fn run_config(
     Ok(rows)
 }
 
+/// One stage of one configuration × arithmetic over the corpus.
+#[derive(Debug, Clone)]
+pub struct StageCorpusRow {
+    /// Configuration name.
+    pub config: String,
+    /// Arithmetic.
+    pub arith: Arith,
+    /// The stage.
+    pub stage: &'static str,
+    /// The stated tolerance.
+    pub tolerance: f64,
+    /// Per clip: name, max |error|, share of exact codes (quantise only).
+    pub clips: Vec<(String, f64, Option<f64>)>,
+    /// Values the quantiser clamped, over every clip.
+    pub clamped: u64,
+}
+
+impl StageCorpusRow {
+    /// Clips within the tolerance.
+    pub fn passing(&self) -> usize {
+        self.clips.iter().filter(|c| c.1 <= self.tolerance).count()
+    }
+}
+
+/// Runs the stages of `config` (sparse filterbank) over the clips at its
+/// rate in every arithmetic, each stage against its reference.
+pub fn run_config_stages(
+    name: &str,
+    config: &FeatureConfig,
+    tables: &GeneratedTables,
+    clips: &[Clip],
+    ariths: &[Arith],
+) -> Result<Vec<StageCorpusRow>> {
+    let mine: Vec<&Clip> = clips
+        .iter()
+        .filter(|c| c.rate_hz == config.sample_rate_hz)
+        .collect();
+    let stage_tables = tables.stages.view();
+    let form = FilterbankForm::Sparse;
+    let mut rows = Vec::new();
+    for &arith in ariths {
+        if arith != Arith::F32 && config.stages.normalise {
+            continue; // not on the fixed path yet (README says so)
+        }
+        let core_tables = match arith {
+            Arith::F32 => CoreTables::Float(tables.view_f32(form)),
+            _ => match tables.fixed_tables(form) {
+                Some(t) => CoreTables::Fixed(t),
+                None => continue,
+            },
+        };
+        let per_clip: Vec<(String, Vec<crate::stage_check::StageComparison>, u64)> = mine
+            .par_iter()
+            .map(|clip| {
+                let (c, clamped) = crate::stage_check::check_stages(
+                    arith,
+                    config,
+                    core_tables,
+                    &stage_tables,
+                    &clip.samples,
+                    0,
+                )
+                .with_context(|| format!("{}: {}", clip.name, arith.name()))?;
+                Ok((clip.name.clone(), c, clamped))
+            })
+            .collect::<Result<_>>()?;
+        for (stage, tolerance) in crate::stage_check::tolerances(arith, config, &stage_tables) {
+            let clips = per_clip
+                .iter()
+                .filter_map(|(clip, comps, _)| {
+                    comps
+                        .iter()
+                        .find(|c| c.name == stage)
+                        .map(|c| (clip.clone(), c.max_error, c.exact_share))
+                })
+                .collect();
+            rows.push(StageCorpusRow {
+                config: name.to_string(),
+                arith,
+                stage,
+                tolerance,
+                clips,
+                clamped: per_clip.iter().map(|c| c.2).sum(),
+            });
+        }
+    }
+    Ok(rows)
+}
+
+/// The printed table of the stages over the corpus.
+pub fn stage_report(rows: &[StageCorpusRow]) -> String {
+    let mut s = String::new();
+    if rows.is_empty() {
+        return s;
+    }
+    let _ = writeln!(
+        s,
+        "\nstages after the log, against their float64 reference (sparse filterbank):"
+    );
+    let _ = writeln!(
+        s,
+        "{:<14} {:<8} {:<12} {:>13}  {:<48} {:>10} {:>10}  exact codes (worst clip)",
+        "configuration", "arith", "stage", "clips passing", "worst clip", "max", "tolerance"
+    );
+    for r in rows {
+        let worst = r.clips.iter().max_by(|a, b| a.1.total_cmp(&b.1));
+        let exact = r
+            .clips
+            .iter()
+            .filter_map(|c| c.2)
+            .fold(None, |m: Option<f64>, v| Some(m.map_or(v, |m| m.min(v))));
+        let _ = writeln!(
+            s,
+            "{:<14} {:<8} {:<12} {:>13}  {:<48} {:>10.3e} {:>10.3e}  {}",
+            r.config,
+            r.arith.name(),
+            r.stage,
+            format!("{} / {}", r.passing(), r.clips.len()),
+            worst.map_or("-", |w| w.0.as_str()),
+            worst.map_or(0.0, |w| w.1),
+            r.tolerance,
+            match exact {
+                Some(e) => format!("{:.2} % ({} values clamped in all)", 100.0 * e, r.clamped),
+                None => String::new(),
+            }
+        );
+    }
+    s
+}
+
 /// The printed corpus table, and the failing clips (at most `list` per row).
 pub fn report(rows: &[CorpusRow], list: usize) -> String {
     let mut s = String::new();
@@ -311,6 +441,12 @@ fn names_a_configuration(a: &ConfigArgs) -> bool {
         || a.spectrum.is_some()
         || a.log.is_some()
         || a.floor_db.is_some()
+        || a.pcen.is_some()
+        || a.range_floor_db.is_some()
+        || a.mfcc.is_some()
+        || a.lifter.is_some()
+        || a.quantise.is_some()
+        || a.model_window.is_some()
 }
 
 /// `stapes check --corpus DIR`.
@@ -325,13 +461,14 @@ pub fn corpus_command(
         None => Arith::ALL.to_vec(),
     };
     let clips = load_clips(dir)?;
-    let configs: Vec<(String, FeatureConfig)> = if names_a_configuration(config_args) {
+    type Statistics = Option<(Vec<f32>, Vec<f32>)>;
+    let configs: Vec<(String, FeatureConfig, Statistics)> = if names_a_configuration(config_args) {
         let named = config_args.resolve()?;
-        vec![(named.name, named.config)]
+        vec![(named.name, named.config, named.statistics)]
     } else {
         presets::ALL
             .iter()
-            .map(|(n, c)| (n.to_string(), *c))
+            .map(|(n, c)| (n.to_string(), *c, None))
             .collect()
     };
     let mut rates: Vec<u32> = clips.iter().map(|c| c.rate_hz).collect();
@@ -348,7 +485,8 @@ pub fn corpus_command(
             .join(", ")
     );
     let mut rows = Vec::new();
-    for (name, config) in &configs {
+    let mut stage_rows = Vec::new();
+    for (name, config, statistics) in &configs {
         if !clips.iter().any(|c| c.rate_hz == config.sample_rate_hz) {
             bail!(
                 "{} has no clip at {} Hz for {name}: add clips at that rate, or choose a \
@@ -363,9 +501,15 @@ pub fn corpus_command(
             );
         }
         rows.extend(run_config(name, config, &clips, &ariths)?);
+        if config.stages.any() {
+            let tables = GeneratedTables::with_statistics(config, statistics.clone())?;
+            stage_rows.extend(run_config_stages(name, config, &tables, &clips, &ariths)?);
+        }
     }
     crate::say_text!(report(&rows, list));
-    let failed = rows.iter().any(|r| r.passing() < r.clips.len());
+    crate::say_text!(stage_report(&stage_rows));
+    let failed = rows.iter().any(|r| r.passing() < r.clips.len())
+        || stage_rows.iter().any(|r| r.passing() < r.clips.len());
     crate::say!(
         "verdict: {}",
         if failed {

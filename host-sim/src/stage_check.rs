@@ -5,8 +5,13 @@
 //! The tolerances, and where they come from:
 //! * **range floor**: the arithmetic's log-mel tolerance at 60 dB of range
 //!   (f32 0.01, fixed32 0.05, fixed16 1.0, in the log's unit; the log itself
-//!   is checked by the log-mel check); the floor keeps every value within
-//!   that range of its frame's peak, and the floor moves with the peak.
+//!   is checked by the log-mel check). `max` is 1-Lipschitz, so a floored
+//!   value errs by at most its band's error or the peak's, as long as no
+//!   band from beyond the 60 dB the tolerance covers rises above the floor:
+//!   that holds for a floor at most 40 dB below the peak (a 20 dB margin).
+//!   Measured on the speech corpus, fixed16 with a floor of 60 dB errs by up
+//!   to 3.3 dB (bands just beyond 60 dB lifted above the floor), with 40 or
+//!   50 dB by 0.76 dB.
 //! * **MFCC**: the level stage's tolerance × √bands × the largest lifter
 //!   factor. The DCT is orthonormal, so `max|ΔC| ≤ ‖ΔC‖₂ = ‖Δx‖₂ ≤
 //!   √B·max|Δx|` (common practice: an orthonormal map keeps the 2-norm);
@@ -233,7 +238,7 @@ fn compare(
                 tolerance,
                 max_error: per_value.iter().copied().fold(0.0, f64::max),
                 per_value,
-                exact_share: (name == "quantise").then(|| exact as f64 / total.max(1) as f64),
+                exact_share: (name == "quantise" && total > 0).then(|| exact as f64 / total as f64),
                 frames,
                 skipped,
             })
