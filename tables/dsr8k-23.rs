@@ -222,6 +222,7 @@ pub static FIXED_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = stape
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -231,6 +232,7 @@ pub static FIXED16_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = sta
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &[],
     window_q31: &[],
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -240,6 +242,7 @@ pub static FIXED32_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = sta
     twiddles_q15: &[],
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 

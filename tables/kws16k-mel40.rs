@@ -740,6 +740,22 @@ pub static TWIDDLES_Q31: [i32; 257] = [
     105372028, 92209205, 79042909, 65873638, 52701887, 39528151, 26352928, 13176712,
     0,
 ];
+pub static OFFSET_SPECTRUM_Q16: [i32; 106] = [
+    20971518, 0, -6196838, -14960490, -4746972, 4746972, 500363, 207257,
+    0, 508605, -86160, 35689, 68140, 68140, -29742, 71803,
+    17, 0, 13692, 33057, -14037, 14037, 7453, 3087,
+    0, 16085, -4468, 1851, 5065, 5065, -2881, 6956,
+    -2, 0, 1974, 4766, -2368, 2368, 1415, 586,
+    0, 3425, -1067, 442, 1292, 1292, -799, 1929,
+    -3, 0, 622, 1501, -784, 784, 505, 209,
+    0, 1237, -397, 164, 506, 506, -322, 778,
+    -2, 0, 262, 633, -363, 363, 227, 94,
+    0, 594, -192, 80, 251, 251, -167, 403,
+    11, 0, 141, 339, -192, 192, 159, 66,
+    0, 285, -100, 41, 121, 121, -97, 233,
+    -2, 0, 78, 189, -120, 120, 74, 31,
+    0, 210,
+];
 
 /// Constants of the fixed-point path.
 pub const FIXED_PARAMS: stapes_core::fixed_tables::FixedParams = stapes_core::fixed_tables::FixedParams {
@@ -755,6 +771,7 @@ pub static FIXED_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = stape
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &OFFSET_SPECTRUM_Q16,
     params: FIXED_PARAMS,
 };
 
@@ -764,6 +781,7 @@ pub static FIXED16_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = sta
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &[],
     window_q31: &[],
+    window_spectrum: &OFFSET_SPECTRUM_Q16,
     params: FIXED_PARAMS,
 };
 
@@ -773,6 +791,7 @@ pub static FIXED32_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = sta
     twiddles_q15: &[],
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -782,6 +801,7 @@ pub static FIXED_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = stap
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &OFFSET_SPECTRUM_Q16,
     params: FIXED_PARAMS,
 };
 
@@ -791,6 +811,7 @@ pub static FIXED16_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = st
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &[],
     window_q31: &[],
+    window_spectrum: &OFFSET_SPECTRUM_Q16,
     params: FIXED_PARAMS,
 };
 
@@ -800,6 +821,7 @@ pub static FIXED32_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = st
     twiddles_q15: &[],
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 

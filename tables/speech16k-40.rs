@@ -485,6 +485,7 @@ pub static FIXED_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = stape
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -494,6 +495,7 @@ pub static FIXED16_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = sta
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &[],
     window_q31: &[],
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -503,6 +505,7 @@ pub static FIXED32_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = sta
     twiddles_q15: &[],
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -512,6 +515,7 @@ pub static FIXED_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = stap
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -521,6 +525,7 @@ pub static FIXED16_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = st
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &[],
     window_q31: &[],
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -530,6 +535,7 @@ pub static FIXED32_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = st
     twiddles_q15: &[],
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 

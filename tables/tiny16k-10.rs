@@ -273,6 +273,7 @@ pub static FIXED_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = stape
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -282,6 +283,7 @@ pub static FIXED16_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = sta
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &[],
     window_q31: &[],
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -291,6 +293,7 @@ pub static FIXED32_SPARSE: stapes_core::fixed_tables::FixedTables<'static> = sta
     twiddles_q15: &[],
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -300,6 +303,7 @@ pub static FIXED_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = stap
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -309,6 +313,7 @@ pub static FIXED16_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = st
     twiddles_q15: &TWIDDLES_Q15,
     twiddles_q31: &[],
     window_q31: &[],
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 
@@ -318,6 +323,7 @@ pub static FIXED32_COMPACT: stapes_core::fixed_tables::FixedTables<'static> = st
     twiddles_q15: &[],
     twiddles_q31: &TWIDDLES_Q31,
     window_q31: &WINDOW_Q31.0,
+    window_spectrum: &[],
     params: FIXED_PARAMS,
 };
 

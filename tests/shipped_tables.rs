@@ -30,6 +30,10 @@ mod kws16k_mel40 {
 mod kws16k_mfcc10 {
     include!("../tables/kws16k-mfcc10.rs");
 }
+#[allow(dead_code)]
+mod kws16k_pcen40 {
+    include!("../tables/kws16k-pcen40.rs");
+}
 
 #[test]
 fn regenerating_the_shipped_tables_changes_no_byte() {
@@ -103,6 +107,7 @@ fn the_rust_source_holds_the_generated_views() {
     for (module_config, stage_tables) in [
         (kws16k_mel40::CONFIG, kws16k_mel40::STAGE_TABLES),
         (kws16k_mfcc10::CONFIG, kws16k_mfcc10::STAGE_TABLES),
+        (kws16k_pcen40::CONFIG, kws16k_pcen40::STAGE_TABLES),
     ] {
         let t = GeneratedTables::new(&module_config);
         assert_eq!(stage_tables, t.stages.view());
@@ -115,6 +120,7 @@ fn the_rust_source_holds_the_generated_views() {
             tiny16k_10::CONFIG,
             kws16k_mel40::CONFIG,
             kws16k_mfcc10::CONFIG,
+            kws16k_pcen40::CONFIG,
         ];
         assert!(shipped.contains(&c), "{name} has no shipped Rust source");
     }

@@ -349,3 +349,42 @@ fn model_input_stages_on_speech() {
     assert!(worst[4] <= 5e-4, "f32 PCEN {:.2e}", worst[4]);
     assert!(worst[5] <= 0.4, "fixed16 PCEN {:.3}", worst[5]);
 }
+
+/// The stages after the log of every preset that has them (the kws16k
+/// presets) hold their stated tolerance per stage × arithmetic on every
+/// clip (`host-sim/src/stage_check.rs` states them; the same table as
+/// `stapes check --corpus`).
+#[test]
+fn every_stage_holds_its_tolerance_on_every_clip() {
+    use stapes_sim::corpus::{run_config_stages, stage_report};
+    use stapes_sim::generate::GeneratedTables;
+    let dir = corpus_dir();
+    let clips = load_clips(&dir).unwrap();
+    let mut rows = Vec::new();
+    for (name, config) in all_presets() {
+        if !config.stages.any() {
+            continue;
+        }
+        let tables = GeneratedTables::new(&config);
+        rows.extend(run_config_stages(name, &config, &tables, &clips, &Arith::ALL).unwrap());
+    }
+    println!("{}", stage_report(&rows));
+    assert!(rows.len() >= 12, "{} rows", rows.len());
+    for r in &rows {
+        assert!(
+            r.clips.len() >= 150,
+            "{} {} {}",
+            r.config,
+            r.arith.name(),
+            r.stage
+        );
+        assert_eq!(
+            r.passing(),
+            r.clips.len(),
+            "{} {} {}: a clip exceeds the stage's tolerance",
+            r.config,
+            r.arith.name(),
+            r.stage
+        );
+    }
+}

@@ -105,6 +105,9 @@ pub enum SectionKind {
     /// The fixed path's stage parameters,
     /// [`FixedStageParams::to_words`](crate::stage_tables::FixedStageParams::to_words).
     FixedStageParams = 23,
+    /// The Q15 window's DFT on its first bins, `(re, im)` Q16 `i32` pairs
+    /// ([`FixedTables::window_spectrum`]); optional (format version 3).
+    WindowSpectrum = 24,
 }
 
 impl SectionKind {
@@ -134,6 +137,7 @@ impl SectionKind {
             SectionKind::NormaliseMean => "normalisation means",
             SectionKind::NormaliseDeviation => "normalisation deviations",
             SectionKind::FixedStageParams => "fixed-point stage constants",
+            SectionKind::WindowSpectrum => "window spectrum",
         }
     }
 }
@@ -465,6 +469,11 @@ impl<'a> TableBlob<'a> {
             twiddles_q15: self.section::<i16>(SectionKind::TwiddlesQ15)?,
             twiddles_q31: self.section::<i32>(SectionKind::TwiddlesQ31)?,
             window_q31: self.section::<i32>(SectionKind::WindowQ31)?,
+            window_spectrum: match self.section::<i32>(SectionKind::WindowSpectrum) {
+                Ok(w) => w,
+                Err(BlobError::MissingSection { .. }) => &[],
+                Err(e) => return Err(e),
+            },
             params,
         };
         tables.check(&self.config).map_err(|e| match e {
@@ -474,6 +483,9 @@ impl<'a> TableBlob<'a> {
             },
             FixedTableError::WindowQ31 { .. } => BlobError::BadSectionLength {
                 kind: SectionKind::WindowQ31,
+            },
+            FixedTableError::WindowSpectrum { .. } => BlobError::BadSectionLength {
+                kind: SectionKind::WindowSpectrum,
             },
             other => BlobError::FixedContents(other),
         })?;

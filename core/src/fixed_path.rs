@@ -7,9 +7,15 @@
 //!   in the `f32` path). DC removal and pre-emphasis are run at frame time
 //!   from the filter state saved at the frame's first sample, in `i32` with
 //!   13 extra fraction bits (`i64` products), so the stored stream stays exact.
-//! * **Offset compensation** (16-bit data, windows whose DFT has only bins 0
-//!   and ±1, see [`offset_spectrum`]): the frame's window-weighted mean is
-//!   taken out before the FFT and added back to bins 0 and 1 exactly.
+//! * **Offset compensation** (16-bit data): the frame's window-weighted
+//!   mean `d` is taken out before the FFT and `d·W(k)` added back to the
+//!   bins where the window's DFT `W` lives: bins 0 and 1 exactly for a
+//!   window whose DFT has only those ([`offset_spectrum`]: a periodic raised
+//!   cosine or a rectangle filling the FFT), or the first bins the generator
+//!   lists for any other window whose DFT falls below `2^-17·W(0)` within
+//!   `N/8` bins ([`FixedTables::window_spectrum`], for example a periodic
+//!   Hann zero-padded to the FFT). Without it a DC offset takes the 16-bit
+//!   FFT's range from the speech on it.
 //! * **Normalisation before windowing**: the conditioned frame is shifted so
 //!   its largest sample uses the FFT's full range (15 bits for
 //!   [`Fixed16`](crate::int_fft::Fixed16), 29 for [`Fixed32`](crate::int_fft::Fixed32)); quiet frames keep their precision.
@@ -160,7 +166,8 @@ pub trait FrameData: BfpSample {
     /// rounded to 16 bits.
     const WINDOWED_NORMALISATION: bool;
     /// Whether the frame's offset is taken out before the FFT where the
-    /// window allows ([`offset_spectrum`]): 16-bit data only (32-bit data
+    /// window allows ([`offset_spectrum`], [`FixedTables::window_spectrum`]):
+    /// 16-bit data only (32-bit data
     /// have the range to keep it).
     const OFFSET_COMPENSATION: bool;
     /// A value known to fit the type.
@@ -925,10 +932,10 @@ pub struct FixedFrontEnd<
     stages: S,
     fraction_bits: u32,
     spectrum_shift: u32,
-    /// `W(0)` and `W(1)` of the window's DFT in Q16 when the frame's offset is
-    /// taken out before the FFT and added back in the spectrum (see
-    /// [`offset_spectrum`]).
-    offset_spectrum: Option<(i64, i64)>,
+    /// The window's DFT `W(k)` (Q16) for the bins the frame's offset is
+    /// added back to, when it is taken out before the FFT (see
+    /// [`offset_spectrum`] and [`FixedTables::window_spectrum`]).
+    offset_spectrum: Option<OffsetBins<'t>>,
     /// The lowest bin any band reads.
     lowest_bin: usize,
     /// `Σ w` of the window in Q15 (offset compensation's weighted mean).
@@ -1080,6 +1087,36 @@ pub fn offset_spectrum(config: &FeatureConfig) -> Option<(i64, i64)> {
     }
 }
 
+/// The window's DFT on the bins the frame's offset is added back to.
+#[derive(Clone, Copy, Debug)]
+enum OffsetBins<'t> {
+    /// `W(0)` and `W(±1)`, exact, of a window whose DFT has only those bins.
+    Ideal(i64, i64),
+    /// `(re, im)` of `W(k)` for `k = 0 .. len/2`, Q16, from the generator
+    /// (beyond them `|W(k)|` stays below `2^-17·W(0)`), and the largest
+    /// `|W(k)|` (rounded up) over the bins a band reads.
+    Table(&'t [i32], u64),
+}
+
+impl OffsetBins<'_> {
+    /// Bins that get the offset back.
+    fn bins(&self) -> usize {
+        match self {
+            OffsetBins::Ideal(..) => 2,
+            OffsetBins::Table(t, _) => t.len() / 2,
+        }
+    }
+
+    /// `W(k)` in Q16, `k < bins()`.
+    #[inline]
+    fn at(&self, k: usize) -> (i64, i64) {
+        match *self {
+            OffsetBins::Ideal(w0, w1) => (if k == 0 { w0 } else { w1 }, 0),
+            OffsetBins::Table(t, _) => (t[2 * k] as i64, t[2 * k + 1] as i64),
+        }
+    }
+}
+
 /// The lowest bin with a nonzero weight in any band.
 fn lowest_bin(filterbank: &Filterbank<'_, i16>) -> usize {
     match *filterbank {
@@ -1209,7 +1246,25 @@ where
             },
             spectrum_shift,
             offset_spectrum: if <P::Data as FrameData>::OFFSET_COMPENSATION {
-                offset_spectrum(&config)
+                match offset_spectrum(&config) {
+                    Some((w0, w1)) => Some(OffsetBins::Ideal(w0, w1)),
+                    None if !tables.window_spectrum.is_empty() => {
+                        let lowest = lowest_bin(&tables.table.filterbank);
+                        let w_max = tables
+                            .window_spectrum
+                            .chunks_exact(2)
+                            .skip(lowest)
+                            .map(|w| {
+                                let p = (w[0] as i64 * w[0] as i64) as u64
+                                    + (w[1] as i64 * w[1] as i64) as u64;
+                                isqrt_u64(p) + 1
+                            })
+                            .max()
+                            .unwrap_or(0);
+                        Some(OffsetBins::Table(tables.window_spectrum, w_max))
+                    }
+                    None => None,
+                }
             } else {
                 None
             },
@@ -1493,67 +1548,116 @@ where
         };
         let zero = P::Data::default();
         let last = value_of(buf[1], zero, shift);
-        // Offset compensation: bins 0 and 1 get d·W(k) back, in i64 (|D| < 2^55),
-        // their values in u128; if they outgrow the other bins' 32 bits, the
-        // whole frame's values are shifted right by `offset_bin_shift`.
-        let mut offset_bin_shift = 0u32;
-        let mut offset_bins = None;
-        if let (Some((w0, w1)), true) = (offset_terms, offset != 0) {
-            // D = d·W·2^(norm − 16 − e_f); norm ≤ 15 and e_f ≥ 0: a right shift.
-            let down = (16 + fft_exponent - norm) as u32;
+        // Offset compensation: the first K bins get d·W(k) back, in i64
+        // (|D| < 2^55), their values as m·2^e; if they outgrow the other bins'
+        // 32 bits, the whole frame's values are shifted right by
+        // `offset_bin_shift`. Each such bin is computed twice (once for the
+        // shift, once to store it), so no array is kept.
+        let compensated = match offset_terms {
+            Some(terms) if offset != 0 => Some(terms),
+            _ => None,
+        };
+        // D = d·W·2^(norm − 16 − e_f); norm ≤ 15 and e_f ≥ 0: a right shift.
+        let down = (16 + fft_exponent - norm) as u32;
+        let lowest = self.lowest_bin;
+        // The raw FFT output of bin k (k < N/2) as (re, im).
+        let raw = |buf: &[P::Data], k: usize| -> (i64, i64) {
+            if k == 0 {
+                (buf[0].get_i32() as i64, 0)
+            } else {
+                (buf[2 * k].get_i32() as i64, buf[2 * k + 1].get_i32() as i64)
+            }
+        };
+        let added = |terms: &OffsetBins<'_>, k: usize, (xr, xi): (i64, i64)| -> (u64, u32) {
+            // A bin no band reads does not count (bin 0 lies below most
+            // filterbanks' low edge; with it the offset would cost every band
+            // its precision).
+            if k < lowest {
+                return (0, 0);
+            }
             let term = |wq: i64| {
                 let v = offset as i64 * wq;
                 (v + ((1i64 << down) >> 1)) >> down
             };
-            let y0 = buf[0].get_i32() as i64 + term(w0);
-            let (y1r, y1i) = (buf[2].get_i32() as i64 + term(w1), buf[3].get_i32() as i64);
-            // Each as m·2^e: components brought below 2^31 (dropping bits
-            // 2^-31 below the value's top), so the squares' sum fits u64.
-            let as_scaled = |re: i64, im: i64| -> (u64, u32) {
-                let top = re.unsigned_abs() | im.unsigned_abs();
-                let t = (64 - top.leading_zeros()).saturating_sub(31);
-                let (r, i) = (re >> t, im >> t);
-                let p = (r * r) as u64 + (i * i) as u64;
-                if magnitude {
-                    // In the other bins' units: MAGNITUDE_FRACTION_BITS more.
-                    (
-                        isqrt_u64(p),
-                        t + <P::Data as FrameData>::MAGNITUDE_FRACTION_BITS,
-                    )
-                } else {
-                    (p, 2 * t)
-                }
-            };
-            // A bin no band reads does not count (bin 0 lies below most
-            // filterbanks' low edge; with it the offset would cost every band
-            // its precision).
-            let lowest = self.lowest_bin;
-            let (m0, e0) = if lowest > 0 { (0, 0) } else { as_scaled(y0, 0) };
-            let (m1, e1) = if lowest > 1 {
-                (0, 0)
+            let (wr, wi) = terms.at(k);
+            let (re, im) = (xr + term(wr), if k == 0 { 0 } else { xi + term(wi) });
+            // Components brought below 2^31 (dropping bits 2^-31 below the
+            // value's top), so the squares' sum fits u64.
+            let top = re.unsigned_abs() | im.unsigned_abs();
+            let t = (64 - top.leading_zeros()).saturating_sub(31);
+            let (r, i) = (re >> t, im >> t);
+            let p = (r * r) as u64 + (i * i) as u64;
+            if magnitude {
+                // In the other bins' units: MAGNITUDE_FRACTION_BITS more.
+                (
+                    isqrt_u64(p),
+                    t + <P::Data as FrameData>::MAGNITUDE_FRACTION_BITS,
+                )
             } else {
-                as_scaled(y1r, y1i)
-            };
-            let bits = |m: u64, e: u32| (64 - m.leading_zeros() + e).saturating_sub(shift);
-            offset_bin_shift = bits(m0, e0).max(bits(m1, e1)).saturating_sub(32);
-            let place = |m: u64, e: u32| {
-                let down = shift + offset_bin_shift;
-                if down >= e {
-                    m >> (down - e)
+                (p, 2 * t)
+            }
+        };
+        let mut offset_bin_shift = 0u32;
+        // The two bins of an exactly known window, computed once.
+        let mut ideal_bins = None;
+        match &compensated {
+            Some(terms @ OffsetBins::Ideal(..)) => {
+                // Two bins: their exact values set the shift.
+                let pair = [added(terms, 0, raw(buf, 0)), added(terms, 1, raw(buf, 1))];
+                let bits =
+                    |&(m, e): &(u64, u32)| (64 - m.leading_zeros() + e).saturating_sub(shift);
+                offset_bin_shift = pair.iter().map(bits).max().unwrap_or(0).saturating_sub(32);
+                ideal_bins = Some(pair);
+            }
+            Some(OffsetBins::Table(_, w_max)) => {
+                // Many bins: a bound sets the shift, so each bin is computed
+                // once. |X(k) + D(k)| < 2^16 + |d|·max|W|·2^-down + 1 (16-bit
+                // data: |X| < √2·2^15); a power's bit length is at most twice
+                // that bound's, a magnitude's that plus its fraction bits.
+                let d_max = ((offset.unsigned_abs() as u64 * *w_max) >> down) + 1;
+                let z_bits = 64 - ((1u64 << 16) + d_max).leading_zeros();
+                let bits = if magnitude {
+                    z_bits + <P::Data as FrameData>::MAGNITUDE_FRACTION_BITS
                 } else {
-                    m << (e - down)
-                }
-            };
-            offset_bins = Some((place(m0, e0), place(m1, e1)));
+                    2 * z_bits
+                };
+                offset_bin_shift = bits.saturating_sub(shift).saturating_sub(32);
+            }
+            None => {}
         }
-        let last = last >> offset_bin_shift;
         let total = shift + offset_bin_shift;
-        let first = value_of(buf[0], zero, total);
-        <P::Data as FrameData>::store_bin(&mut buf[..2], first);
-        spectrum_pairs(&mut buf[2..], total, magnitude);
-        if let Some((v0, v1)) = offset_bins {
-            <P::Data as FrameData>::store_bin(&mut buf[..2], v0);
-            <P::Data as FrameData>::store_bin(&mut buf[2..4], v1);
+        let place = |(m, e): (u64, u32)| {
+            if total >= e {
+                m >> (total - e)
+            } else {
+                m << (e - total)
+            }
+        };
+        let last = last >> offset_bin_shift;
+        match &compensated {
+            Some(OffsetBins::Ideal(..)) => {
+                let [b0, b1] = ideal_bins.expect("computed above");
+                <P::Data as FrameData>::store_bin(&mut buf[..2], place(b0));
+                <P::Data as FrameData>::store_bin(&mut buf[2..4], place(b1));
+                spectrum_pairs(&mut buf[4..], total, magnitude);
+            }
+            Some(terms) => {
+                // Bins 1 .. K first, each from its raw pair, then bin 0 (whose
+                // pair holds X[0] and X[N/2]), then the rest.
+                let bins = terms.bins();
+                for k in 1..bins {
+                    let v = place(added(terms, k, raw(buf, k)));
+                    <P::Data as FrameData>::store_bin(&mut buf[2 * k..2 * k + 2], v);
+                }
+                let v0 = place(added(terms, 0, raw(buf, 0)));
+                <P::Data as FrameData>::store_bin(&mut buf[..2], v0);
+                spectrum_pairs(&mut buf[2 * bins..], total, magnitude);
+            }
+            None => {
+                let first = value_of(buf[0], zero, total);
+                <P::Data as FrameData>::store_bin(&mut buf[..2], first);
+                spectrum_pairs(&mut buf[2..], total, magnitude);
+            }
         }
         probe.mark(Stage::Spectrum);
         let buf = &*buf;

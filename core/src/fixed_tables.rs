@@ -72,6 +72,14 @@ pub struct FixedTables<'a> {
     /// offset, hum) into weak high bands at about 100 dB below it, which the
     /// 32-bit path would otherwise resolve.
     pub window_q31: &'a [i32],
+    /// The Q15 window's DFT `W(k) = Σ w[n]·e^(−2πikn/N)` in Q16, as `(re, im)`
+    /// pairs for `k = 0 .. K`, where beyond `K` every `|W(k)|` stays below
+    /// `2^-17·W(0)`: the 16-bit path takes the frame's offset out before the
+    /// FFT and adds `d·W(k)` back to these bins. Empty for windows the core
+    /// knows exactly (a periodic raised cosine or a rectangle filling the
+    /// FFT: only bins 0 and 1) and for windows whose DFT falls too slowly
+    /// (then the offset stays in the frame); optional in a blob.
+    pub window_spectrum: &'a [i32],
     /// Constants.
     pub params: FixedParams,
 }
@@ -96,6 +104,14 @@ pub enum FixedTableError {
         found: usize,
         /// Entries needed (`window_samples`).
         expected: usize,
+    },
+    /// The window's spectrum holds an odd count or more bins than an eighth
+    /// of the FFT.
+    WindowSpectrum {
+        /// Values found.
+        found: usize,
+        /// The most allowed (two per bin).
+        most: usize,
     },
     /// A Q15 filterbank weight is negative.
     NegativeWeight {
@@ -129,6 +145,11 @@ impl fmt::Display for FixedTableError {
                 f,
                 "Q31 window has {found} entries where the configuration needs {expected}: regenerate the table"
             ),
+            FixedTableError::WindowSpectrum { found, most } => write!(
+                f,
+                "window spectrum has {found} values where an even count up to {most} is allowed: \
+                 regenerate the table"
+            ),
             FixedTableError::NegativeWeight { index } => write!(
                 f,
                 "filterbank weight {index} is negative: the table is corrupt, regenerate it"
@@ -161,6 +182,13 @@ impl FixedTables<'_> {
         let found = self.window_q31.len();
         if found != 0 && found != expected {
             return Err(FixedTableError::WindowQ31 { found, expected });
+        }
+        let pairs = self.window_spectrum.len() / 2;
+        if self.window_spectrum.len() % 2 != 0 || pairs > config.fft_points as usize / 8 {
+            return Err(FixedTableError::WindowSpectrum {
+                found: self.window_spectrum.len(),
+                most: config.fft_points as usize / 4,
+            });
         }
         // The mel loops read weights as unsigned.
         let weights = match self.table.filterbank {

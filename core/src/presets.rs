@@ -130,13 +130,36 @@ pub const KWS16K_MFCC10: FeatureConfig = FeatureConfig {
     ..KWS16K_MEL40
 };
 
+/// Keyword spotting with PCEN input: [`KWS16K_MEL40`]'s framing and bands,
+/// PCEN (Wang et al., ICASSP 2017) on the band energies in place of the
+/// log with the default parameters ([`PcenParams::DEFAULT`](crate::pcen::PcenParams::DEFAULT)),
+/// int8 codes of 0.05 with zero point −128 (PCEN's output from 0 to 12.75),
+/// into a 49-frame window. The scale and zero point are the project's own.
+pub const KWS16K_PCEN40: FeatureConfig = FeatureConfig {
+    stages: StageConfig {
+        pcen: Some(crate::pcen::PcenParams::DEFAULT),
+        quantise: Some(QuantiseConfig {
+            scale: 0.05,
+            zero_point: -128,
+            codes: CodeRange::Int8,
+        }),
+        model_window: Some(ModelWindowConfig {
+            frames: 49,
+            stride: 1,
+        }),
+        ..StageConfig::NONE
+    },
+    ..KWS16K_MEL40
+};
+
 /// Every shipped preset with its name.
-pub const ALL: [(&str, FeatureConfig); 5] = [
+pub const ALL: [(&str, FeatureConfig); 6] = [
     ("speech16k-40", SPEECH16K_40),
     ("dsr8k-23", DSR8K_23),
     ("tiny16k-10", TINY16K_10),
     ("kws16k-mel40", KWS16K_MEL40),
     ("kws16k-mfcc10", KWS16K_MFCC10),
+    ("kws16k-pcen40", KWS16K_PCEN40),
 ];
 
 /// Name of the preset used when none is given.

@@ -18,14 +18,19 @@ compile_error!("enable exactly one arithmetic feature: f32, fixed16 or fixed32")
     feature = "preset-dsr8k-23",
     feature = "preset-tiny16k-10",
     feature = "preset-kws16k-mel40",
-    feature = "preset-kws16k-mfcc10"
+    feature = "preset-kws16k-mfcc10",
+    feature = "preset-kws16k-pcen40"
 )))]
 compile_error!("enable exactly one preset feature");
 #[cfg(all(
     feature = "model-input",
-    not(any(feature = "preset-kws16k-mel40", feature = "preset-kws16k-mfcc10"))
+    not(any(
+        feature = "preset-kws16k-mel40",
+        feature = "preset-kws16k-mfcc10",
+        feature = "preset-kws16k-pcen40"
+    ))
 ))]
-compile_error!("model-input runs a preset's stages: use preset-kws16k-mel40 or preset-kws16k-mfcc10");
+compile_error!("model-input runs a preset's stages: use a preset-kws16k-* feature");
 
 mod board;
 mod emulator;
@@ -88,18 +93,35 @@ mod preset {
     pub const NAME: &str = "kws16k-mfcc10";
     include!("../../tables/kws16k-mfcc10.rs");
 }
+#[cfg(all(
+    feature = "preset-kws16k-pcen40",
+    not(any(
+        feature = "preset-speech16k-40",
+        feature = "preset-dsr8k-23",
+        feature = "preset-tiny16k-10",
+        feature = "preset-kws16k-mel40",
+        feature = "preset-kws16k-mfcc10"
+    ))
+))]
+#[allow(dead_code)]
+mod preset {
+    pub const NAME: &str = "kws16k-pcen40";
+    include!("../../tables/kws16k-pcen40.rs");
+}
 
 /// The stages after the filterbank of a kws16k preset, chained at compile
 /// time from its configuration and generated stage tables: log (and, for
-/// MFCC, the range floor and the DCT), then int8 codes.
+/// MFCC, the range floor and the DCT) or PCEN, then int8 codes.
 #[cfg(feature = "model-input")]
 mod chain {
     use super::preset;
+    use stapes_core::{AffineQuantiser, FixedQuantiseStage, FixedTables, QuantiseStage, Then};
+    #[cfg(not(feature = "preset-kws16k-pcen40"))]
+    use stapes_core::{FixedLog, FloatLog};
     #[cfg(feature = "preset-kws16k-mfcc10")]
     use stapes_core::{FixedMfcc, FloatMfcc, RangeFloor};
-    use stapes_core::{
-        AffineQuantiser, FixedLog, FixedQuantiseStage, FixedTables, FloatLog, QuantiseStage, Then,
-    };
+    #[cfg(feature = "preset-kws16k-pcen40")]
+    use stapes_core::{FixedPcen, FloatPcen};
 
     const V: usize = preset::STAGE_VALUES;
     const B: usize = preset::BANDS;
@@ -108,6 +130,8 @@ mod chain {
     pub type FloatLevels = FloatLog;
     #[cfg(feature = "preset-kws16k-mfcc10")]
     pub type FloatLevels = Then<Then<FloatLog, RangeFloor<f32>>, FloatMfcc<'static, V>>;
+    #[cfg(feature = "preset-kws16k-pcen40")]
+    pub type FloatLevels = FloatPcen<B>;
     /// The f32 chain.
     pub type Float = Then<FloatLevels, QuantiseStage<i8, V>>;
 
@@ -118,6 +142,8 @@ mod chain {
         Then<FixedLog<'static, B>, RangeFloor<stapes_core::fixed::types::I8F8>>,
         FixedMfcc<'static, V>,
     >;
+    #[cfg(feature = "preset-kws16k-pcen40")]
+    pub type FixedLevels = FixedPcen<B>;
     /// The fixed chain.
     pub type Fixed = Then<FixedLevels, FixedQuantiseStage<i8, V>>;
 
@@ -126,9 +152,21 @@ mod chain {
         let c = &preset::CONFIG;
         preset::STAGE_TABLES.check(c).ok()?;
         let q = c.stages.quantise?;
+        #[cfg(not(feature = "preset-kws16k-pcen40"))]
         let log = FloatLog::for_config(c);
         #[cfg(feature = "preset-kws16k-mel40")]
         let levels = log;
+        #[cfg(feature = "preset-kws16k-pcen40")]
+        let levels = {
+            // The smoother's coefficient from the time constant and the hop,
+            // once at start-up (the f32 board has an FPU).
+            let p = c.stages.pcen?;
+            FloatPcen::new(
+                p,
+                p.smoothing(c.hop_samples as f32 / c.sample_rate_hz as f32),
+            )
+            .ok()?
+        };
         #[cfg(feature = "preset-kws16k-mfcc10")]
         let levels = Then(
             Then(log, RangeFloor::new(c.stages.range_floor?.below_peak_db)),
@@ -143,9 +181,15 @@ mod chain {
         let c = &preset::CONFIG;
         let st = &preset::STAGE_TABLES;
         st.check(c).ok()?;
+        #[cfg(not(feature = "preset-kws16k-pcen40"))]
         let log = FixedLog::for_tables(tables);
         #[cfg(feature = "preset-kws16k-mel40")]
         let levels = log;
+        #[cfg(feature = "preset-kws16k-pcen40")]
+        let levels = {
+            let _ = tables;
+            FixedPcen::new(st.fixed_pcen(c)?)
+        };
         #[cfg(feature = "preset-kws16k-mfcc10")]
         let levels = Then(
             Then(log, st.fixed_range_floor(c)?),

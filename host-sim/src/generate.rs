@@ -59,6 +59,9 @@ pub struct GeneratedTables {
     /// The tables of the stages after the filterbank (DCT, statistics, the
     /// fixed path's stage parameters).
     pub stages: crate::model_input::GeneratedStageTables,
+    /// The Q15 window's DFT on its first bins (`FixedTables::window_spectrum`),
+    /// or empty.
+    pub window_spectrum: Vec<i32>,
     /// What quantisation cost.
     pub quantisation: QuantisationReport,
 }
@@ -243,6 +246,7 @@ impl GeneratedTables {
             twiddles_q15,
             twiddles_q31,
             fixed_params: fixed_params(config),
+            window_spectrum: window_spectrum(config, &window_q15),
             stages: crate::model_input::GeneratedStageTables {
                 dct: None,
                 mean: Vec::new(),
@@ -272,6 +276,7 @@ impl GeneratedTables {
             twiddles_q15: &self.twiddles_q15,
             twiddles_q31: &self.twiddles_q31,
             window_q31: &self.window_q31,
+            window_spectrum: &self.window_spectrum,
             params: self.fixed_params?,
         })
     }
@@ -382,4 +387,44 @@ fn compact_band_gain_error(design: &Design, q: &[i16]) -> f64 {
         worst = worst.max((got - designed).abs() / designed);
     }
     worst
+}
+
+/// Largest `|W(k)| / W(0)` beyond the window spectrum's last bin: the
+/// offset's leakage left out there stays 102 dB below the offset's own bin.
+pub const WINDOW_SPECTRUM_TAIL: f64 = 1.0 / 131_072.0;
+
+/// The Q15 window's DFT `W(k) = Σ w[n]·e^(−2πikn/N)` (f64, rounded to Q16)
+/// as `(re, im)` pairs for the bins `k < K` beyond which every `|W(k)|`
+/// stays below [`WINDOW_SPECTRUM_TAIL`]`·W(0)`, for the 16-bit fixed path's
+/// offset compensation; empty where the core knows the window's DFT exactly
+/// (`stapes_core::fixed_path::offset_spectrum`) or where `K` would exceed
+/// `N/8` (a window whose sidelobes fall slowly, such as Hamming's: the
+/// add-back would cost more than it saves).
+pub fn window_spectrum(config: &FeatureConfig, window_q15: &[i16]) -> Vec<i32> {
+    if stapes_core::fixed_path::offset_spectrum(config).is_some() {
+        return Vec::new();
+    }
+    let n = config.fft_points as usize;
+    let bins = n / 2 + 1;
+    let w: Vec<f64> = window_q15.iter().map(|&c| c as f64 / 32768.0).collect();
+    let dft: Vec<(f64, f64)> = (0..bins)
+        .map(|k| {
+            w.iter().enumerate().fold((0.0, 0.0), |(re, im), (i, &c)| {
+                let a = -2.0 * std::f64::consts::PI * ((k * i) % n) as f64 / n as f64;
+                (re + c * a.cos(), im + c * a.sin())
+            })
+        })
+        .collect();
+    let w0 = dft[0].0.abs();
+    let k_end = dft
+        .iter()
+        .rposition(|&(re, im)| re.hypot(im) > WINDOW_SPECTRUM_TAIL * w0)
+        .map_or(0, |k| k + 1);
+    if k_end > n / 8 {
+        return Vec::new();
+    }
+    dft[..k_end]
+        .iter()
+        .flat_map(|&(re, im)| [(re * 65536.0).round() as i32, (im * 65536.0).round() as i32])
+        .collect()
 }

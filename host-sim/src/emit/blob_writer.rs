@@ -127,6 +127,12 @@ pub fn sections(tables: &GeneratedTables, contents: BlobContents) -> Vec<(Sectio
         out.push((SectionKind::TwiddlesQ31, bytes_of(&tables.twiddles_q31)));
         out.push((SectionKind::WindowQ31, bytes_of(&tables.window_q31)));
         out.push((SectionKind::FixedParams, bytes_of(&p.to_words())));
+        if !tables.window_spectrum.is_empty() {
+            out.push((
+                SectionKind::WindowSpectrum,
+                bytes_of(&tables.window_spectrum),
+            ));
+        }
     }
     out
 }

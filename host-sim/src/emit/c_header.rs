@@ -192,6 +192,20 @@ pub fn c_header(tables: &GeneratedTables, prefix: &str, command: &str) -> String
         8,
         |v| format!("{v}"),
     );
+    if !tables.window_spectrum.is_empty() {
+        let _ = writeln!(
+            s,
+            "/* Q15 window's DFT W(k), k = 0..K-1, as (re, im) Q16 pairs: the 16-bit path adds d*W(k) back to these bins. */"
+        );
+        array(
+            &mut s,
+            "int32_t",
+            &format!("{prefix}_window_spectrum"),
+            &tables.window_spectrum,
+            8,
+            |v| v.to_string(),
+        );
+    }
     if let Some(p) = &tables.fixed_params {
         let _ = writeln!(
             s,

@@ -335,6 +335,16 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
         8,
         |v| v.to_string(),
     );
+    if !tables.window_spectrum.is_empty() {
+        array(
+            &mut s,
+            "OFFSET_SPECTRUM_Q16",
+            "i32",
+            &tables.window_spectrum,
+            8,
+            |v| v.to_string(),
+        );
+    }
     if let Some(p) = &tables.fixed_params {
         let _ = writeln!(s);
         let _ = writeln!(s, "/// Constants of the fixed-point path.");
@@ -372,13 +382,19 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
             let lower = name.to_lowercase();
             // Both precisions' arrays, then each precision's own only (a board
             // links just what it reads).
-            for (static_name, doc, q15, q31, window) in [
+            let spectrum16 = if tables.window_spectrum.is_empty() {
+                "&[]"
+            } else {
+                "&OFFSET_SPECTRUM_Q16"
+            };
+            for (static_name, doc, q15, q31, window, spectrum) in [
                 (
                     format!("FIXED_{name}"),
                     format!("Fixed-point tables, {lower} filterbank."),
                     "&TWIDDLES_Q15",
                     "&TWIDDLES_Q31",
                     "&WINDOW_Q31.0",
+                    spectrum16,
                 ),
                 (
                     format!("FIXED16_{name}"),
@@ -388,6 +404,7 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
                     "&TWIDDLES_Q15",
                     "&[]",
                     "&[]",
+                    spectrum16,
                 ),
                 (
                     format!("FIXED32_{name}"),
@@ -397,6 +414,7 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
                     "&[]",
                     "&TWIDDLES_Q31",
                     "&WINDOW_Q31.0",
+                    "&[]",
                 ),
             ] {
                 let _ = writeln!(s);
@@ -409,6 +427,7 @@ pub fn rust_source(tables: &GeneratedTables, command: &str) -> String {
                 let _ = writeln!(s, "    twiddles_q15: {q15},");
                 let _ = writeln!(s, "    twiddles_q31: {q31},");
                 let _ = writeln!(s, "    window_q31: {window},");
+                let _ = writeln!(s, "    window_spectrum: {spectrum},");
                 let _ = writeln!(s, "    params: FIXED_PARAMS,");
                 let _ = writeln!(s, "}};");
             }
