@@ -764,7 +764,7 @@ static const int32_t stapes_kws16k_mel40_window_spectrum[106] = {
 #define STAPES_KWS16K_MEL40_LOG2_TO_OUTPUT_Q16 197283
 /* Stages after the filterbank: values per frame after them. */
 #define STAPES_KWS16K_MEL40_STAGE_VALUES 40u
-/* Fixed-path stage constants: PCEN alpha Q16, root Q16, smoothing Q31, epsilon, delta, delta^root (mantissa, exponent: m * 2^(e - 31)), quantiser multiplier, shift, input fraction bits, range floor in 1/256 output units, 1 reserved. */
+/* Fixed-path stage constants: PCEN alpha Q16, root Q16, smoothing Q31, epsilon, delta, delta^root (mantissa, exponent: m * 2^(e - 31)), quantiser multiplier, shift, input fraction bits, range floor in 1/256 output units, the normalising quantiser's shared shift. */
 static const int32_t stapes_kws16k_mel40_fixed_stage_params[14] = {
     0, 0, 0, 0, 0, 0, 0,
     0, 0, 1789569636, 38, 8, 0, 0,

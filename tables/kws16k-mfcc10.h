@@ -871,7 +871,7 @@ static const int16_t stapes_kws16k_mfcc10_dct_q15[400] = {
     288, 4974, 7276, 6092, 1989, -3068, -6654, -7052, -4071, 861, 5380, 7321,
     5754, 1429, -3580, -6874,
 };
-/* Fixed-path stage constants: PCEN alpha Q16, root Q16, smoothing Q31, epsilon, delta, delta^root (mantissa, exponent: m * 2^(e - 31)), quantiser multiplier, shift, input fraction bits, range floor in 1/256 output units, 1 reserved. */
+/* Fixed-path stage constants: PCEN alpha Q16, root Q16, smoothing Q31, epsilon, delta, delta^root (mantissa, exponent: m * 2^(e - 31)), quantiser multiplier, shift, input fraction bits, range floor in 1/256 output units, the normalising quantiser's shared shift. */
 static const int32_t stapes_kws16k_mfcc10_fixed_stage_params[14] = {
     0, 0, 0, 0, 0, 0, 0,
     0, 0, 1073741824, 40, 8, 10240, 0,

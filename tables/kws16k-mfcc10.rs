@@ -973,11 +973,14 @@ pub static STAGE_TABLES: stapes_core::stage_tables::StageTables<'static> = stape
     lifter_q11: &[],
     mean: &[],
     deviation: &[],
+    norm_offsets: &[],
+    norm_multipliers: &[],
     fixed: stapes_core::stage_tables::FixedStageParams {
         pcen: stapes_core::pcen_fixed::FixedPcenParams { alpha_q16: 0, root_q16: 0, smoothing_q31: 0, epsilon: stapes_core::pcen_fixed::Soft { mantissa: 0x00000000, exponent: 0 }, delta: stapes_core::pcen_fixed::Soft { mantissa: 0x00000000, exponent: 0 }, delta_root: stapes_core::pcen_fixed::Soft { mantissa: 0x00000000, exponent: 0 } },
         quantise_multiplier: 1073741824,
         quantise_shift: 40,
         quantise_fraction_bits: 8,
         range_floor_q8: 10240,
+        norm_shift: 0,
     },
 };

@@ -868,11 +868,14 @@ pub static STAGE_TABLES: stapes_core::stage_tables::StageTables<'static> = stape
     lifter_q11: &[],
     mean: &[],
     deviation: &[],
+    norm_offsets: &[],
+    norm_multipliers: &[],
     fixed: stapes_core::stage_tables::FixedStageParams {
         pcen: stapes_core::pcen_fixed::FixedPcenParams { alpha_q16: 64225, root_q16: 32768, smoothing_q31: 104733952, epsilon: stapes_core::pcen_fixed::Soft { mantissa: 0x8637bd00, exponent: -20 }, delta: stapes_core::pcen_fixed::Soft { mantissa: 0x80000000, exponent: 1 }, delta_root: stapes_core::pcen_fixed::Soft { mantissa: 0xb504f334, exponent: 0 } },
         quantise_multiplier: 1342177260,
         quantise_shift: 42,
         quantise_fraction_bits: 16,
         range_floor_q8: 0,
+        norm_shift: 0,
     },
 };

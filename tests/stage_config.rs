@@ -227,7 +227,8 @@ fn a_configuration_file_sets_every_stage_and_check_holds_each() {
         ),
     )
     .unwrap();
-    for arith in ["f32", "fixed16"] {
+    // Every arithmetic: the fixed ones fold the normalisation into the quantiser.
+    for arith in ["f32", "fixed32", "fixed16"] {
         let out = stapes(&[
             "check",
             "--config",
@@ -235,12 +236,11 @@ fn a_configuration_file_sets_every_stage_and_check_holds_each() {
             "--arith",
             arith,
         ]);
-        match (arith, out) {
-            ("f32", Ok(o)) => assert_eq!(o, stapes_sim::commands::Outcome::Success),
-            // The fixed paths do not normalise yet, and say so.
-            (_, Err(e)) => assert!(e.to_string().contains("--arith f32"), "{e}"),
-            (a, o) => panic!("{a}: {o:?}"),
-        }
+        assert_eq!(
+            out.unwrap(),
+            stapes_sim::commands::Outcome::Success,
+            "{arith}"
+        );
     }
     let named = stapes_sim::config_source::ConfigArgs {
         config: Some(file.clone()),
@@ -317,4 +317,124 @@ fn features_writes_the_model_windows_and_any_stage() {
     ]);
     let err = out.unwrap_err().to_string();
     assert!(err.contains("range_floor, mfcc, quantise"), "{err}");
+}
+
+/// The fixed normalising quantiser equals exact rounding of
+/// `(x − o)·M / 2^k + Z` (ties away from zero, clamped) computed in i128
+/// from the same parts, on random values, means, deviations and scales, and
+/// stays within one code of the f64 formula `(x − μ)/(σ·S) + Z`.
+#[test]
+fn the_fixed_normalising_quantiser_rounds_exactly() {
+    use rand::Rng;
+    use stapes_core::fixed::types::I8F8;
+    use stapes_core::normalise::FixedNormalisedQuantise;
+    use stapes_core::stage::FrameStage;
+    let mut r = stapes_tests::rng(91);
+    let mut worst_vs_f64 = 0i64;
+    for _ in 0..200 {
+        let n = 16;
+        let mean: Vec<f32> = (0..n).map(|_| r.random_range(-60.0..20.0)).collect();
+        let deviation: Vec<f32> = (0..n).map(|_| r.random_range(0.2..30.0)).collect();
+        let scale: f32 = r.random_range(0.01..2.0);
+        let zero: i32 = r.random_range(-128..=127);
+        let (offsets, multipliers, k) =
+            stapes_sim::model_input::normalised_quantiser_parts(&mean, &deviation, scale, 256.0)
+                .unwrap();
+        let mut stage = FixedNormalisedQuantise::<i8, 16>::new(
+            &offsets,
+            &multipliers,
+            k,
+            zero,
+            CodeRange::Int8,
+        )
+        .unwrap();
+        let mut x: Vec<I8F8> = (0..n)
+            .map(|_| I8F8::from_bits(r.random_range(-32768..=32767i32) as i16))
+            .collect();
+        let values: Vec<i32> = x.iter().map(|v| v.to_bits() as i32).collect();
+        let codes = stage.process(&mut x).to_vec();
+        for i in 0..n {
+            let p = (values[i] as i128 - offsets[i] as i128) * multipliers[i] as i128;
+            let den = 1i128 << k;
+            let mag = (2 * p.abs() + den) / (2 * den);
+            let q = (if p < 0 { -mag } else { mag } + zero as i128).clamp(-128, 127);
+            assert_eq!(codes[i] as i128, q, "value {i}");
+            let ideal = ((values[i] as f64 / 256.0 - mean[i] as f64)
+                / (deviation[i] as f64 * scale as f64))
+                .round()
+                + zero as f64;
+            let ideal = ideal.clamp(-128.0, 127.0) as i64;
+            worst_vs_f64 = worst_vs_f64.max((codes[i] as i64 - ideal).abs());
+        }
+    }
+    assert!(
+        worst_vs_f64 <= 1,
+        "{worst_vs_f64} codes from the f64 formula"
+    );
+}
+
+/// `stapes statistics` measures a folder of clips and writes a
+/// `[stages.normalise]` table that a configuration file takes as it is; the
+/// normalised configuration then holds every stage's tolerance in every
+/// arithmetic.
+#[test]
+fn statistics_from_clips_feed_a_normalising_configuration() {
+    let dir = tempfile::tempdir().unwrap();
+    let clips = dir.path().join("clips");
+    std::fs::create_dir(&clips).unwrap();
+    let spec = hound::WavSpec {
+        channels: 1,
+        sample_rate: 16_000,
+        bits_per_sample: 16,
+        sample_format: hound::SampleFormat::Int,
+    };
+    for (i, amp) in [0.05, 0.3].into_iter().enumerate() {
+        let mut w = hound::WavWriter::create(clips.join(format!("c{i}.wav")), spec).unwrap();
+        for v in stapes_tests::noise_i16(&mut stapes_tests::rng(i as u64 + 3), 16_000, amp) {
+            w.write_sample(v).unwrap();
+        }
+        w.finalize().unwrap();
+    }
+    let stats = dir.path().join("stats.toml");
+    let out = stapes(&[
+        "statistics",
+        "--corpus",
+        clips.to_str().unwrap(),
+        "--preset",
+        "kws16k-mfcc10",
+        "--output",
+        stats.to_str().unwrap(),
+    ]);
+    assert_eq!(out.unwrap(), stapes_sim::commands::Outcome::Success);
+    let table = std::fs::read_to_string(&stats).unwrap();
+    assert!(table.contains("[stages.normalise]") && table.contains("deviation = ["));
+    let config = dir.path().join("normalised.toml");
+    std::fs::write(
+        &config,
+        format!("base_preset = \"kws16k-mfcc10\"\n{table}[stages.quantise]\nscale = 0.03\nzero_point = 0\n"),
+    )
+    .unwrap();
+    let named = stapes_sim::config_source::ConfigArgs {
+        config: Some(config.clone()),
+        ..Default::default()
+    }
+    .resolve()
+    .unwrap();
+    let (mean, deviation) = named.statistics.clone().unwrap();
+    assert_eq!((mean.len(), deviation.len()), (10, 10));
+    assert!(deviation.iter().all(|&d| d > 0.0));
+    for arith in ["f32", "fixed32", "fixed16"] {
+        let out = stapes(&[
+            "check",
+            "--config",
+            config.to_str().unwrap(),
+            "--arith",
+            arith,
+        ]);
+        assert_eq!(
+            out.unwrap(),
+            stapes_sim::commands::Outcome::Success,
+            "{arith}"
+        );
+    }
 }

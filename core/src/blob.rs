@@ -108,6 +108,10 @@ pub enum SectionKind {
     /// The Q15 window's DFT on its first bins, `(re, im)` Q16 `i32` pairs
     /// ([`FixedTables::window_spectrum`]); optional (format version 3).
     WindowSpectrum = 24,
+    /// The fixed normalising quantiser's offsets, `i32`.
+    NormaliseOffsets = 25,
+    /// The fixed normalising quantiser's multipliers, `i32`.
+    NormaliseMultipliers = 26,
 }
 
 impl SectionKind {
@@ -138,6 +142,8 @@ impl SectionKind {
             SectionKind::NormaliseDeviation => "normalisation deviations",
             SectionKind::FixedStageParams => "fixed-point stage constants",
             SectionKind::WindowSpectrum => "window spectrum",
+            SectionKind::NormaliseOffsets => "normalisation offsets",
+            SectionKind::NormaliseMultipliers => "normalisation multipliers",
         }
     }
 }
@@ -510,6 +516,12 @@ impl<'a> TableBlob<'a> {
             }
             bytemuck::try_cast_slice(raw).map_err(|_| BlobError::BadSectionLength { kind })
         };
+        let cast32 = |kind, raw: &'a [u8]| -> Result<&'a [i32], BlobError> {
+            if raw.is_empty() {
+                return Ok(&[]);
+            }
+            bytemuck::try_cast_slice(raw).map_err(|_| BlobError::BadSectionLength { kind })
+        };
         let cast16 = |kind, raw: &'a [u8]| -> Result<&'a [i16], BlobError> {
             if raw.is_empty() {
                 return Ok(&[]);
@@ -537,6 +549,14 @@ impl<'a> TableBlob<'a> {
             deviation: cast(
                 SectionKind::NormaliseDeviation,
                 or_empty(SectionKind::NormaliseDeviation)?,
+            )?,
+            norm_offsets: cast32(
+                SectionKind::NormaliseOffsets,
+                or_empty(SectionKind::NormaliseOffsets)?,
+            )?,
+            norm_multipliers: cast32(
+                SectionKind::NormaliseMultipliers,
+                or_empty(SectionKind::NormaliseMultipliers)?,
             )?,
             fixed,
         };

@@ -203,3 +203,123 @@ impl<T: Code, const C: usize> crate::stage::FrameStage<f32> for NormalisedQuanti
         self.clamped = 0;
     }
 }
+
+/// Normalisation folded into the fixed path's quantiser, integers only:
+/// for value `b` in raw units `x` (1/256 for log and MFCC values, 1/65536
+/// for PCEN's), `q = clamp(round((x − o_b)·M_b / 2^k) + Z)`, ties away from
+/// zero, with `o_b = round(μ_b·2^f)` and `M_b / 2^k ≈ 1 / (σ_b·S·2^f)` from
+/// the host (`StageTables::norm_offsets`, `norm_multipliers` and the shared
+/// shift). The difference saturates at ±(2^31 − 1), beyond which the host's
+/// parts guarantee a clamped code.
+///
+/// ```
+/// use stapes_core::normalise::FixedNormalisedQuantise;
+/// use stapes_core::quantise::CodeRange;
+/// use stapes_core::stage::FrameStage;
+/// use stapes_core::fixed::types::I8F8;
+/// // Value 0: mean 1.0 (256 raw), σ·S = 0.5 → M/2^k = 1/128; value 1: mean 0, σ·S = 1.
+/// let (offsets, multipliers) = ([256, 0], [1 << 23, 1 << 22]);
+/// let mut q = FixedNormalisedQuantise::<i8, 2>::new(&offsets, &multipliers, 30, 0, CodeRange::Int8).unwrap();
+/// let codes = q.process(&mut [I8F8::from_num(2.25), I8F8::from_num(-1.5)]);
+/// assert_eq!(codes, &[3, -2]); // (2.25 − 1)/0.5 = 2.5 → 3; −1.5 → −2 (ties away from zero)
+/// ```
+#[derive(Clone, Debug)]
+pub struct FixedNormalisedQuantise<'t, T, const C: usize> {
+    offsets: &'t [i32],
+    multipliers: &'t [i32],
+    shift: u32,
+    zero_point: i32,
+    range: crate::quantise::CodeRange,
+    out: [T; C],
+    clamped: u64,
+}
+
+impl<'t, T: Code, const C: usize> FixedNormalisedQuantise<'t, T, C> {
+    /// A stage from the host's parts: one offset and one multiplier (≥ 1)
+    /// per value, at most `C`; a shared shift ≤ 62; the zero point within
+    /// `range`, which must be `T`'s.
+    pub fn new(
+        offsets: &'t [i32],
+        multipliers: &'t [i32],
+        shift: u32,
+        zero_point: i32,
+        range: crate::quantise::CodeRange,
+    ) -> Result<Self, NormaliseError> {
+        if offsets.len() != multipliers.len() || offsets.len() > C {
+            return Err(NormaliseError::Count {
+                means: offsets.len(),
+                deviations: multipliers.len(),
+                capacity: C,
+            });
+        }
+        if let Some(band) = multipliers.iter().position(|&m| m < 1) {
+            return Err(NormaliseError::Value { band });
+        }
+        if shift > 62 {
+            return Err(NormaliseError::Quantiser(QuantiserError::Parts {
+                multiplier: multipliers.first().copied().unwrap_or(0),
+                shift,
+            }));
+        }
+        if range != T::RANGE {
+            return Err(NormaliseError::Quantiser(QuantiserError::CodeType {
+                quantiser: range,
+                stage: T::RANGE,
+            }));
+        }
+        let (lo, hi) = range.limits();
+        if !(lo..=hi).contains(&zero_point) {
+            return Err(NormaliseError::Quantiser(QuantiserError::ZeroPoint {
+                zero_point,
+                range,
+            }));
+        }
+        Ok(FixedNormalisedQuantise {
+            offsets,
+            multipliers,
+            shift,
+            zero_point,
+            range,
+            out: [T::default(); C],
+            clamped: 0,
+        })
+    }
+
+    /// Values clamped since the start or the last reset.
+    pub fn clamped(&self) -> u64 {
+        self.clamped
+    }
+}
+
+impl<In: crate::quantise::RawUnits, T: Code, const C: usize> crate::stage::FrameStage<In>
+    for FixedNormalisedQuantise<'_, T, C>
+{
+    type Out = T;
+
+    #[inline]
+    fn process<'a>(&'a mut self, input: &'a mut [In]) -> &'a mut [T] {
+        let n = input.len().min(self.offsets.len()).min(C);
+        let (lo, hi) = self.range.limits();
+        let half = (1i64 << self.shift) >> 1;
+        for (((o, &x), &off), &m) in self.out[..n]
+            .iter_mut()
+            .zip(&input[..n])
+            .zip(self.offsets)
+            .zip(self.multipliers)
+        {
+            let d = (x.raw_units() as i64 - off as i64).clamp(-(i32::MAX as i64), i32::MAX as i64);
+            // |d·M| < 2^62: exact in i64.
+            let p = d * m as i64;
+            let magnitude = (p.unsigned_abs() as i64 + half) >> self.shift;
+            let q = if p < 0 { -magnitude } else { magnitude } + self.zero_point as i64;
+            let c = q.clamp(lo as i64, hi as i64);
+            self.clamped += (c != q) as u64;
+            *o = T::from_code(c as i32);
+        }
+        &mut self.out[..n]
+    }
+
+    fn reset(&mut self) {
+        self.clamped = 0;
+    }
+}

@@ -39,6 +39,9 @@ pub struct FixedStageParams {
     /// The range floor's distance below each frame's peak in 1/256 units of
     /// the log's output (`I8F8` bits); 0 when there is no range floor.
     pub range_floor_q8: i32,
+    /// The shift `k` shared by the normalising quantiser's multipliers
+    /// ([`StageTables::norm_multipliers`]); 0 without normalisation.
+    pub norm_shift: u32,
 }
 
 impl FixedStageParams {
@@ -56,6 +59,7 @@ impl FixedStageParams {
         quantise_shift: 0,
         quantise_fraction_bits: 0,
         range_floor_q8: 0,
+        norm_shift: 0,
     };
 
     /// The blob encoding: one little-endian word per field, [`Soft`]s as
@@ -76,14 +80,13 @@ impl FixedStageParams {
             self.quantise_shift as i32,
             self.quantise_fraction_bits as i32,
             self.range_floor_q8,
-            0,
+            self.norm_shift as i32,
         ]
     }
 
-    /// Decodes [`FixedStageParams::to_words`]; `None` for a wrong length or a
-    /// set reserved word.
+    /// Decodes [`FixedStageParams::to_words`]; `None` for a wrong length.
     pub fn from_words(w: &[i32]) -> Option<FixedStageParams> {
-        if w.len() != FIXED_STAGE_WORDS || w[13] != 0 {
+        if w.len() != FIXED_STAGE_WORDS {
             return None;
         }
         let soft = |m: i32, e: i32| Soft {
@@ -103,6 +106,7 @@ impl FixedStageParams {
             quantise_shift: w[10] as u32,
             quantise_fraction_bits: w[11] as u32,
             range_floor_q8: w[12],
+            norm_shift: w[13] as u32,
         })
     }
 }
@@ -123,6 +127,13 @@ pub struct StageTables<'t> {
     pub mean: &'t [f32],
     /// Per-value standard deviations (positive).
     pub deviation: &'t [f32],
+    /// The fixed path's normalising quantiser: per value `round(μ·2^f)` in
+    /// the quantiser's input units (empty without normalisation and a
+    /// quantiser).
+    pub norm_offsets: &'t [i32],
+    /// Per value `M` with `M / 2^k ≈ 1 / (σ·S·2^f)`, `k` the shared
+    /// [`FixedStageParams::norm_shift`].
+    pub norm_multipliers: &'t [i32],
     /// The fixed path's integer parameters.
     pub fixed: FixedStageParams,
 }
@@ -188,6 +199,8 @@ impl<'t> StageTables<'t> {
         lifter_q11: &[],
         mean: &[],
         deviation: &[],
+        norm_offsets: &[],
+        norm_multipliers: &[],
         fixed: FixedStageParams::NONE,
     };
 
@@ -228,6 +241,15 @@ impl<'t> StageTables<'t> {
         };
         len("mean", values, self.mean.len())?;
         len("deviation", values, self.deviation.len())?;
+        let folded = if s.quantise.is_some() { values } else { 0 };
+        len("norm_offsets", folded, self.norm_offsets.len())?;
+        len("norm_multipliers", folded, self.norm_multipliers.len())?;
+        if self.norm_multipliers.iter().any(|&m| m < 1)
+            || (self.fixed.norm_shift > 62)
+            || ((folded == 0) != (self.fixed.norm_shift == 0))
+        {
+            return Err(StageTableError::FixedParams);
+        }
         if let Some(index) = self
             .deviation
             .iter()
@@ -304,6 +326,24 @@ impl<'t> StageTables<'t> {
             let bits = self.fixed.range_floor_q8.clamp(0, i16::MAX as i32) as i16;
             crate::range_floor::RangeFloor::new(fixed::types::I8F8::from_bits(bits))
         })
+    }
+
+    /// The fixed path's quantiser with the normalisation folded in, if the
+    /// configuration normalises and quantises (codes of type `T`, at most
+    /// `C` values).
+    pub fn fixed_normalised_quantiser<T: crate::quantise::Code, const C: usize>(
+        &self,
+        config: &FeatureConfig,
+    ) -> Option<crate::normalise::FixedNormalisedQuantise<'t, T, C>> {
+        let q = config.stages.quantise.filter(|_| config.stages.normalise)?;
+        crate::normalise::FixedNormalisedQuantise::new(
+            self.norm_offsets,
+            self.norm_multipliers,
+            self.fixed.norm_shift,
+            q.zero_point,
+            q.codes,
+        )
+        .ok()
     }
 
     /// The fixed path's PCEN parameters, if the configuration has PCEN.

@@ -32,6 +32,22 @@ pub enum Command {
     Budget(BudgetArgs),
     /// Measure the core's speed on this machine (frames per second per arithmetic, demo clip).
     Speed(SpeedArgs),
+    /// Compute the per-value normalisation statistics of a folder of clips, as a [stages.normalise] table.
+    Statistics(StatisticsArgs),
+}
+
+/// `stapes statistics`.
+#[derive(Args, Debug)]
+pub struct StatisticsArgs {
+    /// Folder of WAV clips (searched recursively); those at the configuration's rate count.
+    #[arg(long, value_name = "DIR")]
+    pub corpus: PathBuf,
+    /// The TOML file to write (a [stages.normalise] table).
+    #[arg(long, value_name = "FILE.toml")]
+    pub output: PathBuf,
+    /// The configuration (its stages before the normaliser set what is measured).
+    #[command(flatten)]
+    pub config: ConfigArgs,
 }
 
 /// `stapes speed`.

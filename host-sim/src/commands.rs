@@ -34,6 +34,26 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Check(a) => check_command(&a),
         Command::Features(a) => features(&a),
         Command::Demo(a) => crate::demo::demo(&a),
+        Command::Statistics(a) => {
+            let named = a.config.resolve()?;
+            let (mean, deviation, frames, clips) =
+                crate::statistics::statistics(&named.config, &a.corpus)?;
+            let text = crate::statistics::toml_table(
+                &named.name,
+                &mean,
+                &deviation,
+                frames,
+                clips,
+                &a.corpus,
+            );
+            crate::output::write_atomic(&a.output, text.as_bytes())?;
+            crate::say!(
+                "statistics: {} values over {frames} frames of {clips} clips; wrote {}",
+                mean.len(),
+                a.output.display()
+            );
+            Ok(Outcome::Success)
+        }
         Command::Speed(a) => {
             let named = a.config.resolve()?;
             if !(a.seconds.is_finite() && a.seconds > 0.0 && a.seconds <= 600.0) {

@@ -250,8 +250,8 @@ pub fn run_config_stages(
     let form = FilterbankForm::Sparse;
     let mut rows = Vec::new();
     for &arith in ariths {
-        if arith != Arith::F32 && config.stages.normalise {
-            continue; // not on the fixed path yet (README says so)
+        if arith != Arith::F32 && config.stages.normalise && config.stages.quantise.is_none() {
+            continue; // the fixed paths normalise only folded into a quantiser
         }
         let core_tables = match arith {
             Arith::F32 => CoreTables::Float(tables.view_f32(form)),

@@ -251,6 +251,8 @@ impl GeneratedTables {
                 dct: None,
                 mean: Vec::new(),
                 deviation: Vec::new(),
+                norm_offsets: Vec::new(),
+                norm_multipliers: Vec::new(),
                 fixed: stapes_core::stage_tables::FixedStageParams::NONE,
             },
             design,

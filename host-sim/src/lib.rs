@@ -43,6 +43,7 @@ pub mod run;
 pub mod speed;
 pub mod stage_check;
 pub mod stages;
+pub mod statistics;
 pub mod sweep;
 pub mod synth;
 pub mod table_source;

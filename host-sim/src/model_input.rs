@@ -152,6 +152,11 @@ pub struct GeneratedStageTables {
     pub mean: Vec<f32>,
     /// Per-value standard deviations (empty without normalisation).
     pub deviation: Vec<f32>,
+    /// The fixed normalising quantiser's offsets (empty unless the
+    /// configuration normalises and quantises).
+    pub norm_offsets: Vec<i32>,
+    /// Its multipliers.
+    pub norm_multipliers: Vec<i32>,
     /// The fixed path's integer parameters.
     pub fixed: stapes_core::stage_tables::FixedStageParams,
 }
@@ -213,10 +218,22 @@ impl GeneratedStageTables {
             fixed.quantise_shift = k;
             fixed.quantise_fraction_bits = bits;
         }
+        let (mut norm_offsets, mut norm_multipliers) = (Vec::new(), Vec::new());
+        if let (true, Some(q)) = (s.normalise, s.quantise) {
+            let bits = fixed.quantise_fraction_bits;
+            let unit = 2f64.powi(bits as i32);
+            let (offsets, multipliers, shift) =
+                normalised_quantiser_parts(&mean, &deviation, q.scale, unit)?;
+            norm_offsets = offsets;
+            norm_multipliers = multipliers;
+            fixed.norm_shift = shift;
+        }
         Ok(GeneratedStageTables {
             dct,
             mean,
             deviation,
+            norm_offsets,
+            norm_multipliers,
             fixed,
         })
     }
@@ -231,6 +248,8 @@ impl GeneratedStageTables {
             lifter_q11: dct.and_then(|d| d.lifter_q11.as_deref()).unwrap_or(&[]),
             mean: &self.mean,
             deviation: &self.deviation,
+            norm_offsets: &self.norm_offsets,
+            norm_multipliers: &self.norm_multipliers,
             fixed: self.fixed,
         }
     }
@@ -238,8 +257,66 @@ impl GeneratedStageTables {
     /// Bytes these tables take in flash (f32 and Q15 forms both).
     pub fn flash_bytes(&self) -> usize {
         let v = self.view();
-        4 * (v.dct_f32.len() + v.lifter_f32.len() + v.mean.len() + v.deviation.len())
+        4 * (v.dct_f32.len()
+            + v.lifter_f32.len()
+            + v.mean.len()
+            + v.deviation.len()
+            + v.norm_offsets.len()
+            + v.norm_multipliers.len())
             + 2 * (v.dct_q15.len() + v.lifter_q11.len())
             + 4 * stapes_core::stage_tables::FIXED_STAGE_WORDS
     }
+}
+
+/// The fixed normalising quantiser's parts for values in units of `1/unit`
+/// (256 for log and MFCC values, 65536 for PCEN's): per value the offset
+/// `round(μ·unit)` and a multiplier `M` with `M / 2^k` the nearest to
+/// `1 / (σ·S·unit)`, for the largest shared `k ≤ 62` that keeps every `M`
+/// below 2^31 (the largest multiplier keeps a relative error under 2^-30,
+/// the others under `2^-30 · max M / M`).
+pub fn normalised_quantiser_parts(
+    mean: &[f32],
+    deviation: &[f32],
+    scale: f32,
+    unit: f64,
+) -> Result<(Vec<i32>, Vec<i32>, u32)> {
+    let ratios: Vec<f64> = deviation
+        .iter()
+        .map(|&d| 1.0 / (d as f64 * scale as f64 * unit))
+        .collect();
+    let largest = ratios.iter().copied().fold(0.0f64, f64::max);
+    let smallest = ratios.iter().copied().fold(f64::INFINITY, f64::min);
+    let Some(k) = (0..=62u32)
+        .rev()
+        .find(|&k| (largest * 2f64.powi(k as i32)).round() < 2_147_483_648.0)
+    else {
+        bail!(
+            "normalisation and scale {scale} are beyond the fixed path's reach: a deviation times the scale is too small"
+        );
+    };
+    // A saturated difference (2^31) must still clamp: M / 2^k ≥ 2^-23.
+    if smallest * 2f64.powi(23) < 1.0 || (smallest * 2f64.powi(k as i32)).round() < 1.0 {
+        bail!(
+            "a normalisation deviation times the scale {scale} is too large for the fixed \
+             path (every code would be the zero point): check the statistics' units"
+        );
+    }
+    let offsets = mean
+        .iter()
+        .map(|&m| {
+            let v = (m as f64 * unit).round();
+            if v.abs() < 2_147_483_647.0 {
+                Ok(v as i32)
+            } else {
+                Err(anyhow::anyhow!(
+                    "normalisation mean {m} is beyond the fixed path's range: check the statistics' units"
+                ))
+            }
+        })
+        .collect::<Result<Vec<i32>>>()?;
+    let multipliers = ratios
+        .iter()
+        .map(|r| (r * 2f64.powi(k as i32)).round() as i32)
+        .collect();
+    Ok((offsets, multipliers, k))
 }

@@ -269,6 +269,15 @@ fn fixed_quantise<In: stapes_core::quantise::RawUnits, T>(
 where
     T: stapes_core::quantise::Code + Into<i32>,
 {
+    if config.stages.normalise {
+        let mut stage = stages
+            .fixed_normalised_quantiser::<T, HOST_VALUES>(config)
+            .ok_or_else(|| {
+                anyhow!("the stage tables hold no fixed normalising quantiser: regenerate them")
+            })?;
+        let codes = apply(&mut stage, frames);
+        return Ok((to_i32(&codes), stage.clamped()));
+    }
     let q = stages
         .fixed_quantiser(config)
         .ok_or_else(|| anyhow!("the stage tables hold no fixed quantiser: regenerate them"))?;
@@ -286,10 +295,10 @@ pub fn run_fixed_stages(
     energies: &[Vec<i32>],
 ) -> Result<StageRun> {
     let st = &config.stages;
-    if st.normalise {
+    if st.normalise && st.quantise.is_none() {
         bail!(
-            "the fixed-point arithmetics do not normalise yet: use --arith f32 for a configuration \
-             with [stages.normalise]"
+            "the fixed-point arithmetics normalise only folded into the quantiser: add \
+             [stages.quantise] (the model's int8 or uint8 input), or use --arith f32"
         );
     }
     let mut run = StageRun::default();

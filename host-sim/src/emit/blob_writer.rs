@@ -69,13 +69,18 @@ pub fn sections(tables: &GeneratedTables, contents: BlobContents) -> Vec<(Sectio
             tables.config.stages.to_bytes().to_vec(),
         ));
         let v = tables.stages.view();
-        let optional: [(SectionKind, Vec<u8>); 6] = [
+        let optional: [(SectionKind, Vec<u8>); 8] = [
             (SectionKind::DctF32, bytes_of(v.dct_f32)),
             (SectionKind::DctQ15, bytes_of(v.dct_q15)),
             (SectionKind::LifterF32, bytes_of(v.lifter_f32)),
             (SectionKind::LifterQ11, bytes_of(v.lifter_q11)),
             (SectionKind::NormaliseMean, bytes_of(v.mean)),
             (SectionKind::NormaliseDeviation, bytes_of(v.deviation)),
+            (SectionKind::NormaliseOffsets, bytes_of(v.norm_offsets)),
+            (
+                SectionKind::NormaliseMultipliers,
+                bytes_of(v.norm_multipliers),
+            ),
         ];
         out.extend(optional.into_iter().filter(|(_, b)| !b.is_empty()));
         if v.fixed != stapes_core::stage_tables::FixedStageParams::NONE {

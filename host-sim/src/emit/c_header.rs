@@ -255,6 +255,21 @@ pub fn c_header(tables: &GeneratedTables, prefix: &str, command: &str) -> String
                 );
             }
         }
+        for (name, items) in [
+            ("normalise_offsets", v.norm_offsets),
+            ("normalise_multipliers", v.norm_multipliers),
+        ] {
+            if !items.is_empty() {
+                array(
+                    &mut s,
+                    "int32_t",
+                    &format!("{prefix}_{name}"),
+                    items,
+                    8,
+                    |v| v.to_string(),
+                );
+            }
+        }
         for (name, items) in [("dct_q15", v.dct_q15), ("lifter_q11", v.lifter_q11)] {
             if !items.is_empty() {
                 array(
@@ -269,7 +284,7 @@ pub fn c_header(tables: &GeneratedTables, prefix: &str, command: &str) -> String
         }
         let _ = writeln!(
             s,
-            "/* Fixed-path stage constants: PCEN alpha Q16, root Q16, smoothing Q31, epsilon, delta, delta^root (mantissa, exponent: m * 2^(e - 31)), quantiser multiplier, shift, input fraction bits, range floor in 1/256 output units, 1 reserved. */"
+            "/* Fixed-path stage constants: PCEN alpha Q16, root Q16, smoothing Q31, epsilon, delta, delta^root (mantissa, exponent: m * 2^(e - 31)), quantiser multiplier, shift, input fraction bits, range floor in 1/256 output units, the normalising quantiser's shared shift. */"
         );
         array(
             &mut s,

@@ -126,6 +126,14 @@ fn stage_tables(s: &mut String, tables: &GeneratedTables) {
             array(s, name, "i16", items, 12, |v| v.to_string());
         }
     }
+    for (name, items) in [
+        ("NORMALISE_OFFSETS", v.norm_offsets),
+        ("NORMALISE_MULTIPLIERS", v.norm_multipliers),
+    ] {
+        if !items.is_empty() {
+            array(s, name, "i32", items, 8, |v| v.to_string());
+        }
+    }
     let f = &v.fixed;
     let p = &f.pcen;
     let _ = writeln!(s);
@@ -157,6 +165,16 @@ fn stage_tables(s: &mut String, tables: &GeneratedTables) {
     );
     let _ = writeln!(
         s,
+        "    norm_offsets: {},",
+        slice("NORMALISE_OFFSETS", v.norm_offsets.len())
+    );
+    let _ = writeln!(
+        s,
+        "    norm_multipliers: {},",
+        slice("NORMALISE_MULTIPLIERS", v.norm_multipliers.len())
+    );
+    let _ = writeln!(
+        s,
         "    fixed: stapes_core::stage_tables::FixedStageParams {{"
     );
     let _ = writeln!(
@@ -177,6 +195,7 @@ fn stage_tables(s: &mut String, tables: &GeneratedTables) {
         f.quantise_fraction_bits
     );
     let _ = writeln!(s, "        range_floor_q8: {},", f.range_floor_q8);
+    let _ = writeln!(s, "        norm_shift: {},", f.norm_shift);
     let _ = writeln!(s, "    }},");
     let _ = writeln!(s, "}};");
 }
