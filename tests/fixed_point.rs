@@ -110,7 +110,18 @@ fn integer_fft_snr_against_rustfft() {
                 println!(
                     "N = {n}, level {level}: fixed16 SNR {s16:.1} dB, fixed32 SNR {s32:.1} dB"
                 );
-                assert!(s16 >= 66.0, "N = {n}: fixed16 SNR {s16:.1} dB");
+                // Rounding noise adds once per pass that rounds: the radix-4
+                // passes, a lone radix-2 first level when log2(N/2) is odd,
+                // and the real split. 66 dB was stated for N ≤ 512 (five
+                // rounding passes each); N = 1024 has six, so its noise power
+                // is 6/5 of theirs: 66 − 10·log10(6/5) = 65.2 dB.
+                let half_levels = (n / 2).trailing_zeros() as usize;
+                let rounding_passes = half_levels / 2 + half_levels % 2 + 1;
+                let floor16 = 66.0 - 10.0 * (rounding_passes.max(5) as f64 / 5.0).log10();
+                assert!(
+                    s16 >= floor16,
+                    "N = {n}: fixed16 SNR {s16:.1} dB (at least {floor16:.1} dB)"
+                );
                 assert!(s32 >= 140.0, "N = {n}: fixed32 SNR {s32:.1} dB");
             }
         }

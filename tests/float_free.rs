@@ -45,7 +45,11 @@ fn build_for_cortex_m0(feature: &str) -> Vec<String> {
             "--no-default-features",
             "--features",
         ])
-        .arg(format!("{feature},preset-speech16k-40"))
+        .arg(if feature.contains("preset-") {
+            feature.to_string()
+        } else {
+            format!("{feature},preset-speech16k-40")
+        })
         .status()
         .expect("run cargo for the firmware example");
     assert!(
@@ -73,13 +77,16 @@ fn the_fixed_paths_link_no_soft_float_helper_and_the_scan_can_see_them() {
         found.iter().any(|s| s.starts_with("__aeabi_f")),
         "the scan found no float helper in the f32 build: {found:?}"
     );
-    // The model-input builds too: log, the integer int8 quantiser and the
-    // frame window, on Cortex-M0 without a float.
+    // The model-input builds too, every kws16k chain (log and int8; range
+    // floor and MFCC; PCEN) with the frame window, on Cortex-M0 without a float.
     for feature in [
         "fixed16",
         "fixed32",
-        "fixed16,model-input",
-        "fixed32,model-input",
+        "fixed16,model-input,preset-kws16k-mel40",
+        "fixed32,model-input,preset-kws16k-mel40",
+        "fixed16,model-input,preset-kws16k-mfcc10",
+        "fixed16,model-input,preset-kws16k-pcen40",
+        "fixed32,model-input,preset-kws16k-pcen40",
     ] {
         let syms = build_for_cortex_m0(feature);
         assert!(

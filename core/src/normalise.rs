@@ -220,8 +220,8 @@ impl<T: Code, const C: usize> crate::stage::FrameStage<f32> for NormalisedQuanti
 /// // Value 0: mean 1.0 (256 raw), σ·S = 0.5 → M/2^k = 1/128; value 1: mean 0, σ·S = 1.
 /// let (offsets, multipliers) = ([256, 0], [1 << 23, 1 << 22]);
 /// let mut q = FixedNormalisedQuantise::<i8, 2>::new(&offsets, &multipliers, 30, 0, CodeRange::Int8).unwrap();
-/// let codes = q.process(&mut [I8F8::from_num(2.25), I8F8::from_num(-1.5)]);
-/// assert_eq!(codes, &[3, -2]); // (2.25 − 1)/0.5 = 2.5 → 3; −1.5 → −2 (ties away from zero)
+/// let mut levels = [I8F8::from_num(2.25), I8F8::from_num(-1.5)];
+/// assert_eq!(q.process(&mut levels), &[3, -2]); // (2.25 − 1)/0.5 = 2.5 → 3; −1.5 → −2 (ties away from zero)
 /// ```
 #[derive(Clone, Debug)]
 pub struct FixedNormalisedQuantise<'t, T, const C: usize> {
