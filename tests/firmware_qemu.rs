@@ -459,6 +459,31 @@ fn model_input_builds(qemu: &Path, clip_path: &Path, samples: &[i16]) {
             );
             assert!(!run.windows.is_empty());
             let per = |ticks: u64| ticks * run.per_kilotick / 1000 / run.frames_reported.max(1);
+            // `stapes budget`'s prediction with the stages, within 10 %.
+            let core = if board.target.starts_with("thumbv6m") {
+                stapes_sim::budget::Core::CortexM0
+            } else {
+                stapes_sim::budget::Core::CortexM4F
+            };
+            let b = stapes_sim::budget::predict(&config, arith, core, form).unwrap();
+            let i = stapes_sim::budget::predict_instructions(&config, arith, core, form).unwrap();
+            let sb = stapes_sim::budget::predict_stages(&config, arith, core).unwrap();
+            let instructions = i.total() + sb.instructions
+                - if config.stages.pcen.is_some() {
+                    i.log
+                } else {
+                    0.0
+                };
+            let ram = (b.ram_total() + sb.state) as f64;
+            let measured_ram = (run.state + run.stack) as f64;
+            let measured = per(run.ticks[6].1) as f64;
+            let off = |p: f64, m: f64| (p - m).abs() / m;
+            assert!(
+                off(instructions, measured) <= 0.10 && off(ram, measured_ram) <= 0.10,
+                "budget with stages off by more than 10 %: {preset} {} {}: instructions predicted {instructions:.0} measured {measured:.0}, RAM predicted {ram:.0} measured {measured_ram:.0}",
+                arith.name(),
+                board.machine
+            );
             println!(
                 "| {preset} | {} | {} | {} ({} + {}) | {} / {} / {} | {} | identical ({} frames, {} windows) |",
                 arith.name(),

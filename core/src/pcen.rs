@@ -13,8 +13,9 @@
 //! * output: `P[t] = (E[t] / (ε + M[t])^α + δ)^r − δ^r`.
 //!
 //! Defaults α = 0.98, δ = 2, r = 0.5, ε = 1e-6 and T = 0.4 s (s ≈ 0.025 at a
-//! 10 ms hop) are the paper's values **from memory of its text**, not
-//! checked against it here. ε and δ act on the energies' absolute scale:
+//! 10 ms hop) are the paper's values **from memory of its text**: the copies
+//! of the paper the project could reach give its abstract only, so they are
+//! not checked against it (set them in `[stages.pcen]` if yours differ). ε and δ act on the energies' absolute scale:
 //! these are the energies of full-scale-normalised samples with no `1/N`
 //! (see the crate's conventions), so a model trained on another scaling
 //! needs its ε and δ rescaled.

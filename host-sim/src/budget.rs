@@ -359,7 +359,35 @@ pub fn report(
             i.mel,
             i.log
         );
-        let (lo, hi) = hop_share(i.total(), config, clock_mhz);
+        let stages = predict_stages(config, arith, core);
+        if let Some(sb) = stages {
+            let _ = writeln!(
+                s,
+                "  stages after the log: tables {} B, state {} B (the model's window included), {:.0} instructions per frame on top of the log (PCEN replaces it); frame total {:.0}",
+                sb.tables,
+                sb.state,
+                sb.instructions,
+                i.total() + sb.instructions
+                    - if config.stages.pcen.is_some() {
+                        i.log
+                    } else {
+                        0.0
+                    }
+            );
+            let _ = writeln!(
+                s,
+                "  with the stages: flash {} B, RAM {} B",
+                b.flash_total() + sb.tables,
+                b.ram_total() + sb.state
+            );
+        }
+        let total = i.total() + stages.map_or(0.0, |sb| sb.instructions)
+            - if stages.is_some() && config.stages.pcen.is_some() {
+                i.log
+            } else {
+                0.0
+            };
+        let (lo, hi) = hop_share(total, config, clock_mhz);
         let hop_ms = 1e3 * config.hop_samples as f64 / config.sample_rate_hz as f64;
         let _ = writeln!(
             s,
@@ -371,4 +399,90 @@ pub fn report(
         );
     }
     Ok(s)
+}
+
+/// The stages after the log of a configuration: flash of their tables, RAM
+/// of their state (outputs, carried state and the model's window) and
+/// instructions per frame on top of the log.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct StageBudget {
+    /// Tables the arithmetic's stages read.
+    pub tables: usize,
+    /// Stage state, including the model's window (written twice).
+    pub state: usize,
+    /// Instructions per frame for the stages after the log (the log itself
+    /// is [`StageInstructions::log`]), and the window's push.
+    pub instructions: f64,
+}
+
+/// Instructions per unit of the stages after the log, for (core, arithmetic):
+/// per quantised value, per MFCC multiply-add (the range floor's per-band
+/// work folded in), per PCEN band (in place of the log), and the model
+/// window's push (fixed plus per value). The fixed precisions share the
+/// stages' code. Fitted to the firmware's `model-input` builds of the three
+/// kws16k presets (`bash tests/firmware-figures.sh`; the firmware test keeps
+/// them within 10 %).
+fn stage_costs(core: Core, arith: Arith) -> Option<[f64; 5]> {
+    match (core, arith) {
+        (Core::CortexM4F, Arith::F32) => Some([48.8, 5.85, 340.6, 134.0, 1.43]),
+        (Core::CortexM4F, _) => Some([74.6, 5.8, 343.8, 0.0, 0.0]),
+        (Core::CortexM0, Arith::F32) => None,
+        (Core::CortexM0, _) => Some([149.0, 53.0, 1059.0, 0.0, 0.0]),
+    }
+}
+
+/// Predicts the stages after the log for `config`; `None` without stages or
+/// for the f32 path on a core without an FPU.
+pub fn predict_stages(config: &FeatureConfig, arith: Arith, core: Core) -> Option<StageBudget> {
+    let st = &config.stages;
+    if !st.any() {
+        return None;
+    }
+    let [quantise, mac, pcen, push, push_per] = stage_costs(core, arith)?;
+    let b = config.bands as usize;
+    let c = config.stage_values();
+    let stages = crate::model_input::GeneratedStageTables::new(config, None).ok();
+    let v = stages.as_ref().map(|s| s.view());
+    let fixed = arith != Arith::F32;
+    let tables = v.map_or(0, |v| {
+        if fixed {
+            2 * (v.dct_q15.len() + v.lifter_q11.len())
+                + 4 * (v.norm_offsets.len() + v.norm_multipliers.len())
+                + 4 * stapes_core::stage_tables::FIXED_STAGE_WORDS
+        } else {
+            4 * (v.dct_f32.len() + v.lifter_f32.len() + v.mean.len() + v.deviation.len())
+        }
+    });
+    let mut state = 0;
+    let mut instructions = 0.0;
+    if st.pcen.is_some() {
+        // The smoother per band (f32, or a 32-bit mantissa and exponent),
+        // and the fixed stage's own outputs; its work replaces the log's.
+        state += if fixed { 12 * b } else { 4 * b } + 8;
+        instructions += pcen * b as f64;
+    }
+    if st.range_floor.is_some() {
+        state += 4;
+    }
+    if st.mfcc.is_some() {
+        state += 4 * c + 16;
+        instructions += mac * (b * c) as f64;
+    }
+    if st.normalise && !fixed && st.quantise.is_some() {
+        // One affine quantiser per value.
+        state += 12 * c;
+    }
+    if st.quantise.is_some() {
+        state += c + 24;
+        instructions += quantise * c as f64;
+    }
+    if let Some(w) = st.model_window {
+        state += 2 * w.frames as usize * c * if st.quantise.is_some() { 1 } else { 4 } + 24;
+        instructions += push + push_per * c as f64;
+    }
+    Some(StageBudget {
+        tables,
+        state,
+        instructions,
+    })
 }
