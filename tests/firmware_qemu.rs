@@ -385,7 +385,7 @@ fn model_input_builds(qemu: &Path, clip_path: &Path, samples: &[i16]) {
     use stapes_sim::run::Samples;
     let form = FilterbankForm::Sparse;
     println!(
-        "| model input (int8, 49-frame window) | arith | core | RAM B (state + stack) | instructions per frame: filterbank / stages after it / window push | total | frames and windows vs host |"
+        "| model input (int8, 49-frame window) | arith | core | RAM B (state + stack) | instructions per frame: filterbank / stages after it / sample intake and window push | total | frames and windows vs host |"
     );
     println!("|---|---|---|---|---|---|---|");
     for preset in ["kws16k-mel40", "kws16k-mfcc10", "kws16k-pcen40"] {

@@ -211,11 +211,13 @@ impl<const K: usize> crate::stage::FrameStage<I8F8> for FixedMfcc<'_, K> {
             .zip(t.matrix.chunks_exact(t.bands))
             .enumerate()
         {
-            // |Σ| ≤ B·2^15·2^15 < 2^40: exact in i64.
+            // Each product of two 16-bit values fits i32 exactly (one 32-bit
+            // multiply, also on cores without a long multiply); |Σ| ≤
+            // B·2^15·2^15 < 2^40: summed exactly in i64.
             let acc: i64 = row
                 .iter()
                 .zip(x)
-                .map(|(&w, &v)| w as i64 * v.to_bits() as i64)
+                .map(|(&w, &v)| (w as i32 * v.to_bits() as i32) as i64)
                 .sum();
             let mut units = (acc + (1 << 14)) >> 15;
             if let Some(lifter) = t.lifter {

@@ -427,7 +427,7 @@ fn stage_costs(core: Core, arith: Arith) -> Option<[f64; 5]> {
         (Core::CortexM4F, Arith::F32) => Some([48.8, 5.85, 340.6, 134.0, 1.43]),
         (Core::CortexM4F, _) => Some([74.6, 5.8, 343.8, 0.0, 0.0]),
         (Core::CortexM0, Arith::F32) => None,
-        (Core::CortexM0, _) => Some([149.0, 53.0, 1059.0, 0.0, 0.0]),
+        (Core::CortexM0, _) => Some([149.0, 10.0, 1059.0, 0.0, 0.0]),
     }
 }
 

@@ -7,7 +7,9 @@ use stapes_core::fixed_path::{FixedFrontEnd, FrameData, TwiddlesFor};
 use stapes_core::fixed_tables::FixedTables;
 use stapes_core::float_path::FloatFrontEnd;
 use stapes_core::sample::Sample;
+use stapes_core::stage::FrameStage;
 use stapes_core::table::TableView;
+use stapes_core::{FixedLog, FloatLog};
 
 /// Host capacities: the largest configuration the validator accepts.
 pub type HostFloatFrontEnd<'t> = FloatFrontEnd<'t, 4096, 4096, 256>;
@@ -67,11 +69,11 @@ pub fn frame_count(config: &FeatureConfig, samples: usize) -> usize {
     }
 }
 
-fn drive<S: Sample>(
-    fe: &mut HostFloatFrontEnd<'_>,
-    samples: &[S],
+fn drive<X: Sample, S: FrameStage<f32>>(
+    fe: &mut FloatFrontEnd<'_, 4096, 4096, 256, S>,
+    samples: &[X],
     chunk: usize,
-    out: &mut Vec<Vec<f32>>,
+    out: &mut Vec<Vec<S::Out>>,
 ) {
     for piece in samples.chunks(chunk.max(1)) {
         let mut rest = piece;
@@ -88,7 +90,21 @@ pub fn run_float(
     samples: &Samples,
     chunk: usize,
 ) -> Result<Vec<Vec<f32>>> {
-    let mut fe = Box::new(HostFloatFrontEnd::new(*config, table).map_err(|e| anyhow!("{e}"))?);
+    run_float_with(config, table, FloatLog::for_config(config), samples, chunk)
+}
+
+/// [`run_float`] with `stages` after the filterbank instead of the log.
+pub fn run_float_with<S: FrameStage<f32>>(
+    config: &FeatureConfig,
+    table: TableView<'_, f32>,
+    stages: S,
+    samples: &Samples,
+    chunk: usize,
+) -> Result<Vec<Vec<S::Out>>> {
+    let mut fe = Box::new(
+        FloatFrontEnd::<4096, 4096, 256, S>::with_stages(*config, table, stages)
+            .map_err(|e| anyhow!("{e}"))?,
+    );
     let mut out = Vec::with_capacity(frame_count(config, samples.len()));
     match samples {
         Samples::I16(v) => drive(&mut fe, v, chunk, &mut out),
@@ -109,8 +125,25 @@ where
     P: TwiddlesFor,
     P::Data: FrameData,
 {
+    let log = FixedLog::<256>::for_tables(&tables);
+    run_fixed_with::<P, _>(config, tables, log, samples, chunk)
+}
+
+/// [`run_fixed`] with `stages` after the filterbank instead of the log.
+pub fn run_fixed_with<P, S: FrameStage<i32>>(
+    config: &FeatureConfig,
+    tables: FixedTables<'_>,
+    stages: S,
+    samples: &[i16],
+    chunk: usize,
+) -> Result<Vec<Vec<S::Out>>>
+where
+    P: TwiddlesFor,
+    P::Data: FrameData,
+{
     let mut fe = Box::new(
-        FixedFrontEnd::<P, 4096, 4096, 256>::new(*config, tables).map_err(|e| anyhow!("{e}"))?,
+        FixedFrontEnd::<P, 4096, 4096, 256, S>::with_stages(*config, tables, stages)
+            .map_err(|e| anyhow!("{e}"))?,
     );
     let mut out = Vec::with_capacity(frame_count(config, samples.len()));
     for piece in samples.chunks(chunk.max(1)) {

@@ -9,7 +9,7 @@
 use anyhow::{Result, anyhow, bail};
 use stapes_core::config::{FeatureConfig, LogKind};
 use stapes_core::fixed::types::I8F8;
-use stapes_core::fixed_path::{FixedFrontEnd, FrameData, TwiddlesFor};
+use stapes_core::fixed_path::{FrameData, TwiddlesFor};
 use stapes_core::fixed_tables::FixedTables;
 use stapes_core::int_fft::Precision;
 use stapes_core::quantise::{AffineQuantiser, CodeRange, FixedQuantiseStage};
@@ -17,11 +17,11 @@ use stapes_core::stage::{FrameStage, Unchanged};
 use stapes_core::stage_tables::StageTables;
 use stapes_core::table::TableView;
 use stapes_core::{
-    FixedLog, FixedMfcc, FixedPcen, FloatFrontEnd, FloatLog, FloatMfcc, FloatPcen, Normalise,
-    NormalisedQuantise, QuantiseStage, RangeFloor,
+    FixedLog, FixedMfcc, FixedPcen, FloatLog, FloatMfcc, FloatPcen, Normalise, NormalisedQuantise,
+    QuantiseStage, RangeFloor,
 };
 
-use crate::run::{Samples, frame_count};
+use crate::run::Samples;
 
 /// Largest stage output the host handles (the validator's band limit).
 pub const HOST_VALUES: usize = 256;
@@ -125,29 +125,7 @@ pub fn float_energies(
     samples: &Samples,
     chunk: usize,
 ) -> Result<Vec<Vec<f32>>> {
-    let mut fe = Box::new(
-        FloatFrontEnd::<4096, 4096, HOST_VALUES, _>::with_stages(*config, table, Unchanged)
-            .map_err(|e| anyhow!("{e}"))?,
-    );
-    let mut out = Vec::with_capacity(frame_count(config, samples.len()));
-    fn drive<X: stapes_core::sample::Sample, S: FrameStage<f32, Out = f32>>(
-        fe: &mut FloatFrontEnd<'_, 4096, 4096, HOST_VALUES, S>,
-        x: &[X],
-        chunk: usize,
-        out: &mut Vec<Vec<f32>>,
-    ) {
-        for piece in x.chunks(chunk.max(1)) {
-            let mut rest = piece;
-            while let Some(frame) = fe.next_frame(&mut rest) {
-                out.push(frame.bands.to_vec());
-            }
-        }
-    }
-    match samples {
-        Samples::I16(v) => drive(&mut fe, v, chunk, &mut out),
-        Samples::F32(v) => drive(&mut fe, v, chunk, &mut out),
-    }
-    Ok(out)
+    crate::run::run_float_with(config, table, Unchanged, samples, chunk)
 }
 
 /// The fixed core's energy words (`int_log::energy_word`) over `samples`.
@@ -161,18 +139,7 @@ where
     P: Precision + TwiddlesFor,
     P::Data: FrameData,
 {
-    let mut fe = Box::new(
-        FixedFrontEnd::<P, 4096, 4096, HOST_VALUES, _>::with_stages(*config, tables, Unchanged)
-            .map_err(|e| anyhow!("{e}"))?,
-    );
-    let mut out = Vec::with_capacity(frame_count(config, samples.len()));
-    for piece in samples.chunks(chunk.max(1)) {
-        let mut rest = piece;
-        while let Some(frame) = fe.next_frame(&mut rest) {
-            out.push(frame.bands.to_vec());
-        }
-    }
-    Ok(out)
+    crate::run::run_fixed_with::<P, _>(config, tables, Unchanged, samples, chunk)
 }
 
 fn quantise_f32<T: stapes_core::quantise::Code + Into<i32>>(
