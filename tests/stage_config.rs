@@ -23,6 +23,7 @@ fn every_stage() -> StageConfig {
         mfcc: Some(MfccConfig {
             coefficients: 13,
             lifter: Some(22),
+            log_energy: false,
         }),
         normalise: true,
         quantise: Some(QuantiseConfig {
@@ -87,6 +88,7 @@ fn impossible_stage_configurations_are_refused_with_the_field() {
                 mfcc: Some(MfccConfig {
                     coefficients: 41,
                     lifter: None,
+                    log_energy: false,
                 }),
                 ..StageConfig::NONE
             },
@@ -98,6 +100,7 @@ fn impossible_stage_configurations_are_refused_with_the_field() {
                 mfcc: Some(MfccConfig {
                     coefficients: 10,
                     lifter: None,
+                    log_energy: false,
                 }),
                 ..StageConfig::NONE
             },
@@ -437,4 +440,99 @@ fn statistics_from_clips_feed_a_normalising_configuration() {
             "{arith}"
         );
     }
+}
+
+/// The log-energy in place of c0 is the windowed frame's energy `Σ (x·w)²`
+/// by Parseval's theorem (common practice) for a signal with nothing below
+/// the filterbank: the f32 and fixed cores' c0 against that sum, computed
+/// here in the time domain from the samples and the periodic Hann window
+/// `0.5 − 0.5·cos(2πn/L)`.
+#[test]
+fn log_energy_in_place_of_c0_is_the_frames_energy() {
+    use stapes_core::config::LogKind;
+    let mut c = stapes_core::presets::KWS16K_MFCC10;
+    c.stages.mfcc = Some(MfccConfig {
+        coefficients: 10,
+        lifter: None,
+        log_energy: true,
+    });
+    c.stages.quantise = None;
+    c.stages.model_window = None;
+    c.validate().unwrap();
+    assert_eq!(c.stage_inputs(), 41);
+    assert_eq!(c.log, LogKind::Decibel);
+    let x: Vec<i16> = (0..8000)
+        .map(|i| {
+            let t = i as f64 / 16_000.0;
+            (6000.0 * (2.0 * std::f64::consts::PI * 1000.0 * t).sin()
+                + 2000.0 * (2.0 * std::f64::consts::PI * 3100.0 * t).sin())
+            .round() as i16
+        })
+        .collect();
+    let (w, hop) = (c.window_samples as usize, c.hop_samples as usize);
+    let want: Vec<f64> = (0..=(x.len() - w) / hop)
+        .map(|f| {
+            let e: f64 = (0..w)
+                .map(|n| {
+                    let win = 0.5 - 0.5 * (2.0 * std::f64::consts::PI * n as f64 / w as f64).cos();
+                    let v = x[f * hop + n] as f64 / 32768.0 * win;
+                    v * v
+                })
+                .sum();
+            10.0 * e.log10()
+        })
+        .collect();
+    let t = GeneratedTables::new(&c);
+    for arith in stapes_sim::check::Arith::ALL {
+        let core = match arith {
+            stapes_sim::check::Arith::F32 => stapes_sim::check::CoreTables::Float(
+                t.view_f32(stapes_core::FilterbankForm::Sparse),
+            ),
+            _ => stapes_sim::check::CoreTables::Fixed(
+                t.fixed_tables(stapes_core::FilterbankForm::Sparse).unwrap(),
+            ),
+        };
+        let run = stapes_sim::stage_check::run_arith(
+            arith,
+            &c,
+            core,
+            &t.stages.view(),
+            &stapes_sim::run::Samples::I16(x.clone()),
+            0,
+        )
+        .unwrap();
+        let c0: Vec<f64> = run
+            .stage("mfcc")
+            .unwrap()
+            .values
+            .iter()
+            .map(|f| f[0])
+            .collect();
+        assert_eq!(c0.len(), want.len());
+        let worst = c0
+            .iter()
+            .zip(&want)
+            .map(|(a, b)| (a - b).abs())
+            .fold(0.0, f64::max);
+        // The level tolerance of each arithmetic at 60 dB of range.
+        let tolerance = match arith {
+            stapes_sim::check::Arith::F32 => 0.01,
+            stapes_sim::check::Arith::Fixed32 => 0.05,
+            stapes_sim::check::Arith::Fixed16 => 1.0,
+        };
+        println!(
+            "{}: c0 against Σ(x·w)² in dB: worst {worst:.2e}",
+            arith.name()
+        );
+        assert!(worst <= tolerance, "{}: {worst}", arith.name());
+    }
+    // Log-energy needs a power spectrum.
+    let mut m = c;
+    m.spectrum = stapes_core::config::SpectrumKind::Magnitude;
+    assert_eq!(m.validate().unwrap_err().field(), "stages.mfcc.log_energy");
+    // Its flag travels in the stage bytes.
+    assert_eq!(
+        StageConfig::from_bytes(&c.stages.to_bytes()),
+        Some(c.stages)
+    );
 }

@@ -569,6 +569,22 @@ impl FeatureConfig {
             )?;
         }
         if let Some(m) = s.mfcc {
+            if m.log_energy {
+                if self.spectrum != SpectrumKind::Power {
+                    return Err(ConfigError::StageConflict {
+                        field: "stages.mfcc.log_energy",
+                        with: "spectrum",
+                        fix: "the frame's energy is summed from a power spectrum: use spectrum = power, or drop log_energy",
+                    });
+                }
+                check_int(
+                    "bands",
+                    self.bands,
+                    1,
+                    MAX_BANDS as u32 - 1,
+                    "the log-energy takes one more slot than the bands: use fewer bands",
+                )?;
+            }
             check_int(
                 "stages.mfcc.coefficients",
                 m.coefficients,
@@ -625,6 +641,15 @@ impl FeatureConfig {
             )?;
         }
         Ok(())
+    }
+
+    /// Values the filterbank hands the stages: one per band, and the frame's
+    /// energy last when the MFCC takes the log-energy in place of c0.
+    pub const fn stage_inputs(&self) -> usize {
+        match self.stages.mfcc {
+            Some(m) if m.log_energy => self.bands as usize + 1,
+            _ => self.bands as usize,
+        }
     }
 
     /// Values per frame after the stages: the MFCC's coefficients, or the

@@ -104,7 +104,7 @@ pub(crate) fn check_shape(
     let needs = [
         ("FFT", config.fft_points as usize, fft_capacity),
         ("overlap", config.overlap_samples(), overlap_capacity),
-        ("band", config.bands as usize, band_capacity),
+        ("band", config.stage_inputs(), band_capacity),
     ];
     for (buffer, needed, capacity) in needs {
         if needed > capacity {

@@ -1319,7 +1319,7 @@ where
         self.next_index += 1;
         let bands = self
             .stages
-            .process(&mut self.energies[..self.config.bands as usize]);
+            .process(&mut self.energies[..self.config.stage_inputs()]);
         probe.mark(Stage::Log);
         Some(Frame { index, bands })
     }
@@ -1458,7 +1458,7 @@ where
 
         if silent {
             // Digital silence: no band has energy (its log is the floor).
-            self.energies[..bands].fill(EMPTY_ENERGY);
+            self.energies[..self.config.stage_inputs()].fill(EMPTY_ENERGY);
             <P::Data as FrameData>::restore_shared(&mut self.framer);
             for stage in [Stage::Window, Stage::Fft, Stage::Spectrum, Stage::Mel] {
                 probe.mark(stage);
@@ -1682,6 +1682,25 @@ where
                 segment_starts,
                 weights,
             } => compact_energies::<P::Data>(segment_starts, weights, buf, last, bands, emit),
+        }
+        if self.config.stage_inputs() > bands {
+            // The frame's energy (Parseval): Σ c_k·bin_k / N from the lowest
+            // band's first bin, c_k = 2 but at 0 and N/2, summed exactly in
+            // u128 and brought below 2^64 (the weights' Q15 does not apply).
+            let half = n / 2;
+            let from = self.tables.table.filterbank.first_bin().min(half);
+            let mut sum = 0u128;
+            for k in from..half {
+                let v = <P::Data as FrameData>::load_bin(&buf[2 * k..2 * k + 2]) as u128;
+                sum += if k == 0 { v } else { 2 * v };
+            }
+            sum += last as u128;
+            let top = 128 - sum.leading_zeros();
+            let s = top.saturating_sub(64);
+            self.energies[bands] = energy_word(
+                (sum >> s) as u64,
+                energy_exponent + 15 + s as i32 - n.trailing_zeros() as i32,
+            );
         }
         <P::Data as FrameData>::restore_shared(&mut self.framer);
         probe.mark(Stage::Mel);

@@ -144,7 +144,7 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize, S: FrameSta
         self.next_index += 1;
         let bands = self
             .stages
-            .process(&mut self.energies[..self.config.bands as usize]);
+            .process(&mut self.energies[..self.config.stage_inputs()]);
         probe.mark(Stage::Log);
         Some(Frame { index, bands })
     }
@@ -174,6 +174,16 @@ impl<'t, const FFT: usize, const OVERLAP: usize, const BANDS: usize, S: FrameSta
             };
             if let Some(gains) = self.table.band_gains {
                 mel::apply_gains_f32(gains, out);
+            }
+            if self.config.stage_inputs() > bands {
+                // The frame's energy (Parseval): Σ c_k·P[k] / N from the
+                // lowest band's first bin, c_k = 2 but at 0 and N/2.
+                let from = self.table.filterbank.first_bin().min(n / 2);
+                let mut sum = 0.0f32;
+                for (k, &p) in spectrum[..=n / 2].iter().enumerate().skip(from) {
+                    sum += if k == 0 || k == n / 2 { p } else { 2.0 * p };
+                }
+                self.energies[bands] = sum / n as f32;
             }
         }
         self.framer.end_frame_unconverted();

@@ -199,6 +199,11 @@ fn fixed_levels(k_log: i32, floor: i16, gains: Option<&[i16]>, words: &[i32], ou
             for ((o, &word), &gain) in out.iter_mut().zip(words).zip(gains) {
                 *o = fixed_level(k_log, floor, word, gain);
             }
+            // A value after the bands (the frame's energy) has no gain.
+            let g = gains.len().min(out.len());
+            for (o, &word) in out[g..].iter_mut().zip(&words[g..]) {
+                *o = fixed_level(k_log, floor, word, 0);
+            }
         }
     }
 }

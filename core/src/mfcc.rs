@@ -134,6 +134,7 @@ impl<T> DctTable<'_, T> {
 #[derive(Clone, Debug)]
 pub struct FloatMfcc<'t, const K: usize> {
     table: DctTable<'t, f32>,
+    log_energy: bool,
     out: [f32; K],
 }
 
@@ -143,8 +144,18 @@ impl<'t, const K: usize> FloatMfcc<'t, K> {
         table.check(K)?;
         Ok(FloatMfcc {
             table,
+            log_energy: false,
             out: [0.0; K],
         })
+    }
+
+    /// With `on`, c0 is replaced by the value after the bands (the frame's
+    /// log-energy, see [`MfccConfig::log_energy`](crate::stage_config::MfccConfig::log_energy)).
+    pub fn with_log_energy(self, on: bool) -> Self {
+        FloatMfcc {
+            log_energy: on,
+            ..self
+        }
     }
 }
 
@@ -168,6 +179,11 @@ impl<const K: usize> crate::stage::FrameStage<f32> for FloatMfcc<'_, K> {
                 *c *= l;
             }
         }
+        if self.log_energy && k > 0 {
+            if let Some(&e) = input.get(t.bands) {
+                self.out[0] = e;
+            }
+        }
         &mut self.out[..k]
     }
 }
@@ -181,6 +197,7 @@ impl<const K: usize> crate::stage::FrameStage<f32> for FloatMfcc<'_, K> {
 #[derive(Clone, Debug)]
 pub struct FixedMfcc<'t, const K: usize> {
     table: DctTable<'t, i16>,
+    log_energy: bool,
     out: [I24F8; K],
 }
 
@@ -190,8 +207,18 @@ impl<'t, const K: usize> FixedMfcc<'t, K> {
         table.check(K)?;
         Ok(FixedMfcc {
             table,
+            log_energy: false,
             out: [I24F8::ZERO; K],
         })
+    }
+
+    /// With `on`, c0 is replaced by the value after the bands (the frame's
+    /// log-energy), in the same 1/256 units.
+    pub fn with_log_energy(self, on: bool) -> Self {
+        FixedMfcc {
+            log_energy: on,
+            ..self
+        }
     }
 }
 
@@ -225,6 +252,11 @@ impl<const K: usize> crate::stage::FrameStage<I8F8> for FixedMfcc<'_, K> {
                 units = (units * l + (1 << (LIFTER_FRACTION_BITS - 1))) >> LIFTER_FRACTION_BITS;
             }
             *c = I24F8::from_bits(units.clamp(i32::MIN as i64, i32::MAX as i64) as i32);
+        }
+        if self.log_energy && k > 0 {
+            if let Some(&e) = input.get(t.bands) {
+                self.out[0] = I24F8::from_bits(e.to_bits() as i32);
+            }
         }
         &mut self.out[..k]
     }

@@ -115,6 +115,7 @@ pub const KWS16K_MFCC10: FeatureConfig = FeatureConfig {
         mfcc: Some(MfccConfig {
             coefficients: 10,
             lifter: None,
+            log_energy: false,
         }),
         quantise: Some(QuantiseConfig {
             scale: 4.0,

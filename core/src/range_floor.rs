@@ -21,12 +21,22 @@ use fixed::types::I8F8;
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct RangeFloor<T> {
     range: T,
+    values: usize,
 }
 
 impl<T> RangeFloor<T> {
     /// A floor `range` below each frame's largest value (in the values' units).
     pub fn new(range: T) -> Self {
-        RangeFloor { range }
+        RangeFloor {
+            range,
+            values: usize::MAX,
+        }
+    }
+
+    /// The floor on the first `values` only (the bands, when the frame's
+    /// log-energy follows them); the rest pass unchanged.
+    pub fn on_first(self, values: usize) -> Self {
+        RangeFloor { values, ..self }
     }
 }
 
@@ -34,7 +44,9 @@ impl crate::stage::FrameStage<f32> for RangeFloor<f32> {
     type Out = f32;
 
     #[inline]
-    fn process<'a>(&'a mut self, input: &'a mut [f32]) -> &'a mut [f32] {
+    fn process<'a>(&'a mut self, all: &'a mut [f32]) -> &'a mut [f32] {
+        let n = all.len().min(self.values);
+        let input = &mut all[..n];
         // Plain comparisons: `f32::max` is a library call on cores without
         // a max instruction.
         let mut top = f32::NEG_INFINITY;
@@ -49,7 +61,7 @@ impl crate::stage::FrameStage<f32> for RangeFloor<f32> {
                 *v = floor;
             }
         }
-        input
+        all
     }
 }
 
@@ -57,7 +69,9 @@ impl crate::stage::FrameStage<I8F8> for RangeFloor<I8F8> {
     type Out = I8F8;
 
     #[inline]
-    fn process<'a>(&'a mut self, input: &'a mut [I8F8]) -> &'a mut [I8F8] {
+    fn process<'a>(&'a mut self, all: &'a mut [I8F8]) -> &'a mut [I8F8] {
+        let n = all.len().min(self.values);
+        let input = &mut all[..n];
         let top = input.iter().copied().max().unwrap_or(I8F8::MIN);
         let floor = top.saturating_sub(self.range);
         for v in input.iter_mut() {
@@ -65,6 +79,6 @@ impl crate::stage::FrameStage<I8F8> for RangeFloor<I8F8> {
                 *v = floor;
             }
         }
-        input
+        all
     }
 }

@@ -19,10 +19,10 @@
 //! use stapes_core::stage_config::{MfccConfig, StageConfig};
 //!
 //! let mut config = SPEECH16K_40;
-//! config.stages.mfcc = Some(MfccConfig { coefficients: 13, lifter: Some(22) });
+//! config.stages.mfcc = Some(MfccConfig { coefficients: 13, lifter: Some(22), log_energy: false });
 //! assert!(config.validate().is_ok());
 //! assert_eq!(config.stage_values(), 13);
-//! config.stages.mfcc = Some(MfccConfig { coefficients: 41, lifter: None });
+//! config.stages.mfcc = Some(MfccConfig { coefficients: 41, lifter: None, log_energy: false });
 //! assert_eq!(config.validate().unwrap_err().field(), "stages.mfcc.coefficients");
 //! ```
 
@@ -38,6 +38,13 @@ pub struct MfccConfig {
     pub coefficients: u32,
     /// Sinusoidal lifter parameter `L` (`1 + (L/2)·sin(πk/L)`), or none.
     pub lifter: Option<u32>,
+    /// The frame's log-energy in place of c0, as ES 201 108 carries the
+    /// frame's energy instead of c0: the log (the configuration's, with its
+    /// floor) of `E = Σ c_k·P[k] / N` over the bins from the lowest any band
+    /// reads to `N/2` (`c_k = 2`, or 1 at bins 0 and `N/2`), which by
+    /// Parseval is the windowed frame's energy `Σ (x·w)²` less what lies
+    /// below the filterbank (a DC offset's). Power spectra only.
+    pub log_energy: bool,
 }
 
 /// The per-frame range floor: every value is raised to at least the frame's
@@ -185,6 +192,7 @@ impl StageConfig {
         // 4 + 12·4 = 52 bytes used; the rest is reserved and stays zero.
         out[0] = flags;
         out[1] = codes;
+        out[2] = self.mfcc.is_some_and(|m| m.log_energy) as u8;
         out
     }
 
@@ -199,7 +207,7 @@ impl StageConfig {
         let (flags, codes) = (b[0], b[1]);
         if flags & 0x80 != 0
             || codes > 1
-            || b[2] != 0
+            || b[2] > 1
             || b[3] != 0
             || b[52..].iter().any(|&x| x != 0)
         {
@@ -223,6 +231,7 @@ impl StageConfig {
             mfcc: has(HAS_MFCC).then(|| MfccConfig {
                 coefficients: word(6),
                 lifter: has(HAS_LIFTER).then(|| word(7)),
+                log_energy: b[2] == 1,
             }),
             normalise: has(HAS_NORMALISE),
             quantise: has(HAS_QUANTISE).then(|| QuantiseConfig {
@@ -241,7 +250,7 @@ impl StageConfig {
         };
         let canonical = (has(HAS_PCEN) || zero(0..5))
             && (has(HAS_RANGE_FLOOR) || zero(5..6))
-            && (has(HAS_MFCC) || (zero(6..8) && !has(HAS_LIFTER)))
+            && (has(HAS_MFCC) || (zero(6..8) && !has(HAS_LIFTER) && b[2] == 0))
             && (has(HAS_LIFTER) || zero(7..8))
             && (has(HAS_QUANTISE) || (zero(8..10) && codes == 0))
             && (has(HAS_MODEL_WINDOW) || zero(10..12));

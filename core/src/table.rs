@@ -67,6 +67,20 @@ impl FilterbankForm {
     }
 }
 
+impl<W: WeightType> Filterbank<'_, W> {
+    /// The first bin of the lowest band (its span's first bin, or the
+    /// compact form's first segment start): where the frame's log-energy
+    /// starts summing.
+    pub fn first_bin(&self) -> usize {
+        match *self {
+            Filterbank::Sparse { spans, .. } => spans.first().map_or(0, |s| s[0] as usize),
+            Filterbank::Compact { segment_starts, .. } => {
+                segment_starts.first().map_or(0, |&s| s as usize)
+            }
+        }
+    }
+}
+
 /// The filterbank in one of its two forms (see the module docs).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum Filterbank<'a, W> {

@@ -20,6 +20,7 @@
 //! [stages.mfcc]
 //! coefficients = 10
 //! lifter = 22            # optional
+//! log_energy = true      # optional: the frame's log-energy in place of c0
 //! [stages.normalise]     # one mean and deviation per output value
 //! mean = [0.0, 0.0]
 //! deviation = [1.0, 1.0]
@@ -193,6 +194,7 @@ struct RangeFloorFile {
 struct MfccFile {
     coefficients: u32,
     lifter: Option<u32>,
+    log_energy: Option<bool>,
 }
 
 #[derive(Deserialize, Debug)]
@@ -244,6 +246,7 @@ fn apply_stages_file(
         st.mfcc = Some(MfccConfig {
             coefficients: m.coefficients,
             lifter: m.lifter,
+            log_energy: m.log_energy.unwrap_or(false),
         });
     }
     if let Some(q) = file.quantise {
@@ -295,6 +298,7 @@ fn apply_stage_flags(c: &mut FeatureConfig, a: &ConfigArgs) -> Result<()> {
             Some(MfccConfig {
                 coefficients: parse_u32("mfcc", t)?,
                 lifter: st.mfcc.and_then(|m| m.lifter),
+                log_energy: st.mfcc.is_some_and(|m| m.log_energy),
             })
         };
     }
@@ -448,9 +452,10 @@ pub fn describe(config: &FeatureConfig) -> Vec<(&'static str, String)> {
             "stages.mfcc",
             config.stages.mfcc.map_or("off".into(), |m| {
                 format!(
-                    "{} coefficients, lifter {}",
+                    "{} coefficients, lifter {}, log-energy in place of c0 {}",
                     m.coefficients,
-                    m.lifter.map_or("off".into(), |l| l.to_string())
+                    m.lifter.map_or("off".into(), |l| l.to_string()),
+                    if m.log_energy { "on" } else { "off" }
                 )
             }),
         ),

@@ -150,14 +150,21 @@ impl Reference {
     pub fn run(&self, samples: &[f64]) -> Vec<Vec<f64>> {
         let c = &self.config;
         let floor = 10f64.powf(c.floor_db as f64 / 10.0);
+        let bands = c.bands as usize;
         self.energies(samples)
             .into_iter()
-            .map(|row| row.into_iter().map(|e| log_of(c.log, e, floor)).collect())
+            .map(|row| {
+                row.into_iter()
+                    .take(bands)
+                    .map(|e| log_of(c.log, e, floor))
+                    .collect()
+            })
             .collect()
     }
 
     /// The band energies (linear, the gains applied, no floor) of every
-    /// complete frame: what the filterbank hands the stages after it.
+    /// complete frame: what the filterbank hands the stages after it (and,
+    /// when the MFCC takes the log-energy, the frame's energy last).
     pub fn energies(&self, samples: &[f64]) -> Vec<Vec<f64>> {
         let c = &self.config;
         let conditioned = self.condition(samples);
@@ -183,11 +190,27 @@ impl Reference {
                     SpectrumKind::Magnitude => z.norm(),
                 })
                 .collect();
-            let row = self
+            let mut row: Vec<f64> = self
                 .matrix
                 .chunks(bins)
                 .map(|weights| weights.iter().zip(&spectrum).map(|(w, s)| w * s).sum())
                 .collect();
+            if c.stage_inputs() > c.bands as usize {
+                // The frame's energy, by Parseval from this FFT: Σ c_k·|X_k|²
+                // / N from the lowest band's first bin (c_k = 2 but at 0 and
+                // N/2).
+                let from = self.matrix[..bins]
+                    .iter()
+                    .position(|&w| w > 0.0)
+                    .unwrap_or(0);
+                let sum: f64 = (from..bins)
+                    .map(|k| {
+                        let p = buf[k].norm_sqr();
+                        if k == 0 || k == bins - 1 { p } else { 2.0 * p }
+                    })
+                    .sum();
+                row.push(sum / n as f64);
+            }
             frames.push(row);
             start += hop;
         }

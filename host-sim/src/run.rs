@@ -90,7 +90,12 @@ pub fn run_float(
     samples: &Samples,
     chunk: usize,
 ) -> Result<Vec<Vec<f32>>> {
-    run_float_with(config, table, FloatLog::for_config(config), samples, chunk)
+    let mut frames = run_float_with(config, table, FloatLog::for_config(config), samples, chunk)?;
+    // The log-mel bands (without the frame's log-energy an MFCC may take).
+    frames
+        .iter_mut()
+        .for_each(|f| f.truncate(config.bands as usize));
+    Ok(frames)
 }
 
 /// [`run_float`] with `stages` after the filterbank instead of the log.
@@ -126,7 +131,11 @@ where
     P::Data: FrameData,
 {
     let log = FixedLog::<256>::for_tables(&tables);
-    run_fixed_with::<P, _>(config, tables, log, samples, chunk)
+    let mut frames = run_fixed_with::<P, _>(config, tables, log, samples, chunk)?;
+    frames
+        .iter_mut()
+        .for_each(|f| f.truncate(config.bands as usize));
+    Ok(frames)
 }
 
 /// [`run_fixed`] with `stages` after the filterbank instead of the log.

@@ -200,13 +200,17 @@ pub fn run_float_stages(
             out
         }
     };
+    let bands = config.bands as usize;
+    let log_energy = st.mfcc.is_some_and(|m| m.log_energy);
     if let Some(r) = range_floor_units(config) {
-        frames = apply(&mut RangeFloor::new(r as f32), &mut frames);
+        frames = apply(&mut RangeFloor::new(r as f32).on_first(bands), &mut frames);
         run.stages.push(record("range_floor", &frames, f, None));
     }
     if st.mfcc.is_some() {
         let table = stages.dct_f32(config).expect("mfcc configured");
-        let mut mfcc = FloatMfcc::<HOST_VALUES>::new(table).map_err(|e| anyhow!("{e}"))?;
+        let mut mfcc = FloatMfcc::<HOST_VALUES>::new(table)
+            .map_err(|e| anyhow!("{e}"))?
+            .with_log_energy(log_energy);
         frames = apply(&mut mfcc, &mut frames);
         run.stages.push(record("mfcc", &frames, f, None));
     }
@@ -294,8 +298,9 @@ pub fn run_fixed_stages(
         let bits = |v: I8F8| v.to_bits() as i64;
         run.stages
             .push(record("log", &levels, |v| unit8(bits(v)), Some(&bits)));
-        if let Some(mut floor) = stages.fixed_range_floor(config) {
-            levels = apply(&mut floor, &mut levels);
+        let bands = config.bands as usize;
+        if let Some(floor) = stages.fixed_range_floor(config) {
+            levels = apply(&mut floor.on_first(bands), &mut levels);
             run.stages.push(record(
                 "range_floor",
                 &levels,
@@ -305,7 +310,9 @@ pub fn run_fixed_stages(
         }
         if st.mfcc.is_some() {
             let table = stages.dct_q15(config).expect("mfcc configured");
-            let mut mfcc = FixedMfcc::<HOST_VALUES>::new(table).map_err(|e| anyhow!("{e}"))?;
+            let mut mfcc = FixedMfcc::<HOST_VALUES>::new(table)
+                .map_err(|e| anyhow!("{e}"))?
+                .with_log_energy(st.mfcc.is_some_and(|m| m.log_energy));
             let mut c = apply(&mut mfcc, &mut levels);
             let cbits = |v: stapes_core::fixed::types::I24F8| v.to_bits() as i64;
             run.stages
@@ -386,17 +393,28 @@ pub fn reference_stages(
             out
         }
     };
+    let bands = config.bands as usize;
     if let Some(r) = range_floor_units(config) {
         for f in &mut frames {
-            let top = f.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-            f.iter_mut().for_each(|v| *v = v.max(top - r));
+            let n = f.len().min(bands);
+            let top = f[..n].iter().copied().fold(f64::NEG_INFINITY, f64::max);
+            f[..n].iter_mut().for_each(|v| *v = v.max(top - r));
         }
         push(&mut run, "range_floor", &frames);
     }
     if let Some(m) = st.mfcc {
         let dct =
             crate::dct::DctTables::new(config.bands as usize, m.coefficients as usize, m.lifter);
-        frames = frames.iter().map(|f| dct.apply_f64(f)).collect();
+        frames = frames
+            .iter()
+            .map(|f| {
+                let mut c = dct.apply_f64(&f[..bands.min(f.len())]);
+                if m.log_energy {
+                    c[0] = f[bands];
+                }
+                c
+            })
+            .collect();
         push(&mut run, "mfcc", &frames);
     }
     if st.normalise {

@@ -62,8 +62,8 @@ fn stage_literal(st: &stapes_core::StageConfig) -> String {
     });
     let mfcc = option(st.mfcc, |x| {
         format!(
-            "{m}::MfccConfig {{ coefficients: {}, lifter: {:?} }}",
-            x.coefficients, x.lifter
+            "{m}::MfccConfig {{ coefficients: {}, lifter: {:?}, log_energy: {} }}",
+            x.coefficients, x.lifter, x.log_energy
         )
     });
     let quantise = option(st.quantise, |q| {
