@@ -1685,20 +1685,22 @@ where
         }
         if self.config.stage_inputs() > bands {
             // The frame's energy (Parseval): Σ c_k·bin_k / N from the lowest
-            // band's first bin, c_k = 2 but at 0 and N/2, summed exactly in
-            // u128 and brought below 2^64 (the weights' Q15 does not apply).
+            // band's first bin, c_k = 2 but at 0 and N/2 (the weights' Q15
+            // does not apply). 16-bit data's bins are below 2^32, so the sum
+            // of at most 4096 of them fits u64 exactly; 32-bit data's may use
+            // all 64 bits, so each is first shifted right by log2(N) + 1
+            // (bits far below the sum's top).
             let half = n / 2;
             let from = self.tables.table.filterbank.first_bin().min(half);
-            let mut sum = 0u128;
+            let s = if P::WIDE { n.trailing_zeros() + 1 } else { 0 };
+            let mut sum = 0u64;
             for k in from..half {
-                let v = <P::Data as FrameData>::load_bin(&buf[2 * k..2 * k + 2]) as u128;
+                let v = <P::Data as FrameData>::load_bin(&buf[2 * k..2 * k + 2]) >> s;
                 sum += if k == 0 { v } else { 2 * v };
             }
-            sum += last as u128;
-            let top = 128 - sum.leading_zeros();
-            let s = top.saturating_sub(64);
+            sum += last >> s;
             self.energies[bands] = energy_word(
-                (sum >> s) as u64,
+                sum,
                 energy_exponent + 15 + s as i32 - n.trailing_zeros() as i32,
             );
         }
