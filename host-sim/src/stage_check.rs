@@ -160,11 +160,6 @@ pub fn check_stages(
     samples: &Samples,
     chunk: usize,
 ) -> Result<(Vec<StageComparison>, u64)> {
-    let chunk = if chunk == 0 {
-        samples.len().max(1)
-    } else {
-        chunk
-    };
     let got = run_arith(arith, config, core, stage_tables, samples, chunk)?;
     let reference = Reference::new(config);
     let input = reference_input(arith, samples);
@@ -196,7 +191,8 @@ pub fn check_stages(
     ))
 }
 
-/// The core's stage outputs in `arith`.
+/// The core's stage outputs in `arith`, fed `chunk` samples at a time (0:
+/// the whole signal at once).
 pub fn run_arith(
     arith: Arith,
     config: &FeatureConfig,
@@ -205,6 +201,11 @@ pub fn run_arith(
     samples: &Samples,
     chunk: usize,
 ) -> Result<StageRun> {
+    let chunk = if chunk == 0 {
+        samples.len().max(1)
+    } else {
+        chunk
+    };
     match (arith, core) {
         (Arith::F32, CoreTables::Float(t)) => {
             let e = float_energies(config, t, samples, chunk)?;

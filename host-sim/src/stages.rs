@@ -257,6 +257,20 @@ where
     Ok((to_i32(&codes), stage.clamped()))
 }
 
+/// The fixed path's codes of `frames` in the configuration's code range
+/// (and the values clamped), or `None` without a quantiser.
+fn fixed_codes<In: stapes_core::quantise::RawUnits>(
+    config: &FeatureConfig,
+    stages: &StageTables<'_>,
+    frames: &mut [Vec<In>],
+) -> Result<Option<(Vec<Vec<i32>>, u64)>> {
+    Ok(match config.stages.quantise.map(|q| q.codes) {
+        Some(CodeRange::Int8) => Some(fixed_quantise::<_, i8>(config, stages, frames)?),
+        Some(CodeRange::Uint8) => Some(fixed_quantise::<_, u8>(config, stages, frames)?),
+        None => None,
+    })
+}
+
 /// The fixed stages over energy words (from [`fixed_energies`]); `tables`
 /// give the log.
 pub fn run_fixed_stages(
@@ -287,11 +301,7 @@ pub fn run_fixed_stages(
             |v| v.to_bits() as f64 / 65536.0,
             Some(&|v: stapes_core::fixed::types::I16F16| v.to_bits() as i64),
         ));
-        match st.quantise.map(|q| q.codes) {
-            Some(CodeRange::Int8) => Some(fixed_quantise::<_, i8>(config, stages, &mut out)?),
-            Some(CodeRange::Uint8) => Some(fixed_quantise::<_, u8>(config, stages, &mut out)?),
-            None => None,
-        }
+        fixed_codes(config, stages, &mut out)?
     } else {
         let mut levels: Vec<Vec<I8F8>> =
             apply(&mut FixedLog::<HOST_VALUES>::for_tables(tables), &mut words);
@@ -317,21 +327,9 @@ pub fn run_fixed_stages(
             let cbits = |v: stapes_core::fixed::types::I24F8| v.to_bits() as i64;
             run.stages
                 .push(record("mfcc", &c, |v| unit8(cbits(v)), Some(&cbits)));
-            match st.quantise.map(|q| q.codes) {
-                Some(CodeRange::Int8) => Some(fixed_quantise::<_, i8>(config, stages, &mut c)?),
-                Some(CodeRange::Uint8) => Some(fixed_quantise::<_, u8>(config, stages, &mut c)?),
-                None => None,
-            }
+            fixed_codes(config, stages, &mut c)?
         } else {
-            match st.quantise.map(|q| q.codes) {
-                Some(CodeRange::Int8) => {
-                    Some(fixed_quantise::<_, i8>(config, stages, &mut levels)?)
-                }
-                Some(CodeRange::Uint8) => {
-                    Some(fixed_quantise::<_, u8>(config, stages, &mut levels)?)
-                }
-                None => None,
-            }
+            fixed_codes(config, stages, &mut levels)?
         }
     };
     if let Some((codes, clamped)) = codes {
