@@ -1,8 +1,8 @@
 //! Blob round trip and rejection of corrupt blobs.
 
+use stapes_core::FloatFrontEnd;
 use stapes_core::blob::{BlobError, SectionKind, TableBlob, blob_crc};
 use stapes_core::crc32::Crc32;
-use stapes_core::float_path::FloatFrontEnd;
 use stapes_core::presets::{SPEECH16K_40, TINY16K_10};
 use stapes_core::table::{FilterbankForm, TableError};
 use stapes_sim::emit::{BlobContents, blob};

@@ -239,9 +239,9 @@ fn host_frames(
         a => {
             let tables = t.fixed_tables(form).unwrap();
             let frames = if a == "fixed16" {
-                run_fixed::<stapes_core::int_fft::Fixed16>(config, tables, samples, 128).unwrap()
+                run_fixed::<stapes_core::fft::Fixed16>(config, tables, samples, 128).unwrap()
             } else {
-                run_fixed::<stapes_core::int_fft::Fixed32>(config, tables, samples, 128).unwrap()
+                run_fixed::<stapes_core::fft::Fixed32>(config, tables, samples, 128).unwrap()
             };
             frames
                 .into_iter()

@@ -7,10 +7,10 @@ use clap::Parser;
 use rand::Rng;
 use rustfft::FftPlanner;
 use rustfft::num_complex::Complex64;
+use stapes_core::FixedFrontEnd;
 use stapes_core::blob::TableBlob;
 use stapes_core::config::{BandGain, FeatureConfig};
-use stapes_core::fixed_path::FixedFrontEnd;
-use stapes_core::int_fft::{Fixed16, Fixed32, real_fft, real_fft_generic_butterflies};
+use stapes_core::fft::{Fixed16, Fixed32, real_fft, real_fft_generic_butterflies};
 use stapes_core::int_log::log2_q16;
 use stapes_core::presets::{SPEECH16K_40, TINY16K_10};
 use stapes_core::table::FilterbankForm;
@@ -485,9 +485,9 @@ fn integer_square_root_is_the_floor_of_the_real_one() {
     values.extend((0..64).map(|b| 1u64 << b));
     values.extend((0..20000).map(|_| r.random::<u64>() >> r.random_range(0..64)));
     values.push(u64::MAX);
-    use stapes_core::fixed_path::{isqrt_u64_by_digits, isqrt_u64_by_halves};
+    use stapes_core::int_root::{isqrt_u64_by_digits, isqrt_u64_by_halves};
     for &v in &values {
-        let root = stapes_core::fixed_path::isqrt_u64(v) as u128;
+        let root = stapes_core::int_root::isqrt_u64(v) as u128;
         assert!(
             root * root <= v as u128 && (root + 1) * (root + 1) > v as u128,
             "isqrt({v}) = {root}"
@@ -498,7 +498,7 @@ fn integer_square_root_is_the_floor_of_the_real_one() {
     }
     // Both 32-bit forms (Newton where the core divides, digits on Cortex-M0)
     // give the floor, so every core computes the same bits.
-    use stapes_core::fixed_path::{isqrt_u32_by_digits, isqrt_u32_by_newton};
+    use stapes_core::int_root::{isqrt_u32_by_digits, isqrt_u32_by_newton};
     let mut v32: Vec<u32> = values.iter().map(|&v| v as u32).collect();
     v32.extend((0..32).flat_map(|b| [1u32 << b, (1u32 << b) - 1, (1u32 << b) + 1]));
     v32.extend([u32::MAX, u32::MAX - 1, 65535 * 65535, 65536 * 65535]);
@@ -520,7 +520,7 @@ fn integer_square_root_is_the_floor_of_the_real_one() {
 /// rounded quotient (checked in i128).
 #[test]
 fn windowed_products_agree_between_cores() {
-    use stapes_core::fixed_path::{rounded_product_by_halves, rounded_product_wide};
+    use stapes_core::window::{rounded_product_by_halves, rounded_product_wide};
     let mut r = rng(91);
     let mut checked = 0;
     while checked < 200_000 {
@@ -723,43 +723,11 @@ fn packed_word_primitives_match_their_definitions() {
     }
 }
 
-/// The Cortex-M0 form of the 32 × 32 → 64-bit product against `i64`
-/// multiplication on edge and random values.
-#[test]
-fn wide_product_by_halves_is_exact() {
-    use stapes_core::fixed_path::wide_product_by_halves;
-    let mut r = rng(0x64);
-    let edges = [
-        i32::MIN,
-        i32::MIN + 1,
-        -65536,
-        -65535,
-        -32768,
-        -1,
-        0,
-        1,
-        65535,
-        65536,
-        i32::MAX,
-    ];
-    let mut values: Vec<i32> = edges.to_vec();
-    values.extend((0..2000).map(|_| r.random::<i32>()));
-    for &a in &values {
-        for &b in values.iter().step_by(7) {
-            assert_eq!(
-                wide_product_by_halves(a, b),
-                a as i64 * b as i64,
-                "{a} * {b}"
-            );
-        }
-    }
-}
-
 /// The split step's 32-bit rounding of `(e − t) / 2^(1 + s)` against the
 /// 64-bit expression, on edge and random values and every shift it uses.
 #[test]
 fn halved_difference_matches_64_bit_rounding() {
-    use stapes_core::int_fft::halved_difference_rounded;
+    use stapes_core::fft::halved_difference_rounded;
     let mut r = rng(0x5911);
     let edges = [
         -(1 << 30) - 7,

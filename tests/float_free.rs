@@ -90,7 +90,7 @@ fn the_fixed_paths_link_no_soft_float_helper_and_the_scan_can_see_them() {
     ] {
         let syms = build_for_cortex_m0(feature);
         assert!(
-            syms.iter().any(|s| s.contains("fixed_path")),
+            syms.iter().any(|s| s.contains("spectrum_pairs")),
             "{feature}: the fixed path is not in the binary"
         );
         let floats: Vec<&String> = syms.iter().filter(|s| is_soft_float(s)).collect();

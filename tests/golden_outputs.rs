@@ -12,7 +12,7 @@
 use std::f64::consts::PI;
 use std::fmt::Write as _;
 
-use stapes_core::int_fft::{Fixed16, Fixed32};
+use stapes_core::fft::{Fixed16, Fixed32};
 use stapes_core::table::FilterbankForm;
 use stapes_sim::generate::GeneratedTables;
 use stapes_sim::run::{Samples, run_fixed, run_float};

@@ -107,7 +107,7 @@ fn float_mfcc_matches_the_f64_transform() {
 /// tolerance `check` will state comes with the MFCC configuration.
 #[test]
 fn fixed_mfcc_matches_the_f64_transform() {
-    use stapes_core::int_fft::Fixed16;
+    use stapes_core::fft::Fixed16;
     let c = stapes_core::presets::SPEECH16K_40;
     let t = GeneratedTables::new(&c);
     let dct = DctTables::new(40, 13, Some(22));

@@ -254,7 +254,7 @@ fn band_statistics_from_frames() {
 #[test]
 fn fixed_log_then_quantise_equals_the_plain_front_end() {
     use stapes_core::FixedLog;
-    use stapes_core::int_fft::Fixed16;
+    use stapes_core::fft::Fixed16;
     use stapes_core::quantise::FixedQuantiseStage;
     use stapes_core::stage::Then;
     use stapes_sim::generate::GeneratedTables;

@@ -82,7 +82,7 @@ fn pcen_refuses_impossible_parameters() {
 /// PCEN's compression); held within 5e-4 and 2e-2.
 #[test]
 fn fixed_pcen_matches_its_f64_model() {
-    use stapes_core::int_fft::Fixed16;
+    use stapes_core::fft::Fixed16;
     use stapes_core::pcen_fixed::FixedPcen;
     let p = PcenParams::DEFAULT;
     for (name, c) in stapes_tests::all_presets() {

@@ -128,7 +128,7 @@ fn the_rust_source_holds_the_generated_views() {
 
 #[test]
 fn a_front_end_sized_exactly_from_the_source_matches_the_host() {
-    use stapes_core::float_path::FloatFrontEnd;
+    use stapes_core::FloatFrontEnd;
     type Exact = FloatFrontEnd<
         'static,
         { tiny16k_10::FFT_POINTS },

@@ -4,7 +4,8 @@
 use rustfft::FftPlanner;
 use rustfft::num_complex::Complex64;
 use stapes_core::config::SpectrumKind;
-use stapes_core::spectrum_f32::{COMPILED_FFT_SIZES, real_fft_in_place, spectrum_in_place};
+use stapes_core::fft::{COMPILED_FFT_SIZES, real_fft_in_place};
+use stapes_core::spectrum::spectrum_in_place;
 use stapes_tests::{noise, rng};
 
 fn reference_dft(x: &[f64]) -> Vec<Complex64> {

@@ -172,8 +172,8 @@ fn f32_stays_at_its_measured_level_on_the_corpus() {
 /// 5e-3, 5, 5e-4 and 0.4.
 #[test]
 fn model_input_stages_on_speech() {
+    use stapes_core::fft::Fixed16;
     use stapes_core::fixed::types::I8F8;
-    use stapes_core::int_fft::Fixed16;
     use stapes_core::pcen::{FloatPcen, PcenParams};
     use stapes_core::pcen_fixed::FixedPcen;
     use stapes_core::stage::Then;

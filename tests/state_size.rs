@@ -6,9 +6,9 @@
 
 use std::mem::size_of;
 
-use stapes_core::fixed_path::FixedFrontEnd;
-use stapes_core::float_path::FloatFrontEnd;
-use stapes_core::int_fft::{Fixed16, Fixed32};
+use stapes_core::FixedFrontEnd;
+use stapes_core::FloatFrontEnd;
+use stapes_core::fft::{Fixed16, Fixed32};
 
 #[test]
 fn the_reference_preset_state_fits_its_ram_targets() {

@@ -16,6 +16,14 @@
 //! sum, and the gain undoes the factor `1 − p`: measured 2e-4 dB and 2e-5 to
 //! 1e-4 dB on the same material (numpy model of both forms against float64:
 //! `tests/python/fixed_point_models.py`).
+//!
+//! The fixed path's [`IntConditioner`] runs the textbook recursion in
+//! integers (a Q31 pole with fraction saving, a Q15 pre-emphasis
+//! coefficient, 13 extra fraction bits). It does not run on the stream as
+//! it arrives: the frame buffer keeps the raw samples, and the fixed window
+//! stage ([`crate::window`]) runs the conditioner over each frame from the
+//! state saved at the frame's first sample, so the stored stream stays
+//! exact.
 
 /// `f32` stream conditioner.
 #[derive(Clone, Copy, Debug, Default)]
@@ -77,6 +85,76 @@ impl FloatConditioner {
         match self.pre_emphasis {
             Some(a) => {
                 let z = y - a * self.pre_last_in;
+                self.pre_last_in = y;
+                z
+            }
+            None => y,
+        }
+    }
+}
+
+/// Extra fraction bits of the conditioned stream.
+pub(crate) const CONDITIONING_FRACTION_BITS: u32 = 13;
+
+/// Integer DC removal and pre-emphasis (see the module docs).
+///
+/// DC removal runs with a Q31 pole and *fraction saving*: the bits the
+/// feedback product drops are carried into the next sample's product, so
+/// truncation neither biases the output nor leaves a limit cycle; in silence
+/// the state settles at exactly 0.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct IntConditioner {
+    dc_pole: Option<i32>,
+    pre_emphasis: Option<i32>,
+    last_in: i32,
+    dc_last_out: i32,
+    dc_carry: i64,
+    pre_last_in: i32,
+}
+
+impl IntConditioner {
+    /// Zero state; the DC pole in Q31, the pre-emphasis coefficient in Q15.
+    pub fn new(dc_pole_q31: Option<i32>, pre_emphasis_q15: Option<i32>) -> Self {
+        IntConditioner {
+            dc_pole: dc_pole_q31,
+            pre_emphasis: pre_emphasis_q15,
+            ..Default::default()
+        }
+    }
+
+    /// Back to zero state, the same filters.
+    pub fn reset(&mut self) {
+        *self = IntConditioner::new(self.dc_pole, self.pre_emphasis);
+    }
+
+    /// Whether any conditioning is on.
+    pub fn active(&self) -> bool {
+        self.dc_pole.is_some() || self.pre_emphasis.is_some()
+    }
+
+    /// One sample in (Q15), one out with 13 extra fraction bits: |x| ≤ 2^28,
+    /// the DC filter at most doubles it (its impulse response has L1 norm 2)
+    /// and pre-emphasis multiplies by at most 1 + a < 2, so |out| < 2^30.
+    #[inline]
+    pub fn step(&mut self, raw: i16) -> i32 {
+        let x = (raw as i32) << CONDITIONING_FRACTION_BITS;
+        let y = match self.dc_pole {
+            Some(p) => {
+                // |y| ≤ 2·max|x| (the filter's impulse response has L1 norm 2);
+                // p·y < 2^31 · 2^29 fits i64, and so does the carry (< 2^31).
+                let acc = p as i64 * self.dc_last_out as i64 + self.dc_carry;
+                let feedback = acc >> 31;
+                self.dc_carry = acc - (feedback << 31);
+                let y = x - self.last_in + feedback as i32;
+                self.last_in = x;
+                self.dc_last_out = y;
+                y
+            }
+            None => x,
+        };
+        match self.pre_emphasis {
+            Some(a) => {
+                let z = y - ((a as i64 * self.pre_last_in as i64 + (1 << 14)) >> 15) as i32;
                 self.pre_last_in = y;
                 z
             }

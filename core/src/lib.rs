@@ -2,17 +2,24 @@
 //!
 //! ```text
 //! samples ─► conditioning ─► framer ─► window ─► real FFT ─► spectrum
-//!         ─► mel (table view) ─► log ─► frame out
+//!         ─► filterbank (table view) ─► stages (log, then a model's input) ─► frame
 //! ```
 //!
-//! Two front ends run that path: [`float_path::FloatFrontEnd`] (`f32`,
-//! microfft, for cores with an FPU) and [`fixed_path::FixedFrontEnd`]
-//! (integers only: the project's block-floating-point FFT in [`int_fft`],
-//! 16- or 32-bit data, and [`int_log`]; `I8F8` output, 1/256 dB per LSB).
+//! One front end, [`FrontEnd`], runs that path in the arithmetic its first
+//! parameter names: [`F32`] (microfft, for cores with an FPU), [`Fixed16`]
+//! or [`Fixed32`] (integers only: the project's block-floating-point FFT in
+//! [`fft`], 16- or 32-bit data; `I8F8` log output, 1/256 dB per LSB).
+//! [`FloatFrontEnd`] and [`FixedFrontEnd`] name the same type. Each stage
+//! is one module holding every arithmetic of it: [`conditioning`],
+//! [`window`], [`fft`], [`spectrum`], [`filterbank`], and after the
+//! filterbank the [stages](stage) chained at compile time: [`log`] by
+//! default, [`pcen`], [`range_floor`], [`mfcc`], [`normalise`],
+//! [`quantise`], and the model's window of frames ([`frame_window`]).
 //!
 //! One [`config::FeatureConfig`] describes a front end. The host generator
 //! turns it into a [`table::TableView`] (plus, for the fixed path,
-//! [`fixed_tables::FixedTables`]) as Rust source, a C header, or a checked
+//! [`fixed_tables::FixedTables`], and for the stages after the log
+//! [`stage_tables::StageTables`]) as Rust source, a C header, or a checked
 //! [`blob`]; the front ends read only the tables on the per-frame path, and
 //! [`probe`] lets a board time each stage.
 //!
@@ -26,35 +33,40 @@
 //!   with zero initial state ([`conditioning`], [`framer`]).
 //! * **Spectrum**: `X[k]` is the DFT of the windowed frame with no `1/N`
 //!   factor; `P[k] = |X[k]|²` (or `|X[k]|` for a magnitude configuration), for
-//!   `k = 0 ..= N/2` ([`spectrum_f32`]).
+//!   `k = 0 ..= N/2` ([`spectrum`]).
 //! * **Mel**: `E[b] = Σ w·P` over band `b`'s bins, times the band gain
-//!   ([`mel`]); band edges are equally spaced in mels and each triangle is
+//!   ([`filterbank`]); band edges are equally spaced in mels and each triangle is
 //!   evaluated at the bin's exact frequency `k·fs/N` ([`scale`]), except where
 //!   a preset follows a standard's own construction.
 //! * **Log**: `10·log10(max(E, floor))` or `ln(max(E, floor))` ([`log`]).
 //!
 //! # Example
+//! A shipped table, included as Rust source:
 //! ```
-//! use stapes_core::float_path::FloatFrontEnd;
-//! use stapes_core::presets::SPEECH16K_40;
-//! # use stapes_core::table::TableView;
-//! # fn run(table: TableView<'static, f32>) {
-//! // `table` comes from tables/speech16k-40.rs or a parsed blob.
-//! let mut fe = FloatFrontEnd::<512, 352, 40>::new(SPEECH16K_40, table).unwrap();
-//! let chunk = [0i16; 480];
+//! mod speech {
+//!     include!("../../tables/speech16k-40.rs");
+//! }
+//! use stapes_core::FloatFrontEnd;
+//!
+//! let mut fe = FloatFrontEnd::<512, 352, 40>::new(speech::CONFIG, speech::TABLE_F32_SPARSE)?;
+//! let chunk = [0i16; 800];
 //! let mut rest = &chunk[..];
+//! let mut frames = 0;
 //! while let Some(frame) = fe.next_frame(&mut rest) {
 //!     assert_eq!(frame.bands.len(), 40);
+//!     frames += 1;
 //! }
-//! # }
+//! assert_eq!(frames, 2); // 800 samples: 512-sample frames every 160.
+//! # Ok::<(), stapes_core::FrontEndError>(())
 //! ```
 #![no_std]
 // The only `unsafe` is Cortex-M inline assembly, each piece with a portable
 // twin that gives the same bits: on Cortex-M4 behind `cfg(stapes_arm_dsp)`
-// (`int_fft::mul_high`, `dsp16`, the FFT loops in `int_fft`, the window
-// stage's passes in `fixed_path`); on hard-float cores behind
+// (`fft::mul_high`, `dsp16`, the FFT loops in `fft`, the window stage's
+// passes in `window`, the bins' weighted sums in `filterbank`); on
+// hard-float cores behind
 // `cfg(stapes_arm_fpu)` the f32 stages' loops (`sample`, `window`,
-// `spectrum_f32`, `mel`, `log`; the sparse band loop in `mel` relies on the
+// `spectrum`, `filterbank`, `log`; the sparse band loop in `filterbank` relies on the
 // table check the front end's constructor made, an `unsafe fn` contract);
 // and the framer's block copy (`block_copy`) on every Cortex-M, whose twin
 // is `copy_from_slice`.
@@ -68,16 +80,17 @@ pub mod config;
 pub mod crc32;
 pub mod dsp16;
 pub mod error;
-pub mod fixed_path;
+pub mod fft;
+pub mod filterbank;
+mod fixed_data;
 pub mod fixed_tables;
-pub mod float_path;
 pub mod frame;
 pub mod frame_window;
 pub mod framer;
-pub mod int_fft;
+pub mod front_end;
 pub mod int_log;
+pub mod int_root;
 pub mod log;
-pub mod mel;
 pub mod mfcc;
 pub mod normalise;
 pub mod pcen;
@@ -88,12 +101,24 @@ pub mod quantise;
 pub mod range_floor;
 pub mod sample;
 pub mod scale;
-pub mod spectrum_f32;
+pub mod spectrum;
 pub mod stage;
 pub mod stage_config;
 pub mod stage_tables;
 pub mod table;
 pub mod window;
+
+/// Sealed traits' common supertrait: the crate's plumbing traits are
+/// implemented for its own types only.
+pub(crate) mod sealed {
+    /// Implemented by the crate's arithmetics and data types only.
+    pub trait Sealed {}
+    impl Sealed for i16 {}
+    impl Sealed for i32 {}
+    impl Sealed for crate::fft::Fixed16 {}
+    impl Sealed for crate::fft::Fixed32 {}
+    impl Sealed for crate::front_end::F32 {}
+}
 
 /// The `fixed` crate, whose types name the fixed path's Q formats.
 pub use fixed;
@@ -101,12 +126,11 @@ pub use fixed;
 // The small public API, at the crate root.
 pub use config::FeatureConfig;
 pub use error::FrontEndError;
-pub use fixed_path::FixedFrontEnd;
+pub use fft::{Fixed16, Fixed32};
 pub use fixed_tables::FixedTables;
-pub use float_path::FloatFrontEnd;
 pub use frame::{Frame, StreamingFrontEnd};
 pub use frame_window::FrameWindow;
-pub use int_fft::{Fixed16, Fixed32};
+pub use front_end::{Arithmetic, F32, FixedArithmetic, FixedFrontEnd, FloatFrontEnd, FrontEnd};
 pub use log::{FixedLog, FloatLog};
 pub use mfcc::{DctTable, FixedMfcc, FloatMfcc};
 pub use normalise::{BandStatistics, Normalise, NormalisedQuantise};

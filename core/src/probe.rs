@@ -1,7 +1,7 @@
 //! Hooks between the stages of the per-frame path, for measuring on a board.
 //!
 //! The front ends call [`StageProbe::mark`] after each stage of a frame;
-//! `()` is the no-op probe that [`next_frame`](crate::float_path::FloatFrontEnd::next_frame)
+//! `()` is the no-op probe that [`next_frame`](crate::front_end::FrontEnd::next_frame)
 //! uses, so an unmeasured build pays nothing.
 //!
 //! ```

@@ -19,6 +19,11 @@ pub trait Sample: Copy {
     /// The sample as a full-scale-normalised `f32`, with non-finite values as `None`.
     fn to_unit_f32(self) -> Option<f32>;
 
+    /// The sample in Q15 (`i16`, 32768 = 1.0) for the fixed path: `i16` as
+    /// it is; `f32` rounded to the nearest (ties away from zero) and
+    /// saturated to the `i16` range; non-finite values as `None`.
+    fn to_q15(self) -> Option<i16>;
+
     /// Converts `src` into `dst` (the shorter length) as
     /// [`Sample::to_unit_f32`] does, a non-finite sample as 0, and returns
     /// how many were non-finite.
@@ -36,6 +41,11 @@ pub trait Sample: Copy {
 }
 
 impl Sample for i16 {
+    #[inline(always)]
+    fn to_q15(self) -> Option<i16> {
+        Some(self)
+    }
+
     #[inline]
     fn to_unit_f32(self) -> Option<f32> {
         // Exact: every i16 is representable and 1/32768 is a power of two.
@@ -57,6 +67,13 @@ impl Sample for i16 {
 }
 
 impl Sample for f32 {
+    #[inline]
+    fn to_q15(self) -> Option<i16> {
+        // ×32768 is exact; the cast saturates.
+        self.is_finite()
+            .then(|| libm::roundf(self * 32768.0) as i16)
+    }
+
     #[inline]
     fn to_unit_f32(self) -> Option<f32> {
         if self.is_finite() { Some(self) } else { None }

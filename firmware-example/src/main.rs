@@ -211,10 +211,10 @@ const CORE: &str = env!("STAPES_CORE");
 /// The fixed path's precision in fixed builds.
 #[cfg(feature = "fixed16")]
 #[allow(dead_code)]
-type Precision = stapes_core::int_fft::Fixed16;
+type Precision = stapes_core::fft::Fixed16;
 #[cfg(not(feature = "fixed16"))]
 #[allow(dead_code)]
-type Precision = stapes_core::int_fft::Fixed32;
+type Precision = stapes_core::fft::Fixed32;
 
 /// The arithmetic of this build.
 const ARITH: &str = if cfg!(feature = "harness-only") {

@@ -67,22 +67,22 @@ impl Budget {
 
 /// Code of the front end for (core, arithmetic), without the FFT-size part;
 /// measured from the speech16k-40 firmware (rustc 1.95, opt-level 3, LTO;
-/// recalibrated after the zero-padded window's offset add-back and the
-/// frame's log-energy joined the fixed path):
+/// recalibrated after the front end became one type generic over the
+/// arithmetic, each stage in its own module):
 /// the full build's flash minus the harness-only build's, minus the tables.
 /// `None` for the f32 path on Cortex-M0, which has no FPU.
 fn code_bytes(core: Core, arith: Arith) -> Option<usize> {
     match (core, arith) {
-        // 31 880 − 4 176 tables − 512 · 30.4 (microfft for 512 points).
-        (Core::CortexM4F, Arith::F32) => Some(12_140),
-        // 39 356 − 2 442 tables (the Cortex-M4 loops come in four shifts).
-        (Core::CortexM4F, Arith::Fixed16) => Some(36_914),
-        // 31 408 − 4 748 tables.
-        (Core::CortexM4F, Arith::Fixed32) => Some(26_660),
-        // 29 580 − 2 442 tables.
-        (Core::CortexM0, Arith::Fixed16) => Some(27_138),
-        // 32 596 − 4 748 tables.
-        (Core::CortexM0, Arith::Fixed32) => Some(27_848),
+        // 31 724 − 4 176 tables − 512 · 30.4 (microfft for 512 points).
+        (Core::CortexM4F, Arith::F32) => Some(11_984),
+        // 40 628 − 2 442 tables (the Cortex-M4 loops come in four shifts).
+        (Core::CortexM4F, Arith::Fixed16) => Some(38_186),
+        // 31 452 − 4 748 tables.
+        (Core::CortexM4F, Arith::Fixed32) => Some(26_704),
+        // 29 892 − 2 442 tables.
+        (Core::CortexM0, Arith::Fixed16) => Some(27_450),
+        // 32 744 − 4 748 tables.
+        (Core::CortexM0, Arith::Fixed32) => Some(27_996),
         (Core::CortexM0, Arith::F32) => None,
     }
 }
@@ -93,9 +93,10 @@ fn code_bytes(core: Core, arith: Arith) -> Option<usize> {
 const MICROFFT_BYTES_PER_POINT_X10: usize = 304;
 
 /// Struct overhead beyond the buffers on a 32-bit target (measured with
-/// `size_of` in the firmware: 160 B for f32, 272 B for the fixed path).
-const STATE_OVERHEAD_F32: usize = 160;
-const STATE_OVERHEAD_FIXED: usize = 272;
+/// `size_of` in the speech16k-40 firmware: 3 880 B − 4·(512 + 352 + 40) for
+/// f32, 2 296 B − (2·(512 + 352) + 6·40) for the fixed path).
+const STATE_OVERHEAD_F32: usize = 264;
+const STATE_OVERHEAD_FIXED: usize = 328;
 
 /// Per-frame stack measured by stack painting in the speech16k-40 firmware.
 fn stack_bytes(core: Core, arith: Arith) -> usize {
@@ -236,19 +237,19 @@ fn instruction_costs(core: Core, arith: Arith) -> Option<InstructionCosts> {
     };
     match (core, arith) {
         (Core::CortexM4F, Arith::F32) => Some(c(
-            3.83, 1.88, 0.78, 12.24, -12.22, -0.93, 3.10, 5.14, 0.00, 3.56, 25.98, 23.72,
+            3.75, 1.89, 0.79, 11.93, -9.89, -1.59, 3.12, 5.10, 0.00, 3.58, 26.10, 20.15,
         )),
         (Core::CortexM4F, Arith::Fixed16) => Some(c(
-            3.23, 9.57, 100.03, 7.10, 60.01, 15.78, 6.88, 47.55, 113.38, 11.48, 35.60, 31.48,
+            3.22, 9.55, 91.34, 7.13, 59.77, 15.78, 6.97, 47.48, 114.57, 11.55, 36.00, 31.04,
         )),
         (Core::CortexM4F, Arith::Fixed32) => Some(c(
-            3.63, 18.72, 50.69, 16.53, 74.14, 8.98, 16.51, 272.42, 0.00, 19.19, 35.60, 40.81,
+            3.61, 20.58, 53.87, 16.57, 73.89, 8.90, 16.52, 272.45, 0.00, 18.40, 35.92, 41.09,
         )),
         (Core::CortexM0, Arith::Fixed16) => Some(c(
-            3.38, 35.88, 270.90, 20.29, 120.90, 16.37, 11.38, 253.13, 383.26, 31.55, 88.12, 71.12,
+            3.36, 35.06, 267.43, 20.31, 120.65, 16.44, 11.43, 253.18, 383.30, 31.46, 88.12, 70.66,
         )),
         (Core::CortexM0, Arith::Fixed32) => Some(c(
-            5.81, 61.49, 135.34, 60.01, 61.00, 27.02, 111.18, 832.86, 0.00, 35.06, 88.08, 82.86,
+            5.71, 61.76, 134.02, 60.03, 60.80, 27.00, 111.17, 832.88, 0.00, 35.73, 88.12, 82.39,
         )),
         (Core::CortexM0, Arith::F32) => None,
     }

@@ -5,8 +5,8 @@ use std::fmt::Write;
 use anyhow::{Result, anyhow, bail};
 use clap::ValueEnum;
 use stapes_core::config::FeatureConfig;
+use stapes_core::fft::{Fixed16, Fixed32};
 use stapes_core::fixed_tables::FixedTables;
-use stapes_core::int_fft::{Fixed16, Fixed32};
 use stapes_core::table::TableView;
 
 use crate::compare::{Comparison, Tolerance, compare};

@@ -352,9 +352,9 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
         let x = samples.to_i16();
         let ints = match a.arith {
             Arith::Fixed16 => {
-                crate::run::run_fixed::<stapes_core::int_fft::Fixed16>(&config, fixed, &x, chunk)?
+                crate::run::run_fixed::<stapes_core::fft::Fixed16>(&config, fixed, &x, chunk)?
             }
-            _ => crate::run::run_fixed::<stapes_core::int_fft::Fixed32>(&config, fixed, &x, chunk)?,
+            _ => crate::run::run_fixed::<stapes_core::fft::Fixed32>(&config, fixed, &x, chunk)?,
         };
         crate::npy::write_i16(
             &a.output,

@@ -399,11 +399,11 @@ pub const WINDOW_SPECTRUM_TAIL: f64 = 1.0 / 131_072.0;
 /// as `(re, im)` pairs for the bins `k < K` beyond which every `|W(k)|`
 /// stays below [`WINDOW_SPECTRUM_TAIL`]`·W(0)`, for the 16-bit fixed path's
 /// offset compensation; empty where the core knows the window's DFT exactly
-/// (`stapes_core::fixed_path::offset_spectrum`) or where `K` would exceed
+/// (`stapes_core::spectrum::offset_spectrum`) or where `K` would exceed
 /// `N/8` (a window whose sidelobes fall slowly, such as Hamming's: the
 /// add-back would cost more than it saves).
 pub fn window_spectrum(config: &FeatureConfig, window_q15: &[i16]) -> Vec<i32> {
-    if stapes_core::fixed_path::offset_spectrum(config).is_some() {
+    if stapes_core::spectrum::offset_spectrum(config).is_some() {
         return Vec::new();
     }
     let n = config.fft_points as usize;

@@ -1,14 +1,14 @@
 //! Runs the core front end on the host, over a whole signal or in chunks.
 
 use anyhow::{Result, anyhow};
+use stapes_core::FloatFrontEnd;
 use stapes_core::config::FeatureConfig;
 use stapes_core::fixed::types::I8F8;
-use stapes_core::fixed_path::{FixedFrontEnd, FrameData, TwiddlesFor};
 use stapes_core::fixed_tables::FixedTables;
-use stapes_core::float_path::FloatFrontEnd;
 use stapes_core::sample::Sample;
 use stapes_core::stage::FrameStage;
 use stapes_core::table::TableView;
+use stapes_core::{FixedArithmetic, FixedFrontEnd};
 use stapes_core::{FixedLog, FloatLog};
 
 /// Host capacities: the largest configuration the validator accepts.
@@ -127,8 +127,7 @@ pub fn run_fixed<P>(
     chunk: usize,
 ) -> Result<Vec<Vec<I8F8>>>
 where
-    P: TwiddlesFor,
-    P::Data: FrameData,
+    P: FixedArithmetic,
 {
     let log = FixedLog::<256>::for_tables(&tables);
     let mut frames = run_fixed_with::<P, _>(config, tables, log, samples, chunk)?;
@@ -147,8 +146,7 @@ pub fn run_fixed_with<P, S: FrameStage<i32>>(
     chunk: usize,
 ) -> Result<Vec<Vec<S::Out>>>
 where
-    P: TwiddlesFor,
-    P::Data: FrameData,
+    P: FixedArithmetic,
 {
     let mut fe = Box::new(
         FixedFrontEnd::<P, 4096, 4096, 256, S>::with_stages(*config, tables, stages)

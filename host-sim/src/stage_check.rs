@@ -44,7 +44,7 @@ use crate::stages::{
     StageRun, fixed_energies, float_energies, reference_stages, run_fixed_stages, run_float_stages,
 };
 use stapes_core::FeatureConfig;
-use stapes_core::int_fft::{Fixed16, Fixed32};
+use stapes_core::fft::{Fixed16, Fixed32};
 use stapes_core::stage_tables::StageTables;
 
 /// One stage's comparison with its reference.

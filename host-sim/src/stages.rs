@@ -7,11 +7,10 @@
 //! reference and `features` writes whichever stage a user asks for.
 
 use anyhow::{Result, anyhow, bail};
+use stapes_core::FixedArithmetic;
 use stapes_core::config::{FeatureConfig, LogKind};
 use stapes_core::fixed::types::I8F8;
-use stapes_core::fixed_path::{FrameData, TwiddlesFor};
 use stapes_core::fixed_tables::FixedTables;
-use stapes_core::int_fft::Precision;
 use stapes_core::quantise::{AffineQuantiser, CodeRange, FixedQuantiseStage};
 use stapes_core::stage::{FrameStage, Unchanged};
 use stapes_core::stage_tables::StageTables;
@@ -136,8 +135,7 @@ pub fn fixed_energies<P>(
     chunk: usize,
 ) -> Result<Vec<Vec<i32>>>
 where
-    P: Precision + TwiddlesFor,
-    P::Data: FrameData,
+    P: FixedArithmetic,
 {
     crate::run::run_fixed_with::<P, _>(config, tables, Unchanged, samples, chunk)
 }

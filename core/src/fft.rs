@@ -42,7 +42,7 @@
 //! `j = 0 ..= N/4`, from the generated tables; `sin(2πj/N) = q[N/4 - j]`.
 //!
 //! ```
-//! use stapes_core::int_fft::{Fixed16, real_fft};
+//! use stapes_core::fft::{Fixed16, real_fft};
 //! // Q15 quarter-wave cosine for N = 16 (cos(2πj/16), j = 0..=4), 1.0 as 32767.
 //! let q = [32767i16, 30274, 23170, 12540, 0];
 //! let mut x = [0i16; 16];
@@ -53,9 +53,76 @@
 //! assert_eq!((x[0], x[1]), (4096, 4096));
 //! assert!(x[2..].chunks(2).all(|c| c == [4096, 0]));
 //! ```
+//!
+//! # `f32`
+//! The `f32` path's real FFT is microfft's (its packed layout is the same),
+//! for the sizes compiled in by cargo features ([`real_fft_in_place`]).
+
+/// FFT lengths compiled into this build (cargo features `fft-N`).
+pub const COMPILED_FFT_SIZES: &[usize] = &[
+    #[cfg(feature = "fft-16")]
+    16,
+    #[cfg(feature = "fft-32")]
+    32,
+    #[cfg(feature = "fft-64")]
+    64,
+    #[cfg(feature = "fft-128")]
+    128,
+    #[cfg(feature = "fft-256")]
+    256,
+    #[cfg(feature = "fft-512")]
+    512,
+    #[cfg(feature = "fft-1024")]
+    1024,
+    #[cfg(feature = "fft-2048")]
+    2048,
+    #[cfg(feature = "fft-4096")]
+    4096,
+];
+
+/// Whether an FFT of `n` points is compiled in.
+pub fn fft_compiled(n: usize) -> bool {
+    COMPILED_FFT_SIZES.contains(&n)
+}
+
+macro_rules! dispatch {
+    ($buf:expr, $( $n:literal => $f:ident, $feat:literal ;)*) => {
+        match $buf.len() {
+            $(
+                #[cfg(feature = $feat)]
+                $n => {
+                    if let Ok(a) = <&mut [f32; $n]>::try_from(&mut *$buf) {
+                        let _ = microfft::real::$f(a);
+                        return true;
+                    }
+                    false
+                }
+            )*
+            _ => false,
+        }
+    };
+}
+
+/// Real FFT of `buf` in place (microfft's packed layout: `buf[0]` = DC,
+/// `buf[1]` = Nyquist, then re/im pairs). Returns `false`, leaving `buf`
+/// untouched, when its length is not a compiled FFT size.
+#[inline]
+pub fn real_fft_in_place(buf: &mut [f32]) -> bool {
+    dispatch!(buf,
+        16 => rfft_16, "fft-16";
+        32 => rfft_32, "fft-32";
+        64 => rfft_64, "fft-64";
+        128 => rfft_128, "fft-128";
+        256 => rfft_256, "fft-256";
+        512 => rfft_512, "fft-512";
+        1024 => rfft_1024, "fft-1024";
+        2048 => rfft_2048, "fft-2048";
+        4096 => rfft_4096, "fft-4096";
+    )
+}
 
 /// A data type of the integer FFT.
-pub trait BfpSample: Copy + Default + core::fmt::Debug + 'static {
+pub trait BfpSample: crate::sealed::Sealed + Copy + Default + core::fmt::Debug + 'static {
     /// Twiddle storage: Q15 `i16` or Q31 `i32`.
     type Twiddle: Copy + core::fmt::Debug + 'static;
     /// Largest magnitude any level writes.
@@ -96,17 +163,17 @@ pub trait BfpSample: Copy + Default + core::fmt::Debug + 'static {
     /// `±2·LIMIT` (differences of two values).
     fn split_rotate(xr: i32, xi: i32, c: Self::Twiddle, s: Self::Twiddle) -> (i32, i32);
     /// Every column of a radix-4 pass over sub-transforms of `m` points
-    /// (see [`twiddled_columns`]); returns the tracker. The same bits as the
+    /// (see `twiddled_columns`); returns the tracker. The same bits as the
     /// generic butterflies; a type may run them on packed words.
     fn radix4_columns(buf: &mut [Self], quarter: &[Self::Twiddle], m: usize, shift: u32) -> u32 {
         twiddled_columns::<Self>(buf, quarter, m, shift)
     }
-    /// The first two levels' butterflies (see [`first_radix4`]) with the
+    /// The first two levels' butterflies (see `first_radix4`) with the
     /// shift `s`; returns the tracker. A type may run them on packed words.
     fn first_radix4_groups(buf: &mut [Self], s: u32) -> u32 {
         first_radix4_generic::<Self>(buf, s)
     }
-    /// The split step's pairs `1 ≤ k < N/4` (see [`split`]) with the shift
+    /// The split step's pairs `1 ≤ k < N/4` (see `split`) with the shift
     /// `s`. A type may run them on packed words.
     fn split_pairs(buf: &mut [Self], quarter: &[Self::Twiddle], s: u32) {
         split_pairs_generic::<Self>(buf, quarter, s)
@@ -121,7 +188,7 @@ pub struct Fixed16;
 pub struct Fixed32;
 
 /// Ties a precision marker to its data type.
-pub trait Precision: Copy + core::fmt::Debug + 'static {
+pub trait Precision: crate::sealed::Sealed + Copy + core::fmt::Debug + 'static {
     /// The data type.
     type Data: BfpSample;
 }
@@ -181,7 +248,7 @@ impl BfpSample for i16 {
     fn magnitude_bound(acc: u32) -> u32 {
         // Every folded re² + im² is at most (its top 16 bits)·2^16 + 0xffff.
         let top = (acc & 0xffff).max(acc >> 16);
-        crate::fixed_path::isqrt_u32((top << 16) | 0xffff) + 1
+        crate::int_root::isqrt_u32((top << 16) | 0xffff) + 1
     }
     #[inline]
     fn input_bound(buf: &[i16]) -> (u32, u32) {
