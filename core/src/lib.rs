@@ -115,6 +115,7 @@ pub(crate) mod sealed {
     pub trait Sealed {}
     impl Sealed for i16 {}
     impl Sealed for i32 {}
+    impl Sealed for f32 {}
     impl Sealed for crate::fft::Fixed16 {}
     impl Sealed for crate::fft::Fixed32 {}
     impl Sealed for crate::front_end::F32 {}

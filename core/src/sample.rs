@@ -14,8 +14,8 @@
 //! assert_eq!(out, [0.25, 0.0, -0.5]);
 //! ```
 
-/// A type the front ends accept as input.
-pub trait Sample: Copy {
+/// A type the front ends accept as input (`i16` or `f32`; sealed).
+pub trait Sample: crate::sealed::Sealed + Copy {
     /// The sample as a full-scale-normalised `f32`, with non-finite values as `None`.
     fn to_unit_f32(self) -> Option<f32>;
 
