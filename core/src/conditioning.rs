@@ -122,6 +122,28 @@ impl IntConditioner {
         }
     }
 
+    /// The filters' state (what changes from sample to sample).
+    #[inline(always)]
+    pub(crate) fn state(&self) -> (i32, i32, i64, i32) {
+        (
+            self.last_in,
+            self.dc_last_out,
+            self.dc_carry,
+            self.pre_last_in,
+        )
+    }
+
+    /// Takes up a state from [`IntConditioner::state`].
+    #[inline(always)]
+    pub(crate) fn set_state(&mut self, (a, b, c, d): (i32, i32, i64, i32)) {
+        (
+            self.last_in,
+            self.dc_last_out,
+            self.dc_carry,
+            self.pre_last_in,
+        ) = (a, b, c, d);
+    }
+
     /// Back to zero state, the same filters.
     pub fn reset(&mut self) {
         *self = IntConditioner::new(self.dc_pole, self.pre_emphasis);

@@ -786,7 +786,6 @@ where
         // is the largest one's), and the filter state at the next frame's start.
         // 32-bit data keep the conditioned samples in place for pass 2.
         let start = self.frame_start;
-        let mut next_start = start;
         let conditioning = self.conditioning;
         let keep = <P::Data as FrameData>::HOLDS_CONDITIONED;
         let compensate = self.offset_compensated;
@@ -824,7 +823,7 @@ where
                 let (mut l, mut h) = (i32::MAX, i32::MIN);
                 for (v, &win) in xs.iter().zip(ws) {
                     if i == hop {
-                        next_start = cond;
+                        self.frame_start.set_state(cond.state());
                     }
                     let c = cond.step(v.to_raw());
                     (l, h) = (l.min(c), h.max(c));
@@ -837,7 +836,7 @@ where
                 (lo, hi) = (lo.min(l), hi.max(h));
             }
             if hop >= w {
-                next_start = cond;
+                self.frame_start.set_state(cond.state());
             }
             if !compensate {
                 mags = hi.unsigned_abs().max(lo.unsigned_abs());
@@ -868,7 +867,7 @@ where
             let mut cond = start;
             for (i, (v, &win)) in buf[..w].iter_mut().zip(window).enumerate() {
                 if i == hop {
-                    next_start = cond;
+                    self.frame_start.set_state(cond.state());
                 }
                 let c = cond.step(v.to_raw());
                 observe(c, win);
@@ -877,7 +876,7 @@ where
                 }
             }
             if hop >= w {
-                next_start = cond;
+                self.frame_start.set_state(cond.state());
             }
         } else if cfg!(stapes_no_long_multiply) && compensate {
             (lo, hi, weighted) = raw_offset_statistics::<P>(&buf[..w], window);
@@ -903,7 +902,6 @@ where
         } else {
             0
         };
-        self.frame_start = next_start;
         if mags == 0 && offset == 0 {
             // Digital silence.
             return None;
