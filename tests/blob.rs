@@ -319,7 +319,10 @@ fn fixed_tables_refuse_a_negative_weight_and_a_foreign_log_constant() {
         };
         assert_eq!(
             negative.check(&config),
-            Err(FixedTableError::NegativeWeight { index: 3 })
+            Err(FixedTableError::Table(TableError::BadValue {
+                part: "sparse weights",
+                index: 3
+            }))
         );
     }
 }

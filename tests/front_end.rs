@@ -123,3 +123,59 @@ fn f32_samples_reach_the_fixed_path_rounded_to_16_bits_and_non_finite_ones_are_c
     a.reset();
     assert_eq!(a.non_finite_samples(), 0);
 }
+
+/// Every frame's energies and the front end's repair counts, for `f32` input.
+fn energies_f32<A: Arithmetic>(
+    tables: A::Tables<'static>,
+    samples: &[f32],
+) -> (Vec<Vec<A::Energy>>, u64, u64) {
+    let mut fe =
+        FrontEnd::<A, 256, 96, 10, Unchanged>::with_stages(tiny::CONFIG, tables, Unchanged)
+            .unwrap();
+    let mut out = Vec::new();
+    let mut rest = samples;
+    while let Some(frame) = fe.next_frame(&mut rest) {
+        out.push(frame.bands.to_vec());
+    }
+    (out, fe.non_finite_samples(), fe.clamped_samples())
+}
+
+#[test]
+fn out_of_range_f32_samples_are_clamped_and_counted_in_every_arithmetic() {
+    // Found (issue 9): ±1e30 gave 385 dB everywhere, ±3e38 the floor (the
+    // loudest input read as silence). Now each reads as full scale.
+    let x: Vec<f32> = signal(2000).iter().map(|&s| s as f32 / 32768.0).collect();
+    let mut wild = x.clone();
+    let mut limited = x.clone();
+    for (i, v, l) in [
+        (10, 1e30f32, 1.0f32),
+        (500, -3e38, -1.0),
+        (900, 1.000_001, 1.0),
+    ] {
+        wild[i] = v;
+        limited[i] = l;
+    }
+    let check = |a: (Vec<Vec<f32>>, u64, u64), b: (Vec<Vec<f32>>, u64, u64)| {
+        assert_eq!(a.0, b.0);
+        assert_eq!((a.1, a.2), (0, 3));
+        assert_eq!((b.1, b.2), (0, 0));
+    };
+    check(
+        energies_f32::<F32>(tiny::TABLE_F32_SPARSE, &wild),
+        energies_f32::<F32>(tiny::TABLE_F32_SPARSE, &limited),
+    );
+    for (a, b) in [
+        (
+            energies_f32::<Fixed16>(tiny::FIXED16_SPARSE, &wild),
+            energies_f32::<Fixed16>(tiny::FIXED16_SPARSE, &limited),
+        ),
+        (
+            energies_f32::<Fixed32>(tiny::FIXED32_SPARSE, &wild),
+            energies_f32::<Fixed32>(tiny::FIXED32_SPARSE, &limited),
+        ),
+    ] {
+        assert_eq!(a.0, b.0);
+        assert_eq!((a.1, a.2), (0, 3));
+        assert_eq!((b.1, b.2), (0, 0));
+    }
+}

@@ -119,6 +119,48 @@ fn non_finite_float_samples_are_refused() {
     assert!(e.contains("non-finite") && e.contains("sample 42"), "{e}");
 }
 
+/// Found (issue 9): finite float samples beyond full scale were accepted
+/// (±1e30 gave 385 dB), and a stereo mix of two large values overflowed to
+/// ∞ after the finiteness check.
+#[test]
+fn float_samples_beyond_full_scale_are_refused_and_mixing_cannot_overflow() {
+    let dir = tempfile::tempdir().unwrap();
+    let float_wav = |name: &str, channels: u16, values: &[f32]| {
+        let p = dir.path().join(name);
+        let spec = WavSpec {
+            channels,
+            sample_rate: 16000,
+            bits_per_sample: 32,
+            sample_format: SampleFormat::Float,
+        };
+        let mut w = WavWriter::create(&p, spec).unwrap();
+        for &v in values {
+            w.write_sample(v).unwrap();
+        }
+        w.finalize().unwrap();
+        p
+    };
+    for bad in [1e30f32, -3e38, 1.0001, -1.5] {
+        let mut v = vec![0.1f32; 100];
+        v[17] = bad;
+        let p = float_wav("loud.wav", 1, &v);
+        let e = err_text(read_wav(&p, None));
+        assert!(
+            e.contains("outside the full-scale range [-1, 1]")
+                && e.contains("sample 17")
+                && e.contains("loud.wav"),
+            "{e}"
+        );
+    }
+    // The extremes of the range mix without overflow.
+    let p = float_wav("edges.wav", 2, &[1.0, 1.0, -1.0, -1.0, 1.0, -1.0]);
+    let wav = read_wav(&p, Some(stapes_sim::wav::ChannelChoice::Mix)).unwrap();
+    let stapes_sim::run::Samples::F32(x) = wav.samples else {
+        panic!("float samples")
+    };
+    assert_eq!(x, [1.0, -1.0, 0.0]);
+}
+
 #[test]
 fn cut_or_scrambled_files_are_errors_not_panics() {
     use rand::Rng;

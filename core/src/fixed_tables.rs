@@ -113,16 +113,40 @@ pub enum FixedTableError {
         /// The most allowed (two per bin).
         most: usize,
     },
-    /// A Q15 filterbank weight is negative.
-    NegativeWeight {
-        /// Position in the weight array.
-        index: usize,
-    },
     /// The log scale constant is not the configuration's.
     LogScale {
         /// Q16 value found.
         found: i32,
         /// Q16 value the configuration's log kind needs.
+        expected: i32,
+    },
+    /// A twiddle is not a quarter-wave cosine of the FFT's size: out of
+    /// `[0, 1]` (the negative limit, −1.0, would overflow the FFT's
+    /// negation), not falling, or off `cos² + sin² = 1`.
+    BadTwiddle {
+        /// `"Q15"` or `"Q31"`.
+        precision: &'static str,
+        /// Index in the quarter-wave table.
+        index: usize,
+    },
+    /// A Q31 window coefficient is negative or disagrees with the Q15 window.
+    BadWindowQ31 {
+        /// Index.
+        index: usize,
+    },
+    /// A window-spectrum value exceeds the window's own sum (`|W(k)| ≤ W(0)`).
+    BadWindowSpectrum {
+        /// Index.
+        index: usize,
+    },
+    /// A constant disagrees with the configuration (DC pole, pre-emphasis,
+    /// floor), or the configuration's own value is outside its range.
+    Constant {
+        /// Which constant.
+        name: &'static str,
+        /// Raw bits found.
+        found: i32,
+        /// Raw bits the configuration needs (its rounding).
         expected: i32,
     },
 }
@@ -150,14 +174,35 @@ impl fmt::Display for FixedTableError {
                 "window spectrum has {found} values where an even count up to {most} is allowed: \
                  regenerate the table"
             ),
-            FixedTableError::NegativeWeight { index } => write!(
-                f,
-                "filterbank weight {index} is negative: the table is corrupt, regenerate it"
-            ),
             FixedTableError::LogScale { found, expected } => write!(
                 f,
                 "log scale constant is {found} (Q16) where the configuration's log needs {expected}: \
                  the table is corrupt or for another configuration, regenerate it"
+            ),
+            FixedTableError::BadTwiddle { precision, index } => write!(
+                f,
+                "{precision} twiddle {index} is not the quarter-wave cosine of this FFT size \
+                 (out of [0, 1], not falling, or off cos² + sin² = 1): the table is corrupt, \
+                 regenerate it"
+            ),
+            FixedTableError::BadWindowQ31 { index } => write!(
+                f,
+                "Q31 window coefficient {index} is negative or disagrees with the Q15 window: \
+                 the table is corrupt, regenerate it"
+            ),
+            FixedTableError::BadWindowSpectrum { index } => write!(
+                f,
+                "window spectrum value {index} exceeds the window's sum: the table is corrupt, \
+                 regenerate it"
+            ),
+            FixedTableError::Constant {
+                name,
+                found,
+                expected,
+            } => write!(
+                f,
+                "fixed-point constant `{name}` is {found} (raw) where the configuration needs \
+                 {expected}: the table is corrupt or for another configuration, regenerate it"
             ),
         }
     }
@@ -190,14 +235,27 @@ impl FixedTables<'_> {
                 most: config.fft_points as usize / 4,
             });
         }
-        // The mel loops read weights as unsigned.
-        let weights = match self.table.filterbank {
-            crate::table::Filterbank::Sparse { weights, .. }
-            | crate::table::Filterbank::Compact { weights, .. } => weights,
-        };
-        if let Some(index) = weights.iter().position(|&w| w < 0) {
-            return Err(FixedTableError::NegativeWeight { index });
+        // (The view's check keeps every Q15 weight and window value in
+        // [0, 1]: the filterbank reads weights as unsigned.)
+        check_twiddles(self.twiddles_q15, "Q15", 32767)?;
+        check_twiddles(self.twiddles_q31, "Q31", i32::MAX as i64)?;
+        for (index, (&w31, &w15)) in self.window_q31.iter().zip(self.table.window).enumerate() {
+            // round(w·2^31) against round(w·2^15): within one Q15 step.
+            if w31 < 0 || ((w31 as i64 + (1 << 15)) >> 16).abs_diff(w15 as i64) > 1 {
+                return Err(FixedTableError::BadWindowQ31 { index });
+            }
         }
+        // |W(k)| ≤ Σ w ≤ window_samples, in Q16: so d·W(k) fits i64 for any
+        // offset the window stage can take out (|d| < 2^30).
+        let bound = (config.window_samples as i64) << 16;
+        if let Some(index) = self
+            .window_spectrum
+            .iter()
+            .position(|&v| (v as i64).abs() > bound)
+        {
+            return Err(FixedTableError::BadWindowSpectrum { index });
+        }
+        self.check_constants(config)?;
         // The log stage's arithmetic relies on this exact constant.
         let (found, expected) = (
             self.params.log2_to_output.to_bits(),
@@ -207,6 +265,61 @@ impl FixedTables<'_> {
             return Err(FixedTableError::LogScale { found, expected });
         }
         Ok(())
+    }
+
+    /// The DC pole, pre-emphasis and floor against the configuration's
+    /// values, rounded as the generator rounds them (integer work: the
+    /// configuration's `f32` values are decoded from their bits).
+    fn check_constants(&self, config: &FeatureConfig) -> Result<(), FixedTableError> {
+        let p = self.params;
+        let wrong = |name, found: i32, expected: i32| FixedTableError::Constant {
+            name,
+            found,
+            expected,
+        };
+        // A pole and a coefficient in [0, 1] (stored below 1) keep the
+        // conditioner within its proven bounds (|out| < 2^30).
+        let expect = |v: Option<f32>, frac: u32, top: i64| -> Option<i32> {
+            match v {
+                None => Some(0),
+                // 1.0 is stored as the largest code, as the generator does.
+                Some(v) => f32_to_fixed(v, frac)
+                    .filter(|q| (0..=top).contains(q))
+                    .map(|q| q.min(top - 1) as i32),
+            }
+        };
+        let (found, name) = (p.dc_pole.to_bits(), "dc_pole");
+        match expect(config.dc_removal_pole, 31, 1 << 31) {
+            Some(e) if e == found => {}
+            e => return Err(wrong(name, found, e.unwrap_or(-1))),
+        }
+        let (found, name) = (p.pre_emphasis.to_bits() as i32, "pre_emphasis");
+        match expect(config.pre_emphasis, 15, 1 << 15) {
+            Some(e) if e == found => {}
+            e => return Err(wrong(name, found, e.unwrap_or(-1))),
+        }
+        // The floor in 1/256 output units: round(floor_db·256) for dB,
+        // round(floor_db·256·ln(10)/10) for the natural log (ln(10)/10 in
+        // Q62, exact to 2^-63; the generator rounds the same product in f64).
+        const LN10_OVER_10_Q62: i128 = 1_061_879_947_959_996_725;
+        let found = p.floor.to_bits() as i32;
+        let expected = match config.log {
+            LogKind::Decibel => f32_to_fixed(config.floor_db, 8),
+            LogKind::Natural => f32_to_fixed(config.floor_db, 32).map(|x| {
+                let product = x as i128 * LN10_OVER_10_Q62;
+                // × 2^-86 (2^-32 · 2^-62 · 2^8), halves away from zero.
+                let magnitude = (product.abs() + (1i128 << 85)) >> 86;
+                (if product < 0 { -magnitude } else { magnitude }) as i64
+            }),
+        };
+        match expected {
+            Some(e) if e == found as i64 => Ok(()),
+            e => Err(wrong(
+                "floor",
+                found,
+                e.map_or(-1, |e| e.clamp(i32::MIN as i64, i32::MAX as i64) as i32),
+            )),
+        }
     }
 
     /// Checks that the arrays one precision reads are present: the Q15
@@ -241,4 +354,68 @@ impl FixedTables<'_> {
         }
         Ok(())
     }
+}
+
+/// Checks a quarter-wave cosine table `q[j] = round(cos(2πj/N)·2^k)` with
+/// 1.0 clamped to `one = 2^k − 1` (empty: absent): `q[0] = one`,
+/// `q[N/4] = 0`, every value in `[0, one]` and falling, and
+/// `q[j]² + q[N/4 − j]²` within rounding of `2^2k` (common practice:
+/// cos² + sin² = 1).
+/// Integer work only.
+fn check_twiddles<T: Copy + Into<i64>>(
+    q: &[T],
+    precision: &'static str,
+    one: i64,
+) -> Result<(), FixedTableError> {
+    let bad = |index| Err(FixedTableError::BadTwiddle { precision, index });
+    let Some(last) = q.len().checked_sub(1) else {
+        return Ok(());
+    };
+    let v = |j: usize| -> i64 { q[j].into() };
+    for j in 0..=last {
+        let ok = (0..=one).contains(&v(j))
+            && (j == 0 || v(j) <= v(j - 1))
+            && (j != 0 || v(0) == one)
+            && (j != last || last == 0 || v(j) == 0);
+        // Each value is round(c·2^k) within ½ (1.0 clamped to one = 2^k − 1):
+        // the sum of squares lies within 2·2^k + 1 of 2^2k.
+        // With both values in [0, 2^31): the sum fits i64 (below 2^63).
+        if !ok || !(0..=one).contains(&v(last - j)) {
+            return bad(j);
+        }
+        let scale = one + 1;
+        let sum = v(j) * v(j) + v(last - j) * v(last - j);
+        if (sum - scale * scale).unsigned_abs() > (2 * scale + 1) as u64 {
+            return bad(j);
+        }
+    }
+    Ok(())
+}
+
+/// `round(v · 2^frac)` (halves away from zero) from an `f32`'s bits,
+/// integer work only; `None` for a non-finite value or one beyond `2^40`.
+pub(crate) fn f32_to_fixed(v: f32, frac: u32) -> Option<i64> {
+    let bits = v.to_bits();
+    let exp = ((bits >> 23) & 0xff) as i32;
+    if exp == 0xff {
+        return None;
+    }
+    let mantissa = (bits & 0x7f_ffff) as i64 | if exp == 0 { 0 } else { 1 << 23 };
+    // value = mantissa · 2^(max(exp, 1) − 150); scaled by 2^frac.
+    let shift = exp.max(1) - 150 + frac as i32;
+    let magnitude = if shift >= 0 {
+        if shift > 16 {
+            return None;
+        }
+        mantissa << shift
+    } else if shift <= -40 {
+        0
+    } else {
+        (mantissa + (1 << (-shift - 1))) >> -shift
+    };
+    Some(if bits >> 31 == 1 {
+        -magnitude
+    } else {
+        magnitude
+    })
 }

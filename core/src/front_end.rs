@@ -106,7 +106,7 @@ use crate::framer::Framer;
 use crate::int_log::{EMPTY_ENERGY, energy_word};
 use crate::log::{FixedLog, FloatLog};
 use crate::probe::{Stage, StageProbe};
-use crate::sample::Sample;
+use crate::sample::{Sample, SampleCounts};
 use crate::spectrum::{FixedSpectrum, SpectrumData};
 use crate::stage::FrameStage;
 use crate::table::{Filterbank, TableView};
@@ -148,7 +148,7 @@ pub trait Arithmetic: crate::sealed::Sealed + Copy + core::fmt::Debug + 'static 
     #[doc(hidden)]
     fn reset_path(path: &mut Self::Path<'_>);
     #[doc(hidden)]
-    fn non_finite(path: &Self::Path<'_>) -> u64;
+    fn counts(path: &Self::Path<'_>) -> SampleCounts;
     #[doc(hidden)]
     fn intake<X: Sample, const F: usize, const O: usize>(
         path: &mut Self::Path<'_>,
@@ -273,14 +273,22 @@ where
 
     /// Non-finite `f32` samples seen since the start (each was taken as 0).
     pub fn non_finite_samples(&self) -> u64 {
-        A::non_finite(&self.path)
+        A::counts(&self.path).non_finite
+    }
+
+    /// Finite `f32` samples outside `[-1, 1]` seen since the start (each
+    /// was clamped to ±1).
+    pub fn clamped_samples(&self) -> u64 {
+        A::counts(&self.path).clamped
     }
 
     /// Consumes samples from the front of `input` until a frame completes, and
     /// returns it; returns `None` once `input` is empty without a new frame.
     /// Call it in a loop until `None` to drain a chunk.
     ///
-    /// `f32` samples reach the fixed path rounded to 16 bits.
+    /// `f32` samples reach the fixed path rounded to 16 bits. Non-finite
+    /// samples are taken as 0, finite ones outside `[-1, 1]` clamped, both
+    /// counted ([`crate::sample`]).
     pub fn next_frame<X: Sample>(&mut self, input: &mut &[X]) -> Option<Frame<'_, S::Out>> {
         self.next_frame_probed(input, &mut ())
     }
@@ -344,7 +352,7 @@ where
 pub struct FloatPath<'t> {
     table: TableView<'t, f32>,
     conditioner: FloatConditioner,
-    non_finite: u64,
+    counts: SampleCounts,
 }
 
 impl Arithmetic for F32 {
@@ -376,17 +384,17 @@ impl Arithmetic for F32 {
         Ok(FloatPath {
             table,
             conditioner: FloatConditioner::new(config.dc_removal_pole, config.pre_emphasis),
-            non_finite: 0,
+            counts: SampleCounts::default(),
         })
     }
 
     fn reset_path(path: &mut FloatPath<'_>) {
         path.conditioner.reset();
-        path.non_finite = 0;
+        path.counts = SampleCounts::default();
     }
 
-    fn non_finite(path: &FloatPath<'_>) -> u64 {
-        path.non_finite
+    fn counts(path: &FloatPath<'_>) -> SampleCounts {
+        path.counts
     }
 
     #[inline]
@@ -397,9 +405,11 @@ impl Arithmetic for F32 {
     ) -> bool {
         // Conditioning runs on the stream as it arrives.
         let conditioner = &mut path.conditioner;
-        let non_finite = &mut path.non_finite;
+        let counts = &mut path.counts;
         framer.fill_block_from(input, |src: &[X], dst: &mut [f32]| {
-            *non_finite += X::to_unit_f32_slice(src, dst);
+            let c = X::to_unit_f32_slice(src, dst);
+            counts.non_finite += c.non_finite;
+            counts.clamped += c.clamped;
             conditioner.run_in_place(dst);
         })
     }
@@ -510,7 +520,7 @@ macro_rules! fixed_arithmetic {
             twiddles: &'t [<$data as BfpSample>::Twiddle],
             window: FixedWindowing<'t, $p>,
             spectrum: FixedSpectrum<'t>,
-            non_finite: u64,
+            counts: SampleCounts,
         }
 
         impl Arithmetic for $p {
@@ -544,17 +554,17 @@ macro_rules! fixed_arithmetic {
                     twiddles: tables.$twiddles,
                     window,
                     spectrum,
-                    non_finite: 0,
+                    counts: SampleCounts::default(),
                 })
             }
 
             fn reset_path(path: &mut $path<'_>) {
                 path.window.reset();
-                path.non_finite = 0;
+                path.counts = SampleCounts::default();
             }
 
-            fn non_finite(path: &$path<'_>) -> u64 {
-                path.non_finite
+            fn counts(path: &$path<'_>) -> SampleCounts {
+                path.counts
             }
 
             #[inline]
@@ -564,10 +574,11 @@ macro_rules! fixed_arithmetic {
                 input: &mut &[X],
             ) -> bool {
                 // Raw samples are stored; conditioning runs at frame time.
-                let non_finite = &mut path.non_finite;
+                let counts = &mut path.counts;
                 framer.fill_from(input, |x: X| {
+                    counts.clamped += x.out_of_range() as u64;
                     <$data as FrameData>::from_raw(x.to_q15().unwrap_or_else(|| {
-                        *non_finite += 1;
+                        counts.non_finite += 1;
                         0
                     }))
                 })

@@ -34,14 +34,42 @@ use crate::config::{BandGain, FeatureConfig, TrianglePlacement};
 pub trait WeightType: Copy + bytemuck::Pod + PartialEq + fmt::Debug + 'static {
     /// Per-band gain representation for this weight type.
     type Gain: Copy + bytemuck::Pod + PartialEq + fmt::Debug + 'static;
+    /// Whether a window coefficient or filterbank weight lies in `[0, 1]`
+    /// (integer work only, also for `f32`: its bits are compared).
+    fn is_unit(self) -> bool;
+    /// Whether a band gain is legal.
+    fn is_gain(g: Self::Gain) -> bool;
 }
 
 impl WeightType for f32 {
     type Gain = f32;
+    #[inline]
+    fn is_unit(self) -> bool {
+        // +0.0 ..= 1.0 are the bit patterns 0 ..= 0x3f80_0000 (subnormals
+        // included); −0.0 is 0x8000_0000. NaN and ∞ are outside.
+        let b = self.to_bits();
+        b <= 0x3f80_0000 || b == 0x8000_0000
+    }
+    #[inline]
+    fn is_gain(g: f32) -> bool {
+        // Finite and positive: 1 ..< 0x7f80_0000 (∞).
+        (1..0x7f80_0000).contains(&g.to_bits())
+    }
 }
 
 impl WeightType for i16 {
+    /// A log offset in 1/256 of the output unit (the fixed log adds it
+    /// saturating, so every value is legal).
     type Gain = i16;
+    #[inline]
+    fn is_unit(self) -> bool {
+        // Q15: 0 ..= 32767.
+        self >= 0
+    }
+    #[inline]
+    fn is_gain(_: i16) -> bool {
+        true
+    }
 }
 
 /// `[first_bin, bin_count]` of one band in the sparse form.
@@ -158,6 +186,14 @@ pub enum TableError {
         /// Whether the configuration expects gains.
         expected: bool,
     },
+    /// A value outside its legal range: a window coefficient or weight
+    /// outside `[0, 1]` (or not finite), a gain not finite and positive.
+    BadValue {
+        /// Which part.
+        part: &'static str,
+        /// The value's index in it.
+        index: usize,
+    },
 }
 
 impl fmt::Display for TableError {
@@ -196,6 +232,12 @@ impl fmt::Display for TableError {
                 f,
                 "the table carries band gains but the configuration has peak-one bands: \
                  regenerate the table"
+            ),
+            TableError::BadValue { part, index } => write!(
+                f,
+                "table part `{part}` value {index} is outside its legal range (window and \
+                 weights in [0, 1], gains finite and positive): the table is corrupt, \
+                 regenerate it"
             ),
         }
     }
@@ -271,6 +313,24 @@ impl<'a, W: WeightType> TableView<'a, W> {
                     expected: wants_gains,
                 });
             }
+        }
+        // Values: what the per-frame path relies on (no overflow, no NaN).
+        let unit = |part, values: &[W]| match values.iter().position(|&v| !v.is_unit()) {
+            Some(index) => Err(TableError::BadValue { part, index }),
+            None => Ok(()),
+        };
+        unit("window", self.window)?;
+        match self.filterbank {
+            Filterbank::Sparse { weights, .. } => unit("sparse weights", weights)?,
+            Filterbank::Compact { weights, .. } => unit("compact weights", weights)?,
+        }
+        if let Some(gains) = self.band_gains
+            && let Some(index) = gains.iter().position(|&g| !W::is_gain(g))
+        {
+            return Err(TableError::BadValue {
+                part: "band gains",
+                index,
+            });
         }
         Ok(())
     }

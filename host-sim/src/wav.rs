@@ -2,8 +2,8 @@
 //!
 //! Accepted: 16-bit PCM and 32-bit float, mono; stereo when a channel choice is
 //! given. Anything else, a sample rate other than the configuration's, a
-//! truncated file or a non-finite float sample is an error that says what to
-//! change. Nothing is resampled.
+//! truncated file, or a float sample that is non-finite or outside `[-1, 1]`
+//! is an error that says what to change. Nothing is resampled.
 
 use std::path::Path;
 
@@ -117,13 +117,27 @@ pub fn read_wav(path: &Path, channel: Option<ChannelChoice>) -> Result<WavInput>
                     i / channels
                 );
             }
+            // Full scale is ±1.0: a board clamps such samples (and counts
+            // them); a tool preparing training data refuses them.
+            if let Some(i) = raw.iter().position(|v| !(-1.0..=1.0).contains(v)) {
+                bail!(
+                    "{} holds a float sample of {} at sample {} (channel-interleaved \
+                     index {i}), outside the full-scale range [-1, 1]: normalise or \
+                     re-export the recording",
+                    path.display(),
+                    raw[i],
+                    i / channels
+                );
+            }
             Samples::F32(match pick {
                 None => raw,
                 Some(ChannelChoice::Left) => raw.chunks_exact(2).map(|p| p[0]).collect(),
                 Some(ChannelChoice::Right) => raw.chunks_exact(2).map(|p| p[1]).collect(),
-                Some(ChannelChoice::Mix) => {
-                    raw.chunks_exact(2).map(|p| (p[0] + p[1]) * 0.5).collect()
-                }
+                // Halved first: no sum can overflow.
+                Some(ChannelChoice::Mix) => raw
+                    .chunks_exact(2)
+                    .map(|p| p[0] * 0.5 + p[1] * 0.5)
+                    .collect(),
             })
         }
         (format, bits) => bail!(
