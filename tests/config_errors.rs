@@ -308,3 +308,47 @@ fn flags_override_and_are_validated() {
     };
     assert!(format!("{:#}", bad.resolve().unwrap_err()).contains("power, magnitude"));
 }
+
+/// Found (issue 9): a file based on dsr8k-23 could not switch its DC removal
+/// or pre-emphasis off, and TOML errors named neither the key nor the line.
+#[test]
+fn toml_files_switch_conditioning_off_and_errors_name_key_and_line() {
+    use stapes_sim::config_source::from_toml;
+    let (_, c, _) = from_toml(
+        "base_preset = \"dsr8k-23\"\ndc_removal_pole = \"off\"\npre_emphasis = \"off\"\n",
+        "off.toml",
+        "off".into(),
+    )
+    .unwrap();
+    assert_eq!((c.dc_removal_pole, c.pre_emphasis), (None, None));
+    let (_, c, _) = from_toml(
+        "base_preset = \"speech16k-40\"\npre_emphasis = 0.9\n",
+        "p.toml",
+        "p".into(),
+    )
+    .unwrap();
+    assert_eq!(c.pre_emphasis, Some(0.9));
+    let e = from_toml(
+        "base_preset = \"dsr8k-23\"\npre_emphasis = \"loud\"\n",
+        "x.toml",
+        "x".into(),
+    )
+    .unwrap_err()
+    .to_string();
+    assert!(e.contains("pre_emphasis") && e.contains("off"), "{e}");
+    let e = from_toml(
+        "base_preset = \"speech16k-40\"\nbands = 4294967296\n",
+        "big.toml",
+        "big".into(),
+    )
+    .unwrap_err()
+    .to_string();
+    assert!(
+        e.contains("big.toml") && e.contains("line 2") && e.contains("bands"),
+        "{e}"
+    );
+    let e = from_toml("bands = 40\nbands = 41\n", "dup.toml", "dup".into())
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("line 2") && e.contains("bands"), "{e}");
+}

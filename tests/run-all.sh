@@ -37,6 +37,9 @@ cargo fmt --all --check
 step "tests: generator, core, reference, CLI, speech corpus, golden bits, float-free proof, firmware under QEMU (overflow checks on)"
 cargo test --workspace
 
+step "fuzzing: blob (raw and repaired), configuration, WAV reader, streaming; ${STAPES_FUZZ_SECONDS:-30} s each"
+bash tests/fuzz/run.sh
+
 step "no_std: stapes-core alone for Cortex-M0 (thumbv6m) and Cortex-M4F (thumbv7em)"
 for target in thumbv6m-none-eabi thumbv7em-none-eabihf; do
   cargo build -p stapes-core --release --target "$target" --features fft-512

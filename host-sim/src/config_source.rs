@@ -147,8 +147,8 @@ struct ConfigFile {
     fft_points: Option<u32>,
     hop_samples: Option<u32>,
     window: Option<String>,
-    dc_removal_pole: Option<f32>,
-    pre_emphasis: Option<f32>,
+    dc_removal_pole: Option<NumberOrOff>,
+    pre_emphasis: Option<NumberOrOff>,
     bands: Option<u32>,
     low_edge_hz: Option<f32>,
     high_edge_hz: Option<f32>,
@@ -480,6 +480,23 @@ pub fn describe(config: &FeatureConfig) -> Vec<(&'static str, String)> {
     ]
 }
 
+/// A coefficient in a configuration file: a number, or `"off"`.
+#[derive(Debug, Clone, serde::Deserialize)]
+#[serde(untagged)]
+enum NumberOrOff {
+    Number(f32),
+    Text(String),
+}
+
+impl NumberOrOff {
+    fn value(&self, field: &str) -> Result<Option<f32>> {
+        match self {
+            NumberOrOff::Number(v) => Ok(Some(*v)),
+            NumberOrOff::Text(t) => on_off(field, t),
+        }
+    }
+}
+
 fn on_off(field: &str, text: &str) -> Result<Option<f32>> {
     if text == "off" {
         return Ok(None);
@@ -492,16 +509,23 @@ fn on_off(field: &str, text: &str) -> Result<Option<f32>> {
 fn from_file(path: &Path) -> Result<(String, FeatureConfig, Option<(Vec<f32>, Vec<f32>)>)> {
     let text = std::fs::read_to_string(path)
         .with_context(|| format!("cannot read configuration file {}", path.display()))?;
-    let file: ConfigFile = toml::from_str(&text).map_err(|e| {
-        anyhow!(
-            "configuration file {} is not valid: {}",
-            path.display(),
-            e.message()
-        )
-    })?;
     let stem = path
         .file_stem()
         .map_or("custom".into(), |s| s.to_string_lossy().into_owned());
+    from_toml(&text, &path.display().to_string(), stem)
+}
+
+/// A configuration file's text (`source` names it in errors; `stem` names
+/// the configuration): the configuration, not yet validated, and its
+/// normalisation statistics if it gives them.
+pub fn from_toml(
+    text: &str,
+    source: &str,
+    stem: String,
+) -> Result<(String, FeatureConfig, Option<(Vec<f32>, Vec<f32>)>)> {
+    // The parser's own report names the line, the column and the key.
+    let file: ConfigFile = toml::from_str(text)
+        .map_err(|e| anyhow!("configuration file {source} is not valid: {e}"))?;
     let mut c = match &file.base_preset {
         Some(name) => preset(name)?,
         None => {
@@ -522,7 +546,7 @@ fn from_file(path: &Path) -> Result<(String, FeatureConfig, Option<(Vec<f32>, Ve
                 bail!(
                     "configuration file {} lacks {}: give them, or start from a preset with \
                      base_preset = \"speech16k-40\"",
-                    path.display(),
+                    source,
                     missing.join(", ")
                 );
             }
@@ -550,10 +574,10 @@ fn from_file(path: &Path) -> Result<(String, FeatureConfig, Option<(Vec<f32>, Ve
         c.pre_emphasis = None;
     }
     if let Some(v) = file.dc_removal_pole {
-        c.dc_removal_pole = Some(v);
+        c.dc_removal_pole = v.value("dc_removal_pole")?;
     }
     if let Some(v) = file.pre_emphasis {
-        c.pre_emphasis = Some(v);
+        c.pre_emphasis = v.value("pre_emphasis")?;
     }
     apply_names(
         &mut c,

@@ -70,7 +70,18 @@ fn describe_hound(path: &Path, e: hound::Error) -> anyhow::Error {
 
 /// Reads `path`, picking a channel of a stereo file with `channel`.
 pub fn read_wav(path: &Path, channel: Option<ChannelChoice>) -> Result<WavInput> {
-    let mut reader = WavReader::open(path).map_err(|e| describe_hound(path, e))?;
+    let file =
+        std::fs::File::open(path).map_err(|e| anyhow!("cannot read {}: {e}", path.display()))?;
+    read_wav_from(std::io::BufReader::new(file), path, channel)
+}
+
+/// [`read_wav`] from any reader (`path` names it in errors).
+pub fn read_wav_from<R: std::io::Read>(
+    source: R,
+    path: &Path,
+    channel: Option<ChannelChoice>,
+) -> Result<WavInput> {
+    let mut reader = WavReader::new(source).map_err(|e| describe_hound(path, e))?;
     let spec = reader.spec();
     let channels = spec.channels as usize;
     let pick = match (channels, channel) {

@@ -1,5 +1,7 @@
 //! Helpers shared by the integration tests.
 
+pub mod fuzzing;
+
 use rand::{Rng, SeedableRng};
 use rand_pcg::Pcg64Mcg;
 use stapes_core::config::FeatureConfig;
