@@ -352,3 +352,24 @@ fn toml_files_switch_conditioning_off_and_errors_name_key_and_line() {
         .to_string();
     assert!(e.contains("line 2") && e.contains("bands"), "{e}");
 }
+
+/// Found (issue 9): the advice for an FFT size that is not a power of two
+/// suggested sizes outside 16–4096 ("use 1 or 2" for 0).
+#[test]
+fn fft_size_advice_stays_within_the_allowed_range() {
+    use stapes_core::presets::SPEECH16K_40;
+    for (points, advice) in [
+        (0u32, "use 16 (allowed"),
+        (3, "use 16 (allowed"),
+        (500, "use 256 or 512"),
+        (5000, "use 4096 (allowed"),
+        (u32::MAX, "use 4096 (allowed"),
+    ] {
+        let c = stapes_core::FeatureConfig {
+            fft_points: points,
+            ..SPEECH16K_40
+        };
+        let e = c.validate().unwrap_err().to_string();
+        assert!(e.contains(advice), "{points}: {e}");
+    }
+}

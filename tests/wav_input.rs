@@ -187,3 +187,80 @@ fn cut_or_scrambled_files_are_errors_not_panics() {
         }
     }
 }
+
+/// Found (issue 9): a valid file with an odd-length unknown chunk (and the
+/// pad byte RIFF requires after it) was refused with "Failed to read enough
+/// bytes"; a zero-byte file and a rate of 0 got unhelpful messages.
+#[test]
+fn odd_length_chunks_are_skipped_with_their_pad_byte_and_empty_or_rateless_files_are_named() {
+    let dir = tempfile::tempdir().unwrap();
+    // RIFF layout (common practice): "RIFF" size "WAVE", then chunks of id,
+    // little-endian size and body, an odd body followed by one pad byte.
+    let wav = |chunks: &[(&[u8; 4], Vec<u8>)]| {
+        let mut body = b"WAVE".to_vec();
+        for (id, data) in chunks {
+            body.extend_from_slice(*id);
+            body.extend_from_slice(&(data.len() as u32).to_le_bytes());
+            body.extend_from_slice(data);
+            if data.len() % 2 == 1 {
+                body.push(0);
+            }
+        }
+        let mut out = b"RIFF".to_vec();
+        out.extend_from_slice(&(body.len() as u32).to_le_bytes());
+        out.extend_from_slice(&body);
+        out
+    };
+    let fmt = |rate: u32| {
+        let mut f = Vec::new();
+        for v in [1u16, 1] {
+            f.extend_from_slice(&v.to_le_bytes());
+        }
+        f.extend_from_slice(&rate.to_le_bytes());
+        f.extend_from_slice(&(rate * 2).to_le_bytes());
+        for v in [2u16, 16] {
+            f.extend_from_slice(&v.to_le_bytes());
+        }
+        f
+    };
+    let samples: Vec<i16> = (0..200).map(|i| i * 37 - 3000).collect();
+    let data: Vec<u8> = samples.iter().flat_map(|s| s.to_le_bytes()).collect();
+    let p = dir.path().join("odd.wav");
+    std::fs::write(
+        &p,
+        wav(&[
+            (b"fmt ", fmt(16000)),
+            (b"LIST", b"INFOabc".to_vec()),
+            (b"data", data.clone()),
+        ]),
+    )
+    .unwrap();
+    let got = read_wav(&p, None).unwrap();
+    assert_eq!(got.sample_rate_hz, 16000);
+    let stapes_sim::run::Samples::I16(x) = got.samples else {
+        panic!("16-bit samples")
+    };
+    assert_eq!(x, samples);
+    // An odd chunk before the format chunk too.
+    std::fs::write(
+        &p,
+        wav(&[
+            (b"junk", vec![1, 2, 3]),
+            (b"fmt ", fmt(16000)),
+            (b"data", data.clone()),
+        ]),
+    )
+    .unwrap();
+    assert!(read_wav(&p, None).is_ok());
+    let empty = dir.path().join("empty.wav");
+    std::fs::write(&empty, b"").unwrap();
+    let e = err_text(read_wav(&empty, None));
+    assert!(e.contains("empty.wav is empty (0 bytes)"), "{e}");
+    let rateless = dir.path().join("rate0.wav");
+    std::fs::write(&rateless, wav(&[(b"fmt ", fmt(0)), (b"data", data)])).unwrap();
+    let e = err_text(read_wav(&rateless, None));
+    assert!(
+        e.contains("rate0.wav") && e.contains("sample rate of 0 Hz"),
+        "{e}"
+    );
+}

@@ -271,12 +271,25 @@ impl fmt::Display for ConfigError {
                 f,
                 "`{field}` = {value} is out of range: allowed {min} to {max}; {fix}"
             ),
-            ConfigError::FftNotPowerOfTwo { fft_points } => write!(
-                f,
-                "`fft_points` = {fft_points} is not a power of two; use {} or {}",
-                prev_pow2(fft_points),
-                prev_pow2(fft_points).saturating_mul(2)
-            ),
+            ConfigError::FftNotPowerOfTwo { fft_points } => {
+                // The neighbouring powers of two within the allowed range.
+                let (min, max) = (MIN_FFT_POINTS as u32, MAX_FFT_POINTS as u32);
+                let below = prev_pow2(fft_points).clamp(min, max);
+                let above = prev_pow2(fft_points).saturating_mul(2).clamp(min, max);
+                if below == above {
+                    write!(
+                        f,
+                        "`fft_points` = {fft_points} is not a power of two; use {below} \
+                         (allowed: powers of two from {min} to {max})"
+                    )
+                } else {
+                    write!(
+                        f,
+                        "`fft_points` = {fft_points} is not a power of two; use {below} or \
+                         {above} (allowed: powers of two from {min} to {max})"
+                    )
+                }
+            }
             ConfigError::FftSmallerThanWindow {
                 fft_points,
                 window_samples,

@@ -58,34 +58,34 @@ pub struct ConfigArgs {
     #[arg(long, value_name = "FILE")]
     pub config: Option<PathBuf>,
     /// Override: sample rate in Hz.
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", allow_negative_numbers = true)]
     pub sample_rate_hz: Option<u32>,
     /// Override: samples per frame.
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_negative_numbers = true)]
     pub window_samples: Option<u32>,
     /// Override: FFT length (power of two, at least the window).
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_negative_numbers = true)]
     pub fft_points: Option<u32>,
     /// Override: samples between frame starts.
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_negative_numbers = true)]
     pub hop_samples: Option<u32>,
     /// Override: window shape (hann, hann-periodic, hamming, hamming-periodic, rectangular).
     #[arg(long, value_name = "SHAPE")]
     pub window: Option<String>,
     /// Override: DC removal pole in [0, 1); "off" disables.
-    #[arg(long, value_name = "POLE|off")]
+    #[arg(long, value_name = "POLE|off", allow_hyphen_values = true)]
     pub dc_removal_pole: Option<String>,
     /// Override: pre-emphasis coefficient in [0, 1); "off" disables.
-    #[arg(long, value_name = "COEF|off")]
+    #[arg(long, value_name = "COEF|off", allow_hyphen_values = true)]
     pub pre_emphasis: Option<String>,
     /// Override: number of mel bands.
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_negative_numbers = true)]
     pub bands: Option<u32>,
     /// Override: lower edge of the first band in Hz.
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", allow_negative_numbers = true)]
     pub low_edge_hz: Option<f32>,
     /// Override: upper edge of the last band in Hz.
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", allow_negative_numbers = true)]
     pub high_edge_hz: Option<f32>,
     /// Override: mel formula (oshaughnessy, slaney).
     #[arg(long, value_name = "FORMULA")]
@@ -109,7 +109,7 @@ pub struct ConfigArgs {
     #[arg(long, value_name = "on|off")]
     pub pcen: Option<String>,
     /// Stage: floor each frame this many dB below its loudest value; "off" disables.
-    #[arg(long, value_name = "DB|off")]
+    #[arg(long, value_name = "DB|off", allow_hyphen_values = true)]
     pub range_floor_db: Option<String>,
     /// Stage: MFCC with this many coefficients; "off" disables.
     #[arg(long, value_name = "K|off")]
@@ -685,6 +685,31 @@ impl ConfigArgs {
             config: c,
             statistics,
         })
+    }
+
+    /// The flags given that change a configuration (`--preset` and
+    /// `--config` included), as they are spelt on the command line.
+    pub fn given(&self) -> Vec<&'static str> {
+        let mut out = Vec::new();
+        macro_rules! given {
+            ($($f:ident => $flag:literal),* $(,)?) => {
+                $(if self.$f.is_some() {
+                    out.push($flag);
+                })*
+            };
+        }
+        given!(
+            preset => "--preset", config => "--config",
+            sample_rate_hz => "--sample-rate-hz", window_samples => "--window-samples",
+            fft_points => "--fft-points", hop_samples => "--hop-samples", window => "--window",
+            dc_removal_pole => "--dc-removal-pole", pre_emphasis => "--pre-emphasis",
+            bands => "--bands", low_edge_hz => "--low-edge-hz", high_edge_hz => "--high-edge-hz",
+            mel_scale => "--mel-scale", triangles => "--triangles", band_gain => "--band-gain",
+            spectrum => "--spectrum", log => "--log", floor_db => "--floor-db", pcen => "--pcen",
+            range_floor_db => "--range-floor-db", mfcc => "--mfcc", lifter => "--lifter",
+            quantise => "--quantise", model_window => "--model-window",
+        );
+        out
     }
 
     /// Arguments selecting a named preset and nothing else.

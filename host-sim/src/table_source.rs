@@ -1,7 +1,7 @@
 //! Where a command's tables come from: generated from a configuration, or
 //! read from a checked blob (`--table-blob`).
 
-use anyhow::{Context, Result, anyhow};
+use anyhow::{Context, Result, anyhow, bail};
 use stapes_core::blob::TableBlob;
 use stapes_core::config::FeatureConfig;
 use stapes_core::fixed_tables::FixedTables;
@@ -25,6 +25,17 @@ impl LoadedTables {
     pub fn load(config: &ConfigArgs, input: &InputArgs) -> Result<LoadedTables> {
         match &input.table_blob {
             Some(path) => {
+                let given = config.given();
+                if !given.is_empty() {
+                    bail!(
+                        "--table-blob {} carries its own configuration, so {} would be \
+                         ignored: drop {}, or generate tables for the changed configuration \
+                         with `stapes tables` and pass that blob",
+                        path.display(),
+                        given.join(", "),
+                        if given.len() == 1 { "it" } else { "them" }
+                    );
+                }
                 let bytes = std::fs::read(path)
                     .with_context(|| format!("cannot read table blob {}", path.display()))?;
                 let mut words = vec![0u32; bytes.len().div_ceil(4)];

@@ -75,14 +75,64 @@ pub fn read_wav(path: &Path, channel: Option<ChannelChoice>) -> Result<WavInput>
     read_wav_from(std::io::BufReader::new(file), path, channel)
 }
 
+/// The RIFF chunks the decoder needs, in a layout it reads: `fmt ` and
+/// `data` (its declared length kept, so a truncated file is still refused),
+/// every other chunk skipped with the pad byte RIFF puts after an odd-length
+/// chunk (the decoder itself does not skip that byte).
+fn essential_chunks(bytes: &[u8], path: &Path) -> Result<Vec<u8>> {
+    if bytes.is_empty() {
+        bail!(
+            "{} is empty (0 bytes): give a RIFF/WAVE file with 16-bit PCM or 32-bit float samples",
+            path.display()
+        );
+    }
+    if bytes.len() < 12 || &bytes[..4] != b"RIFF" || &bytes[8..12] != b"WAVE" {
+        // Not RIFF/WAVE: the decoder's own message says so.
+        return Ok(bytes.to_vec());
+    }
+    let mut out = b"RIFF\0\0\0\0WAVE".to_vec();
+    let mut at = 12usize;
+    while at + 8 <= bytes.len() {
+        let id = &bytes[at..at + 4];
+        let size = u32::from_le_bytes(bytes[at + 4..at + 8].try_into().unwrap()) as usize;
+        let body = at + 8;
+        let end = body.saturating_add(size).min(bytes.len());
+        if id == b"fmt " || id == b"data" {
+            out.extend_from_slice(&bytes[at..end]);
+            if id == b"data" {
+                break;
+            }
+            if size % 2 == 1 {
+                out.push(0);
+            }
+        }
+        at = body.saturating_add(size).saturating_add(size % 2);
+    }
+    let riff = (out.len() - 8) as u32;
+    out[4..8].copy_from_slice(&riff.to_le_bytes());
+    Ok(out)
+}
+
 /// [`read_wav`] from any reader (`path` names it in errors).
 pub fn read_wav_from<R: std::io::Read>(
-    source: R,
+    mut source: R,
     path: &Path,
     channel: Option<ChannelChoice>,
 ) -> Result<WavInput> {
-    let mut reader = WavReader::new(source).map_err(|e| describe_hound(path, e))?;
+    let mut bytes = Vec::new();
+    source
+        .read_to_end(&mut bytes)
+        .map_err(|e| anyhow!("cannot read {}: {e}", path.display()))?;
+    let bytes = essential_chunks(&bytes, path)?;
+    let mut reader =
+        WavReader::new(std::io::Cursor::new(bytes)).map_err(|e| describe_hound(path, e))?;
     let spec = reader.spec();
+    if spec.sample_rate == 0 {
+        bail!(
+            "{} declares a sample rate of 0 Hz: its header is corrupt; re-export the recording",
+            path.display()
+        );
+    }
     let channels = spec.channels as usize;
     let pick = match (channels, channel) {
         (1, _) => None,

@@ -62,3 +62,28 @@ fn unusable_input_exits_two_with_the_reason() {
     assert!(err.contains("/nonexistent.wav"), "{err}");
     assert!(!dir.path().join("x.npy").exists());
 }
+
+/// Found (issue 9): overrides beside `--table-blob` were accepted and ignored;
+/// negative numbers needed `=`.
+#[test]
+fn overrides_beside_a_table_blob_are_refused_and_negative_values_parse() {
+    let dir = tempfile::tempdir().unwrap();
+    let t = GeneratedTables::new(&stapes_core::presets::TINY16K_10);
+    let path = dir.path().join("tiny.bin");
+    std::fs::write(&path, blob(&t, BlobContents::ALL)).unwrap();
+    let (code, _, err) = stapes(&[
+        "check",
+        "--table-blob",
+        path.to_str().unwrap(),
+        "--bands",
+        "10",
+    ]);
+    assert_eq!(code, 2);
+    assert!(err.contains("--bands would be ignored"), "{err}");
+    let (code, _, err) = stapes(&["check", "--preset", "tiny16k-10", "--low-edge-hz", "-5"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("low_edge_hz") && !err.contains("unexpected argument"),
+        "{err}"
+    );
+}
