@@ -261,3 +261,36 @@ fn speed_measures_every_arithmetic() {
         .to_string();
     assert!(err.contains("--seconds"), "{err}");
 }
+
+/// Found (issue 9): `tables` wrote `.rs`, `.h` and `.bin` one after another,
+/// so a failure on the `.h` left a new `.rs` beside an old `.bin` of another
+/// fingerprint. Now the set is written all or nothing.
+#[test]
+fn tables_are_written_all_or_nothing() {
+    use stapes_sim::emit::{BlobContents, write_all};
+    let dir = tempfile::tempdir().unwrap();
+    let old = GeneratedTables::new(&stapes_core::presets::TINY16K_10);
+    write_all(&old, "set", dir.path(), "test", BlobContents::ALL).unwrap();
+    let before: Vec<Vec<u8>> = ["set.rs", "set.bin"]
+        .iter()
+        .map(|f| std::fs::read(dir.path().join(f)).unwrap())
+        .collect();
+    // The header's place is taken by a folder: its move must fail.
+    std::fs::remove_file(dir.path().join("set.h")).unwrap();
+    std::fs::create_dir(dir.path().join("set.h")).unwrap();
+    std::fs::write(dir.path().join("set.h").join("keep"), b"x").unwrap();
+    let new = GeneratedTables::new(&stapes_core::presets::SPEECH16K_40);
+    let e = write_all(&new, "set", dir.path(), "test", BlobContents::ALL).unwrap_err();
+    assert!(format!("{e:#}").contains("set.h"), "{e:#}");
+    let after: Vec<Vec<u8>> = ["set.rs", "set.bin"]
+        .iter()
+        .map(|f| std::fs::read(dir.path().join(f)).unwrap())
+        .collect();
+    assert!(before == after, "a failed set changed the other files");
+    // Nothing else is left behind.
+    let names: Vec<String> = std::fs::read_dir(dir.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    assert_eq!(names.len(), 3, "{names:?}");
+}

@@ -101,15 +101,33 @@ fn load_input(
     config: &FeatureConfig,
 ) -> Result<(String, Samples)> {
     match input {
-        Some(path) => Ok((
-            path.display().to_string(),
-            read_wav_for(path, input_args.channel, config.sample_rate_hz)?,
-        )),
+        Some(path) => {
+            let samples = read_wav_for(path, input_args.channel, config.sample_rate_hz)?;
+            at_least_one_frame(path, &samples, config)?;
+            Ok((path.display().to_string(), samples))
+        }
         None => {
             let clip = demo_clip(config.sample_rate_hz, DEMO_SEED);
             Ok(("the demo clip".into(), Samples::I16(clip.samples)))
         }
     }
+}
+
+/// An input shorter than one window has no frame: nothing to compare or
+/// write, which is an error, not a pass.
+fn at_least_one_frame(path: &Path, samples: &Samples, config: &FeatureConfig) -> Result<()> {
+    if samples.len() < config.window_samples as usize {
+        anyhow::bail!(
+            "{} holds {} samples, fewer than one window ({} samples at {} Hz): it has no \
+             frame; give a recording of at least {:.3} s",
+            path.display(),
+            samples.len(),
+            config.window_samples,
+            config.sample_rate_hz,
+            config.window_samples as f64 / config.sample_rate_hz as f64
+        );
+    }
+    Ok(())
 }
 
 fn tables(a: &TablesArgs) -> Result<Outcome> {
@@ -330,6 +348,7 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
     let loaded = LoadedTables::load(&a.config, &a.input_args)?;
     let config = loaded.config()?;
     let samples = read_wav_for(&a.input, a.input_args.channel, config.sample_rate_hz)?;
+    at_least_one_frame(&a.input, &samples, &config)?;
     let chunk = if a.input_args.chunk_samples == 0 {
         samples.len().max(1)
     } else {

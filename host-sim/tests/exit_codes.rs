@@ -87,3 +87,37 @@ fn overrides_beside_a_table_blob_are_refused_and_negative_values_parse() {
         "{err}"
     );
 }
+
+/// Found (issue 9): `check` on an input shorter than one window reported
+/// "over 0 values … PASS" and exited 0.
+#[test]
+fn an_input_shorter_than_one_window_is_an_error() {
+    let dir = tempfile::tempdir().unwrap();
+    let wav = dir.path().join("short.wav");
+    stapes_sim::wav::write_wav_i16(&wav, 16000, &[100i16; 300]).unwrap();
+    let (code, out, err) = stapes(&[
+        "check",
+        "--preset",
+        "speech16k-40",
+        "--input",
+        wav.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 2, "{out}");
+    assert!(
+        err.contains("short.wav holds 300 samples, fewer than one window (512"),
+        "{err}"
+    );
+    let npy = dir.path().join("f.npy");
+    let (code, _, err) = stapes(&[
+        "features",
+        "--preset",
+        "speech16k-40",
+        "--input",
+        wav.to_str().unwrap(),
+        "--output",
+        npy.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 2);
+    assert!(err.contains("fewer than one window"), "{err}");
+    assert!(!npy.exists());
+}

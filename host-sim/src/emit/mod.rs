@@ -13,7 +13,7 @@ pub use c_header::c_header;
 pub use rust_source::rust_source;
 
 use crate::generate::GeneratedTables;
-use crate::output::write_atomic;
+use crate::output::write_set_atomic;
 
 /// The files written for one configuration.
 #[derive(Debug, Clone)]
@@ -55,12 +55,14 @@ pub fn write_all(
     let header = dir.join(format!("{name}.h"));
     let blob_path = dir.join(format!("{name}.bin"));
     let bytes = blob(tables, contents);
-    write_atomic(&rust, rust_source(tables, command).as_bytes())?;
-    write_atomic(
-        &header,
-        c_header(tables, &c_prefix(name), command).as_bytes(),
-    )?;
-    write_atomic(&blob_path, &bytes)?;
+    // The three describe one configuration: all of them, or none.
+    let source = rust_source(tables, command);
+    let c = c_header(tables, &c_prefix(name), command);
+    write_set_atomic(&[
+        (&rust, source.as_bytes()),
+        (&header, c.as_bytes()),
+        (&blob_path, &bytes),
+    ])?;
     Ok(WrittenTables {
         rust,
         header,
