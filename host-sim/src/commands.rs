@@ -398,13 +398,13 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
         )?;
         (frames, format!("float32, {}", unit(&config)))
     };
-    let values: Vec<f32> = frames.iter().flatten().copied().collect();
-    let (lo, hi) = values
-        .iter()
-        .fold((f32::INFINITY, f32::NEG_INFINITY), |(l, h), &v| {
-            (l.min(v), h.max(v))
-        });
-    let mean = values.iter().map(|&v| v as f64).sum::<f64>() / values.len().max(1) as f64;
+    // Statistics straight from the frames (no second copy of the output).
+    let values = || frames.iter().flatten();
+    let count = values().count();
+    let (lo, hi) = values().fold((f32::INFINITY, f32::NEG_INFINITY), |(l, h), &v| {
+        (l.min(v), h.max(v))
+    });
+    let mean = values().map(|&v| v as f64).sum::<f64>() / count.max(1) as f64;
     crate::say!(
         "features: {} with {} ({} core)",
         a.input.display(),
@@ -429,13 +429,13 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
         frames.len(),
         bands
     );
-    if !values.is_empty() {
+    if count > 0 {
         crate::say!(
             "  values: min {lo:.2}, mean {mean:.2}, max {hi:.2} {}",
             unit(&config)
         );
     }
-    let report = InputReport::of(&samples, &config, &values);
+    let report = InputReport::of(&samples, &config, values());
     for line in report.lines(&config) {
         crate::say!("  {line}");
     }
@@ -472,9 +472,17 @@ pub struct InputReport {
 
 impl InputReport {
     /// Counts for `samples` and the output `values` they gave.
-    pub fn of(samples: &Samples, config: &FeatureConfig, values: &[f32]) -> InputReport {
+    pub fn of<'v>(
+        samples: &Samples,
+        config: &FeatureConfig,
+        values: impl IntoIterator<Item = &'v f32>,
+    ) -> InputReport {
         let floor = floor_output(config) as f32;
-        let at_floor = values.iter().filter(|&&v| v <= floor + 1e-3).count();
+        let (mut at_floor, mut count) = (0, 0);
+        for &v in values {
+            at_floor += (v <= floor + 1e-3) as usize;
+            count += 1;
+        }
         let out_of_range = match samples {
             Samples::F32(v) => v.iter().filter(|s| s.abs() > 1.0).count(),
             Samples::I16(_) => 0,
@@ -494,7 +502,7 @@ impl InputReport {
             .count();
         InputReport {
             at_floor,
-            values: values.len(),
+            values: count,
             out_of_range,
             at_full_scale,
             constant_frames,
