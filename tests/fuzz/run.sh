@@ -8,6 +8,14 @@
 set -euo pipefail
 cd "$(dirname "$0")/../.."
 seconds=${STAPES_FUZZ_SECONDS:-30}
+# libFuzzer is built from its C++ sources.
+if ! command -v c++ >/dev/null 2>&1; then
+  if [ "$(id -u)" = 0 ]; then
+    apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq g++
+  else
+    sudo apt-get update -qq && sudo DEBIAN_FRONTEND=noninteractive apt-get install -y -qq g++
+  fi
+fi
 if ! command -v cargo-fuzz >/dev/null 2>&1; then
   cargo install cargo-fuzz --version 0.13.1 --locked
 fi
