@@ -213,7 +213,7 @@ fn features_reports_floor_values_range_and_constant_frames() {
     let samples = Samples::I16(x.clone());
     let frames = run_float(&c, t.view_f32(FilterbankForm::Sparse), &samples, 4096).unwrap();
     let values: Vec<f32> = frames.concat();
-    let report = InputReport::of(&samples, &c, &values);
+    let report = InputReport::of(&samples, &c, values.iter().copied());
     // Frames entirely inside the silent or the constant stretch.
     let (w, hop) = (c.window_samples as usize, c.hop_samples as usize);
     let inside = |lo: usize, hi: usize| {
@@ -233,7 +233,7 @@ fn features_reports_floor_values_range_and_constant_frames() {
     let mut f: Vec<f32> = x.iter().map(|&s| s as f32 / 32768.0).collect();
     f[100] = 1.5;
     f[200] = -1.25;
-    let report = InputReport::of(&Samples::F32(f), &c, &values);
+    let report = InputReport::of(&Samples::F32(f), &c, values.iter().copied());
     assert_eq!(report.out_of_range, 2);
     // Both beyond-range samples saturate to 16-bit full scale.
     assert_eq!(report.at_full_scale, 5);

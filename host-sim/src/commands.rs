@@ -9,7 +9,7 @@ use stapes_core::config::{FeatureConfig, LogKind};
 use stapes_core::presets;
 use stapes_core::table::FilterbankForm;
 
-use crate::check::{Arith, CoreTables, check, report, run_core};
+use crate::check::{Arith, CoreTables, check, report};
 use crate::cli::{CheckArgs, Cli, Command, FeaturesArgs, FormChoice, InputArgs, TablesArgs};
 use crate::emit::{BlobContents, size_report, write_all};
 use crate::generate::GeneratedTables;
@@ -193,6 +193,10 @@ fn check_command(a: &CheckArgs) -> Result<Outcome> {
         samples.len() as f64 / config.sample_rate_hz as f64,
         config.sample_rate_hz
     );
+    crate::say!(
+        "  {}",
+        InputReport::of(&samples, &config, std::iter::empty()).range_line()
+    );
     for w in crate::predict::warnings(&config, arith)? {
         eprintln!("{w}");
     }
@@ -362,49 +366,73 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
     if config.stages.any() || a.stage.is_some() || a.windows {
         return stage_features(a, &loaded, &config, tables, &samples, chunk);
     }
-    let (frames, what) = if a.raw {
+    // One flat buffer the size of the output (no list per frame, no copy).
+    let (stats, report, frames, what) = if a.raw {
         let CoreTables::Fixed(fixed) = tables else {
             return Err(anyhow!(
                 "--raw writes the fixed path's integers: add --arith fixed16 or --arith fixed32"
             ));
         };
         let x = samples.to_i16();
+        let bits = |v: stapes_core::fixed::types::I8F8| v.to_bits();
         let ints = match a.arith {
-            Arith::Fixed16 => {
-                crate::run::run_fixed::<stapes_core::fft::Fixed16>(&config, fixed, &x, chunk)?
-            }
-            _ => crate::run::run_fixed::<stapes_core::fft::Fixed32>(&config, fixed, &x, chunk)?,
+            Arith::Fixed16 => crate::run::run_fixed_flat::<stapes_core::fft::Fixed16, _>(
+                &config, fixed, &x, chunk, bits,
+            )?,
+            _ => crate::run::run_fixed_flat::<stapes_core::fft::Fixed32, _>(
+                &config, fixed, &x, chunk, bits,
+            )?,
         };
-        crate::npy::write_i16(
-            &a.output,
-            ints.len(),
-            bands,
-            ints.iter().flatten().map(|v| v.to_bits()),
-        )?;
+        crate::npy::write_i16(&a.output, ints.len() / bands, bands, ints.iter().copied())?;
+        // Statistics in output units.
+        let levels = || ints.iter().map(|&v| v as f32 / 256.0);
         (
-            crate::run::fixed_to_f32(&ints),
+            Summary::of(levels()),
+            InputReport::of(&samples, &config, levels()),
+            ints.len() / bands,
             format!(
                 "int16 (1/256 {} per LSB, the board's exact values)",
                 unit(&config)
             ),
         )
     } else {
-        let frames = run_core(a.arith, &config, tables, &samples, chunk)?;
+        let values = match (a.arith, tables) {
+            (Arith::F32, CoreTables::Float(t)) => {
+                crate::run::run_float_flat(&config, t, &samples, chunk)?
+            }
+            (arith, CoreTables::Fixed(t)) => {
+                let x = samples.to_i16();
+                let level = |v: stapes_core::fixed::types::I8F8| v.to_bits() as f32 / 256.0;
+                match arith {
+                    Arith::Fixed16 => crate::run::run_fixed_flat::<stapes_core::fft::Fixed16, _>(
+                        &config, t, &x, chunk, level,
+                    )?,
+                    _ => crate::run::run_fixed_flat::<stapes_core::fft::Fixed32, _>(
+                        &config, t, &x, chunk, level,
+                    )?,
+                }
+            }
+            _ => return Err(anyhow!("the tables do not match the arithmetic")),
+        };
         crate::npy::write_f32(
             &a.output,
-            frames.len(),
+            values.len() / bands,
             bands,
-            frames.iter().flatten().copied(),
+            values.iter().copied(),
         )?;
-        (frames, format!("float32, {}", unit(&config)))
+        (
+            Summary::of(values.iter().copied()),
+            InputReport::of(&samples, &config, values.iter().copied()),
+            values.len() / bands,
+            format!("float32, {}", unit(&config)),
+        )
     };
-    // Statistics straight from the frames (no second copy of the output).
-    let values = || frames.iter().flatten();
-    let count = values().count();
-    let (lo, hi) = values().fold((f32::INFINITY, f32::NEG_INFINITY), |(l, h), &v| {
-        (l.min(v), h.max(v))
-    });
-    let mean = values().map(|&v| v as f64).sum::<f64>() / count.max(1) as f64;
+    let Summary {
+        count,
+        lo,
+        hi,
+        mean,
+    } = stats;
     crate::say!(
         "features: {} with {} ({} core)",
         a.input.display(),
@@ -419,14 +447,14 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
     );
     crate::say!(
         "  frames: {} (window {}, hop {}; frame i covers samples [i*hop, i*hop + window))",
-        frames.len(),
+        frames,
         config.window_samples,
         config.hop_samples
     );
     crate::say!(
         "  output: {} [{} frames x {} bands], {what}",
         a.output.display(),
-        frames.len(),
+        frames,
         bands
     );
     if count > 0 {
@@ -435,11 +463,38 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
             unit(&config)
         );
     }
-    let report = InputReport::of(&samples, &config, values());
     for line in report.lines(&config) {
         crate::say!("  {line}");
     }
     Ok(Outcome::Success)
+}
+
+/// Count, range and mean of output values.
+struct Summary {
+    count: usize,
+    lo: f32,
+    hi: f32,
+    mean: f64,
+}
+
+impl Summary {
+    fn of(values: impl IntoIterator<Item = f32>) -> Summary {
+        let mut s = Summary {
+            count: 0,
+            lo: f32::INFINITY,
+            hi: f32::NEG_INFINITY,
+            mean: 0.0,
+        };
+        let mut sum = 0.0f64;
+        for v in values {
+            s.count += 1;
+            s.lo = s.lo.min(v);
+            s.hi = s.hi.max(v);
+            sum += v as f64;
+        }
+        s.mean = sum / s.count.max(1) as f64;
+        s
+    }
 }
 
 /// The floor in output units (dB, or natural-log units).
@@ -472,14 +527,14 @@ pub struct InputReport {
 
 impl InputReport {
     /// Counts for `samples` and the output `values` they gave.
-    pub fn of<'v>(
+    pub fn of(
         samples: &Samples,
         config: &FeatureConfig,
-        values: impl IntoIterator<Item = &'v f32>,
+        values: impl IntoIterator<Item = f32>,
     ) -> InputReport {
         let floor = floor_output(config) as f32;
         let (mut at_floor, mut count) = (0, 0);
-        for &v in values {
+        for v in values {
             at_floor += (v <= floor + 1e-3) as usize;
             count += 1;
         }
@@ -510,6 +565,14 @@ impl InputReport {
         }
     }
 
+    /// The input's sample counts.
+    pub fn range_line(&self) -> String {
+        format!(
+            "range:  {} samples beyond full scale and 0 non-finite (float input: refused on reading; a board clamps or zeroes them and counts them), {} at 16-bit full scale (possibly clipped)",
+            self.out_of_range, self.at_full_scale
+        )
+    }
+
     /// The report's lines.
     pub fn lines(&self, config: &FeatureConfig) -> Vec<String> {
         let pct = |n: usize, of: usize| 100.0 * n as f64 / of.max(1) as f64;
@@ -521,10 +584,7 @@ impl InputReport {
             floor_output(config),
             unit(config)
         )];
-        out.push(format!(
-            "range:  {} samples beyond full scale (float input; saturated for the fixed path), {} at 16-bit full scale (possibly clipped), 0 non-finite (refused on reading)",
-            self.out_of_range, self.at_full_scale
-        ));
+        out.push(self.range_line());
         if self.constant_frames > 0 {
             out.push(format!(
                 "note:   {} of {} frames are constant input: their values are the window's and the DC removal's response to a constant, not a signal",

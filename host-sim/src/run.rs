@@ -169,3 +169,64 @@ pub fn fixed_to_f32(frames: &[Vec<I8F8>]) -> Vec<Vec<f32>> {
         .map(|r| r.iter().map(|v| v.to_bits() as f32 / 256.0).collect())
         .collect()
 }
+
+/// The `f32` core's log-mel frames in one flat buffer, `bands` values per
+/// frame (what `features` writes): the output's own size, no list per
+/// frame. The same values as [`run_float`].
+pub fn run_float_flat(
+    config: &FeatureConfig,
+    table: TableView<'_, f32>,
+    samples: &Samples,
+    chunk: usize,
+) -> Result<Vec<f32>> {
+    let bands = config.bands as usize;
+    let mut fe = Box::new(
+        FloatFrontEnd::<4096, 4096, 256>::new(*config, table).map_err(|e| anyhow!("{e}"))?,
+    );
+    let mut out = Vec::with_capacity(frame_count(config, samples.len()) * bands);
+    let chunk = chunk.max(1);
+    match samples {
+        Samples::I16(v) => {
+            for piece in v.chunks(chunk) {
+                let mut rest = piece;
+                while let Some(frame) = fe.next_frame(&mut rest) {
+                    out.extend_from_slice(&frame.bands[..bands]);
+                }
+            }
+        }
+        Samples::F32(v) => {
+            for piece in v.chunks(chunk) {
+                let mut rest = piece;
+                while let Some(frame) = fe.next_frame(&mut rest) {
+                    out.extend_from_slice(&frame.bands[..bands]);
+                }
+            }
+        }
+    }
+    Ok(out)
+}
+
+/// The fixed core's (precision `P`) log-mel frames in one flat buffer,
+/// each value through `convert`: the same values as [`run_fixed`].
+pub fn run_fixed_flat<P: FixedArithmetic, T>(
+    config: &FeatureConfig,
+    tables: FixedTables<'_>,
+    samples: &[i16],
+    chunk: usize,
+    convert: impl Fn(I8F8) -> T,
+) -> Result<Vec<T>> {
+    let bands = config.bands as usize;
+    let log = FixedLog::<256>::for_tables(&tables);
+    let mut fe = Box::new(
+        FixedFrontEnd::<P, 4096, 4096, 256, _>::with_stages(*config, tables, log)
+            .map_err(|e| anyhow!("{e}"))?,
+    );
+    let mut out = Vec::with_capacity(frame_count(config, samples.len()) * bands);
+    for piece in samples.chunks(chunk.max(1)) {
+        let mut rest = piece;
+        while let Some(frame) = fe.next_frame(&mut rest) {
+            out.extend(frame.bands[..bands].iter().map(|&v| convert(v)));
+        }
+    }
+    Ok(out)
+}

@@ -23,6 +23,11 @@ fn a_passing_check_exits_zero() {
     let (code, out, _) = stapes(&["check", "--preset", "tiny16k-10"]);
     assert_eq!(code, 0, "{out}");
     assert!(out.contains("PASS"));
+    // The input's sample counts, as `features` reports them.
+    assert!(
+        out.contains("range:  0 samples beyond full scale and 0 non-finite"),
+        "{out}"
+    );
 }
 
 #[test]

@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # Runs every fuzz target for a short fixed time (STAPES_FUZZ_SECONDS, 30 by
-# default) from its seeds, on the stable toolchain (RUSTC_BOOTSTRAP lets
+# default) from its seeds, with overflow checks and debug assertions on, on the stable toolchain (RUSTC_BOOTSTRAP lets
 # cargo-fuzz pass its sanitizer flags), and prints each target's executions.
 # A crash fails the run; cargo-fuzz writes the input to
 # tests/fuzz/artifacts/TARGET/: copy it to tests/fuzz/regressions/TARGET/ and
@@ -30,7 +30,7 @@ for target in blob_bytes blob_repaired configuration wav_reader streaming; do
     cp tests/fuzz/regressions/"$target"/* "$corpus"/ 2>/dev/null || true
   fi
   log=$(mktemp)
-  if ! RUSTC_BOOTSTRAP=1 cargo fuzz run --fuzz-dir tests/fuzz "$target" "$corpus" -- \
+  if ! RUSTC_BOOTSTRAP=1 cargo fuzz run --debug-assertions --fuzz-dir tests/fuzz "$target" "$corpus" -- \
       -max_total_time="$seconds" -print_final_stats=1 >"$log" 2>&1; then
     tail -n 60 "$log"
     echo "fuzz target $target failed: see tests/fuzz/artifacts/$target/" >&2
