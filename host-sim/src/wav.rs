@@ -79,7 +79,7 @@ pub fn read_wav(path: &Path, channel: Option<ChannelChoice>) -> Result<WavInput>
 /// `data` (its declared length kept, so a truncated file is still refused),
 /// every other chunk skipped with the pad byte RIFF puts after an odd-length
 /// chunk (the decoder itself does not skip that byte).
-fn essential_chunks(bytes: &[u8], path: &Path) -> Result<Vec<u8>> {
+fn essential_chunks(bytes: &[u8], path: &Path) -> Result<(Vec<u8>, Option<(usize, usize)>)> {
     if bytes.is_empty() {
         bail!(
             "{} is empty (0 bytes): give a RIFF/WAVE file with 16-bit PCM or 32-bit float samples",
@@ -88,9 +88,10 @@ fn essential_chunks(bytes: &[u8], path: &Path) -> Result<Vec<u8>> {
     }
     if bytes.len() < 12 || &bytes[..4] != b"RIFF" || &bytes[8..12] != b"WAVE" {
         // Not RIFF/WAVE: the decoder's own message says so.
-        return Ok(bytes.to_vec());
+        return Ok((bytes.to_vec(), None));
     }
     let mut out = b"RIFF\0\0\0\0WAVE".to_vec();
+    let mut data = None;
     let mut at = 12usize;
     while at + 8 <= bytes.len() {
         let id = &bytes[at..at + 4];
@@ -98,6 +99,9 @@ fn essential_chunks(bytes: &[u8], path: &Path) -> Result<Vec<u8>> {
         let body = at + 8;
         let end = body.saturating_add(size).min(bytes.len());
         if id == b"fmt " || id == b"data" {
+            if id == b"data" {
+                data = Some((out.len() + 8, size));
+            }
             out.extend_from_slice(&bytes[at..end]);
             if id == b"data" {
                 break;
@@ -110,7 +114,17 @@ fn essential_chunks(bytes: &[u8], path: &Path) -> Result<Vec<u8>> {
     }
     let riff = (out.len() - 8) as u32;
     out[4..8].copy_from_slice(&riff.to_le_bytes());
-    Ok(out)
+    Ok((out, data))
+}
+
+/// The data chunk's whole samples of `width` bytes, when every byte its
+/// header declares is present; `None` otherwise (the decoder then reads
+/// the samples and reports the truncation in its own words).
+fn sample_bytes(bytes: &[u8], data: Option<(usize, usize)>, width: usize) -> Option<&[u8]> {
+    let (start, declared) = data?;
+    let end = start.checked_add(declared)?;
+    let body = bytes.get(start..end)?;
+    Some(&body[..body.len() / width * width])
 }
 
 /// [`read_wav`] from any reader (`path` names it in errors).
@@ -123,9 +137,11 @@ pub fn read_wav_from<R: std::io::Read>(
     source
         .read_to_end(&mut bytes)
         .map_err(|e| anyhow!("cannot read {}: {e}", path.display()))?;
-    let bytes = essential_chunks(&bytes, path)?;
+    let (bytes, data) = essential_chunks(&bytes, path)?;
+    // The decoder reads the header (and refuses what it cannot read); the
+    // samples are then decoded here, a whole buffer at a time.
     let mut reader =
-        WavReader::new(std::io::Cursor::new(bytes)).map_err(|e| describe_hound(path, e))?;
+        WavReader::new(std::io::Cursor::new(&bytes)).map_err(|e| describe_hound(path, e))?;
     let spec = reader.spec();
     if spec.sample_rate == 0 {
         bail!(
@@ -148,10 +164,16 @@ pub fn read_wav_from<R: std::io::Read>(
     };
     let samples = match (spec.sample_format, spec.bits_per_sample) {
         (SampleFormat::Int, 16) => {
-            let raw: Vec<i16> = reader
-                .samples::<i16>()
-                .collect::<Result<_, _>>()
-                .map_err(|e| describe_sample_error(path, e))?;
+            let raw: Vec<i16> = match sample_bytes(&bytes, data, 2) {
+                Some(b) => b
+                    .chunks_exact(2)
+                    .map(|p| i16::from_le_bytes([p[0], p[1]]))
+                    .collect(),
+                None => reader
+                    .samples::<i16>()
+                    .collect::<Result<_, _>>()
+                    .map_err(|e| describe_sample_error(path, e))?,
+            };
             check_whole_frames(path, raw.len(), channels)?;
             Samples::I16(match pick {
                 None => raw,
@@ -164,10 +186,16 @@ pub fn read_wav_from<R: std::io::Read>(
             })
         }
         (SampleFormat::Float, 32) => {
-            let raw: Vec<f32> = reader
-                .samples::<f32>()
-                .collect::<Result<_, _>>()
-                .map_err(|e| describe_sample_error(path, e))?;
+            let raw: Vec<f32> = match sample_bytes(&bytes, data, 4) {
+                Some(b) => b
+                    .chunks_exact(4)
+                    .map(|p| f32::from_le_bytes([p[0], p[1], p[2], p[3]]))
+                    .collect(),
+                None => reader
+                    .samples::<f32>()
+                    .collect::<Result<_, _>>()
+                    .map_err(|e| describe_sample_error(path, e))?,
+            };
             check_whole_frames(path, raw.len(), channels)?;
             if let Some(i) = raw.iter().position(|v| !v.is_finite()) {
                 bail!(
