@@ -17,10 +17,19 @@ pub fn write_atomic_with(
     path: &Path,
     fill: impl FnOnce(&mut std::fs::File) -> Result<()>,
 ) -> Result<()> {
-    let dir = match path.parent() {
-        Some(d) if !d.as_os_str().is_empty() => d,
-        _ => Path::new("."),
-    };
+    staged(path, fill)?
+        .persist(path)
+        .with_context(|| format!("cannot move the finished file to {}", path.display()))?;
+    Ok(())
+}
+
+/// A finished temporary file beside `path` (its folder created): filled by
+/// `fill`, flushed to the disk, with ordinary permissions.
+fn staged(
+    path: &Path,
+    fill: impl FnOnce(&mut std::fs::File) -> Result<()>,
+) -> Result<tempfile::NamedTempFile> {
+    let dir = folder_of(path);
     std::fs::create_dir_all(dir)
         .with_context(|| format!("cannot create folder {}", dir.display()))?;
     let mut tmp = tempfile::NamedTempFile::new_in(dir)
@@ -37,9 +46,15 @@ pub fn write_atomic_with(
             .set_permissions(std::fs::Permissions::from_mode(0o644))
             .ok();
     }
-    tmp.persist(path)
-        .with_context(|| format!("cannot move the finished file to {}", path.display()))?;
-    Ok(())
+    Ok(tmp)
+}
+
+/// The folder `path` is in (`.` for a bare file name).
+fn folder_of(path: &Path) -> &Path {
+    match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d,
+        _ => Path::new("."),
+    }
 }
 
 /// Writes a set of files all or nothing: each is written and flushed to a
@@ -47,35 +62,16 @@ pub fn write_atomic_with(
 /// complete are they moved into place, and if a move fails, the files
 /// already moved are put back as they were.
 pub fn write_set_atomic(files: &[(&Path, &[u8])]) -> Result<()> {
-    let mut staged = Vec::with_capacity(files.len());
+    let mut ready = Vec::with_capacity(files.len());
     for &(path, bytes) in files {
-        let dir = match path.parent() {
-            Some(d) if !d.as_os_str().is_empty() => d,
-            _ => Path::new("."),
-        };
-        std::fs::create_dir_all(dir)
-            .with_context(|| format!("cannot create folder {}", dir.display()))?;
-        let mut tmp = tempfile::NamedTempFile::new_in(dir)
-            .with_context(|| format!("cannot create a temporary file in {}", dir.display()))?;
-        tmp.write_all(bytes)
-            .with_context(|| format!("cannot write {}", path.display()))?;
-        tmp.as_file_mut()
-            .sync_all()
-            .with_context(|| format!("cannot flush {} to the disk", path.display()))?;
-        #[cfg(unix)]
-        {
-            use std::os::unix::fs::PermissionsExt;
-            tmp.as_file()
-                .set_permissions(std::fs::Permissions::from_mode(0o644))
-                .ok();
-        }
-        staged.push((path, tmp));
+        let tmp = staged(path, |f| f.write_all(bytes).map_err(Into::into))?;
+        ready.push((path, tmp));
     }
     // Every file is complete: keep the old versions aside, then move. On
     // any failure, put back what this call changed, newest first.
     let mut moved: Vec<(&Path, Option<tempfile::TempPath>)> = Vec::new();
     let mut result = Ok(());
-    for (path, tmp) in staged {
+    for (path, tmp) in ready {
         match move_into_place(path, tmp) {
             Ok(previous) => moved.push((path, previous)),
             Err(e) => {
@@ -109,10 +105,7 @@ fn move_into_place(
     tmp: tempfile::NamedTempFile,
 ) -> Result<Option<tempfile::TempPath>> {
     let previous = if path.exists() {
-        let dir = path
-            .parent()
-            .filter(|d| !d.as_os_str().is_empty())
-            .unwrap_or(Path::new("."));
+        let dir = folder_of(path);
         let keep = tempfile::Builder::new()
             .prefix(".previous")
             .tempfile_in(dir)
