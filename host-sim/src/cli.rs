@@ -34,6 +34,113 @@ pub enum Command {
     Speed(SpeedArgs),
     /// Compute the per-value normalisation statistics of a folder of clips, as a [stages.normalise] table.
     Statistics(StatisticsArgs),
+    /// Turn a labelled dataset folder into the board's features for training (packed .npy per split, manifests, statistics), resumably.
+    Export(ExportArgs),
+}
+
+/// `stapes export`.
+#[derive(Args, Debug)]
+pub struct ExportArgs {
+    /// The dataset: one folder per label (DIR/<label>/*.wav), or
+    /// DIR/<split>/<label>/*.wav with splits train, validation, test.
+    #[arg(long, value_name = "DIR")]
+    pub input_dir: PathBuf,
+    /// Where the features, labels, manifests and statistics go (new or
+    /// empty; or an earlier export's folder with the same plan, to resume).
+    #[arg(long, value_name = "DIR")]
+    pub output_dir: PathBuf,
+    /// Labels (and splits) from a CSV manifest of rows path,label[,split],
+    /// paths relative to --input-dir, instead of the folders.
+    #[arg(long, value_name = "FILE.csv")]
+    pub manifest: Option<PathBuf>,
+    /// The configuration.
+    #[command(flatten)]
+    pub config: ConfigArgs,
+    /// Arithmetic of the core: f32, fixed16 or fixed32.
+    #[arg(long, value_enum, default_value = "f32")]
+    pub arith: Arith,
+    /// Filterbank form the core reads.
+    #[arg(long, value_enum, default_value = "sparse")]
+    pub form: FormChoice,
+    /// The stage to write (log, pcen, range_floor, mfcc, normalise,
+    /// quantise); the last one, the model's input, by default.
+    #[arg(long, value_name = "STAGE")]
+    pub stage: Option<String>,
+    /// Write the board's exact integers (fixed arithmetics; int8/uint8
+    /// codes for the quantise stage) instead of float32.
+    #[arg(long)]
+    pub raw: bool,
+    /// Channel of stereo clips.
+    #[arg(long, value_enum)]
+    pub channel: Option<ChannelChoice>,
+    /// Frames per clip: each clip is padded with zero samples or trimmed to
+    /// N frames (default: the longest clip's frames; with --per-clip, each
+    /// clip's own).
+    #[arg(long, value_name = "N")]
+    pub frames: Option<usize>,
+    /// Where each clip sits in its N frames (the padding or trimming is at
+    /// the other end, or split for centre).
+    #[arg(long, value_enum, default_value = "start")]
+    pub align: crate::export::Align,
+    /// One .npy per clip (under <split>/clips/) instead of packed arrays.
+    #[arg(long)]
+    pub per_clip: bool,
+    /// Clips per output file (memory is bounded by this, not the dataset).
+    #[arg(long, value_name = "N", default_value_t = 2048)]
+    pub shard_clips: usize,
+    /// Percent of clips without a split of their own that go to
+    /// validation (by a stable hash of the path).
+    #[arg(long, value_name = "P", default_value_t = 0.0)]
+    pub validation_percent: f64,
+    /// Percent of clips without a split of their own that go to test.
+    #[arg(long, value_name = "P", default_value_t = 0.0)]
+    pub test_percent: f64,
+    /// Augmented copies of each clip of the augmented splits (beside the
+    /// clip itself), made before the front end and run through the board's
+    /// arithmetic.
+    #[arg(long, value_name = "K", default_value_t = 0)]
+    pub augment_copies: u32,
+    /// Augmentation: gain drawn uniformly from LOW:HIGH dB.
+    #[arg(long, value_name = "LOW:HIGH", allow_hyphen_values = true)]
+    pub gain_db: Option<String>,
+    /// Augmentation: background recordings (WAV, at the configuration's
+    /// rate) mixed into each copy.
+    #[arg(long, value_name = "DIR")]
+    pub noise_dir: Option<PathBuf>,
+    /// Augmentation: signal-to-noise ratio drawn from LOW:HIGH dB (default 0:20).
+    #[arg(long, value_name = "LOW:HIGH", allow_hyphen_values = true)]
+    pub snr_db: Option<String>,
+    /// Augmentation: time shift drawn uniformly within ±MS milliseconds.
+    #[arg(long, value_name = "MS")]
+    pub shift_ms: Option<f64>,
+    /// Augmentation: the seed of every draw.
+    #[arg(long, value_name = "N", default_value_t = 1)]
+    pub seed: u64,
+    /// Splits that get augmented copies, comma-separated.
+    #[arg(long, value_name = "LIST", default_value = "train")]
+    pub augment_splits: String,
+    /// Stop at the first clip that cannot be read (by default it is listed
+    /// with its error and the rest go on).
+    #[arg(long)]
+    pub strict: bool,
+    /// Worker threads (default: every core).
+    #[arg(long, value_name = "N")]
+    pub threads: Option<usize>,
+    /// No progress bar (it is never drawn when stderr is not a terminal).
+    #[arg(long)]
+    pub quiet: bool,
+}
+
+impl ExportArgs {
+    /// The input options the table loader reads.
+    pub fn input_args(&self) -> InputArgs {
+        InputArgs {
+            channel: self.channel,
+            chunk_samples: 0,
+            form: self.form,
+            table_blob: None,
+        }
+    }
 }
 
 /// `stapes statistics`.

@@ -25,6 +25,8 @@ pub enum Outcome {
     Success,
     /// A check ran and its tolerance was exceeded.
     CheckFailed,
+    /// A batch finished, but some of its inputs failed (listed).
+    SomeFailed,
 }
 
 /// Runs a parsed command line.
@@ -34,6 +36,7 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Check(a) => check_command(&a),
         Command::Features(a) => features(&a),
         Command::Demo(a) => crate::demo::demo(&a),
+        Command::Export(a) => crate::export::export(&a),
         Command::Statistics(a) => {
             let named = a.config.resolve()?;
             let (mean, deviation, frames, clips) =
@@ -366,66 +369,44 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
     if config.stages.any() || a.stage.is_some() || a.windows {
         return stage_features(a, &loaded, &config, tables, &samples, chunk);
     }
-    // One flat buffer the size of the output (no list per frame, no copy).
-    let (stats, report, frames, what) = if a.raw {
-        let CoreTables::Fixed(fixed) = tables else {
-            return Err(anyhow!(
-                "--raw writes the fixed path's integers: add --arith fixed16 or --arith fixed32"
-            ));
-        };
-        let x = samples.to_i16();
-        let bits = |v: stapes_core::fixed::types::I8F8| v.to_bits();
-        let ints = match a.arith {
-            Arith::Fixed16 => crate::run::run_fixed_flat::<stapes_core::fft::Fixed16, _>(
-                &config, fixed, &x, chunk, bits,
-            )?,
-            _ => crate::run::run_fixed_flat::<stapes_core::fft::Fixed32, _>(
-                &config, fixed, &x, chunk, bits,
-            )?,
-        };
-        crate::npy::write_i16(&a.output, ints.len() / bands, bands, ints.iter().copied())?;
-        // Statistics in output units.
-        let levels = || ints.iter().map(|&v| v as f32 / 256.0);
-        (
-            Summary::of(levels()),
-            InputReport::of(&samples, &config, levels()),
-            ints.len() / bands,
-            format!(
-                "int16 (1/256 {} per LSB, the board's exact values)",
-                unit(&config)
-            ),
-        )
-    } else {
-        let values = match (a.arith, tables) {
-            (Arith::F32, CoreTables::Float(t)) => {
-                crate::run::run_float_flat(&config, t, &samples, chunk)?
-            }
-            (arith, CoreTables::Fixed(t)) => {
-                let x = samples.to_i16();
-                let level = |v: stapes_core::fixed::types::I8F8| v.to_bits() as f32 / 256.0;
-                match arith {
-                    Arith::Fixed16 => crate::run::run_fixed_flat::<stapes_core::fft::Fixed16, _>(
-                        &config, t, &x, chunk, level,
-                    )?,
-                    _ => crate::run::run_fixed_flat::<stapes_core::fft::Fixed32, _>(
-                        &config, t, &x, chunk, level,
-                    )?,
-                }
-            }
-            _ => return Err(anyhow!("the tables do not match the arithmetic")),
-        };
-        crate::npy::write_f32(
-            &a.output,
-            values.len() / bands,
-            bands,
-            values.iter().copied(),
-        )?;
-        (
-            Summary::of(values.iter().copied()),
-            InputReport::of(&samples, &config, values.iter().copied()),
-            values.len() / bands,
-            format!("float32, {}", unit(&config)),
-        )
+    // The board's front end and chain, into one flat buffer the size of
+    // the output (no list per frame).
+    if a.raw && a.arith == Arith::F32 {
+        return Err(anyhow!(
+            "--raw writes the fixed path's integers: add --arith fixed16 or --arith fixed32"
+        ));
+    }
+    let stage_tables = loaded.stage_tables()?;
+    let mut runner =
+        crate::clip_runner::ClipRunner::new(&config, a.arith, tables, &stage_tables, None, a.raw)?;
+    let mut out = runner.kind().empty();
+    for piece in SampleChunks::new(&samples, chunk) {
+        runner.push(piece, &mut out);
+    }
+    let frames = out.len() / bands;
+    let (stats, report, what) = match &out {
+        crate::clip_runner::FlatValues::I16(ints) => {
+            crate::npy::write_i16(&a.output, frames, bands, ints.iter().copied())?;
+            // Statistics in output units.
+            let levels = || ints.iter().map(|&v| v as f32 / 256.0);
+            (
+                Summary::of(levels()),
+                InputReport::of(&samples, &config, levels()),
+                format!(
+                    "int16 (1/256 {} per LSB, the board's exact values)",
+                    unit(&config)
+                ),
+            )
+        }
+        crate::clip_runner::FlatValues::F32(values) => {
+            crate::npy::write_f32(&a.output, frames, bands, values.iter().copied())?;
+            (
+                Summary::of(values.iter().copied()),
+                InputReport::of(&samples, &config, values.iter().copied()),
+                format!("float32, {}", unit(&config)),
+            )
+        }
+        _ => unreachable!("the log-mel front end writes float32 or int16"),
     };
     let Summary {
         count,
@@ -467,6 +448,44 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
         crate::say!("  {line}");
     }
     Ok(Outcome::Success)
+}
+
+/// `samples` in pieces of `chunk` (the DMA chunks a board receives).
+struct SampleChunks<'a> {
+    samples: crate::clip_runner::SampleSlice<'a>,
+    chunk: usize,
+    at: usize,
+}
+
+impl<'a> SampleChunks<'a> {
+    fn new(samples: &'a Samples, chunk: usize) -> Self {
+        SampleChunks {
+            samples: samples.into(),
+            chunk: chunk.max(1),
+            at: 0,
+        }
+    }
+}
+
+impl<'a> Iterator for SampleChunks<'a> {
+    type Item = crate::clip_runner::SampleSlice<'a>;
+
+    fn next(&mut self) -> Option<Self::Item> {
+        use crate::clip_runner::SampleSlice;
+        let len = match self.samples {
+            SampleSlice::I16(v) => v.len(),
+            SampleSlice::F32(v) => v.len(),
+        };
+        if self.at >= len {
+            return None;
+        }
+        let r = self.at..(self.at + self.chunk).min(len);
+        self.at = r.end;
+        Some(match self.samples {
+            SampleSlice::I16(v) => SampleSlice::I16(&v[r]),
+            SampleSlice::F32(v) => SampleSlice::F32(&v[r]),
+        })
+    }
 }
 
 /// Count, range and mean of output values.

@@ -21,17 +21,22 @@ macro_rules! say_text {
     }};
 }
 
+pub mod augment;
 pub mod budget;
+pub mod chain;
 pub mod check;
 pub mod cli;
+pub mod clip_runner;
 pub mod commands;
 pub mod compare;
 pub mod config_source;
 pub mod corpus;
+pub mod dataset;
 pub mod dct;
 pub mod demo;
 pub mod design;
 pub mod emit;
+pub mod export;
 pub mod generate;
 pub mod model_input;
 pub mod npy;

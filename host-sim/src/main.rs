@@ -10,6 +10,7 @@ fn main() -> ExitCode {
     match run(Cli::parse()) {
         Ok(Outcome::Success) => ExitCode::SUCCESS,
         Ok(Outcome::CheckFailed) => ExitCode::from(1),
+        Ok(Outcome::SomeFailed) => ExitCode::from(3),
         Err(e) => {
             eprintln!("error: {e:#}");
             ExitCode::from(2)

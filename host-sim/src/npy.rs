@@ -85,3 +85,66 @@ pub fn read_f32(path: &Path) -> Result<(usize, usize, Vec<f32>)> {
 pub fn read_i16(path: &Path) -> Result<(usize, usize, Vec<i16>)> {
     read(path)
 }
+
+/// The `.npy` (format 1.0) header of a C-order array of `descr` (`<f4`,
+/// `<i2`, `<i4`, `|i1`, `|u1`) and `shape`: magic, version, length, and
+/// the dictionary padded with spaces to a multiple of 64 bytes, as NumPy's
+/// format description sets out.
+pub fn header(descr: &str, shape: &[usize]) -> Vec<u8> {
+    let dims = match shape {
+        [one] => format!("({one},)"),
+        _ => format!(
+            "({})",
+            shape
+                .iter()
+                .map(|d| d.to_string())
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+    };
+    let mut dict = format!("{{'descr': '{descr}', 'fortran_order': False, 'shape': {dims}, }}");
+    // 6 magic + 2 version + 2 length bytes, then the dictionary and '\n'.
+    let unpadded = 10 + dict.len() + 1;
+    dict.push_str(&" ".repeat(unpadded.next_multiple_of(64) - unpadded));
+    dict.push('\n');
+    let mut out = b"\x93NUMPY\x01\x00".to_vec();
+    out.extend_from_slice(&(dict.len() as u16).to_le_bytes());
+    out.extend_from_slice(dict.as_bytes());
+    out
+}
+
+/// The NumPy type string of a buffer's values.
+pub fn descr(values: &crate::clip_runner::FlatValues) -> &'static str {
+    use crate::clip_runner::FlatValues;
+    match values {
+        FlatValues::F32(_) => "<f4",
+        FlatValues::I16(_) => "<i2",
+        FlatValues::I32(_) => "<i4",
+        FlatValues::I8(_) => "|i1",
+        FlatValues::U8(_) => "|u1",
+    }
+}
+
+/// Writes `values` as an array of `shape` in one buffer (header and body),
+/// atomically.
+pub fn write_flat(
+    path: &Path,
+    shape: &[usize],
+    values: &crate::clip_runner::FlatValues,
+) -> Result<()> {
+    anyhow::ensure!(
+        shape.iter().product::<usize>() == values.len(),
+        "shape {shape:?} does not hold {} values",
+        values.len()
+    );
+    let mut bytes = header(descr(values), shape);
+    bytes.extend_from_slice(values.as_bytes());
+    crate::output::write_atomic(path, &bytes)
+}
+
+/// Writes `int32` `values` as a 1-D array, atomically.
+pub fn write_i32_vector(path: &Path, values: &[i32]) -> Result<()> {
+    let mut bytes = header("<i4", &[values.len()]);
+    bytes.extend_from_slice(bytemuck::cast_slice(values));
+    crate::output::write_atomic(path, &bytes)
+}

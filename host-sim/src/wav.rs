@@ -292,3 +292,37 @@ pub fn write_wav_i16(path: &Path, sample_rate_hz: u32, samples: &[i16]) -> Resul
         Ok(())
     })
 }
+
+/// Samples per channel in a WAV file, from its header alone (the `fmt `
+/// block size and the `data` chunk's length, limited by the file's size):
+/// for planning, not decoding. Errors when no `data` chunk is found in the
+/// first megabyte.
+pub fn probe_length(path: &Path) -> Result<usize> {
+    use std::io::Read;
+    let file =
+        std::fs::File::open(path).map_err(|e| anyhow!("cannot read {}: {e}", path.display()))?;
+    let size = file.metadata()?.len() as usize;
+    let mut head = Vec::new();
+    file.take(1 << 20).read_to_end(&mut head)?;
+    if head.len() < 12 || &head[..4] != b"RIFF" || &head[8..12] != b"WAVE" {
+        bail!("{} is not a RIFF/WAVE file", path.display());
+    }
+    let mut at = 12usize;
+    let mut block = None;
+    while at + 8 <= head.len() {
+        let id = &head[at..at + 4];
+        let len = u32::from_le_bytes(head[at + 4..at + 8].try_into().expect("4 bytes")) as usize;
+        let body = at + 8;
+        if id == b"fmt " && body + 14 <= head.len() {
+            block = Some(u16::from_le_bytes([head[body + 12], head[body + 13]]) as usize);
+        }
+        if id == b"data" {
+            let Some(b) = block.filter(|&b| b > 0) else {
+                bail!("{} has no usable fmt chunk before its data", path.display());
+            };
+            return Ok(len.min(size.saturating_sub(body)) / b);
+        }
+        at = body.saturating_add(len).saturating_add(len % 2);
+    }
+    bail!("{} has no data chunk", path.display())
+}
