@@ -55,7 +55,8 @@ pub enum Align {
 }
 
 impl Align {
-    fn name(self) -> &'static str {
+    /// Its name on the command line.
+    pub fn name(self) -> &'static str {
         match self {
             Align::Start => "start",
             Align::Centre => "centre",
@@ -211,7 +212,7 @@ fn frames_of(config: &FeatureConfig, samples: usize) -> usize {
 /// The samples of a clip laid into `target` samples with `align` (zeros
 /// where there is no clip), and where the clip starts in them (negative
 /// when trimmed at the start).
-fn laid_out(samples: &Samples, target: usize, align: Align) -> (Samples, i64) {
+pub fn laid_out(samples: &Samples, target: usize, align: Align) -> (Samples, i64) {
     let len = samples.len() as i64;
     let t = target as i64;
     let start = match align {
@@ -220,12 +221,13 @@ fn laid_out(samples: &Samples, target: usize, align: Align) -> (Samples, i64) {
         Align::Centre => (t - len).div_euclid(2),
     };
     fn lay<T: Copy + Default>(x: &[T], target: usize, start: i64) -> Vec<T> {
+        // Output [a, b) holds input [a - start, b - start).
+        let a = start.clamp(0, target as i64) as usize;
+        let b = (start + x.len() as i64).clamp(0, target as i64) as usize;
         let mut out = vec![T::default(); target];
-        for (i, o) in out.iter_mut().enumerate() {
-            let from = i as i64 - start;
-            if (0..x.len() as i64).contains(&from) {
-                *o = x[from as usize];
-            }
+        if a < b {
+            let from = (a as i64 - start) as usize;
+            out[a..b].copy_from_slice(&x[from..from + (b - a)]);
         }
         out
     }
@@ -273,6 +275,7 @@ impl Setup<'_> {
             self.config.hop_samples as usize,
         );
         let (input, start, frames) = match self.frames {
+            Some(n) if w + (n - 1) * h == samples.len() => (samples, 0, n),
             Some(n) => {
                 let target = w + (n - 1) * h;
                 let (laid, start) = laid_out(&samples, target, self.align);

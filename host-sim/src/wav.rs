@@ -70,16 +70,23 @@ fn describe_hound(path: &Path, e: hound::Error) -> anyhow::Error {
 
 /// Reads `path`, picking a channel of a stereo file with `channel`.
 pub fn read_wav(path: &Path, channel: Option<ChannelChoice>) -> Result<WavInput> {
-    let file =
-        std::fs::File::open(path).map_err(|e| anyhow!("cannot read {}: {e}", path.display()))?;
-    read_wav_from(std::io::BufReader::new(file), path, channel)
+    let bytes = std::fs::read(path).map_err(|e| anyhow!("cannot read {}: {e}", path.display()))?;
+    read_wav_from(&bytes[..], path, channel)
 }
 
 /// The RIFF chunks the decoder needs, in a layout it reads: `fmt ` and
 /// `data` (its declared length kept, so a truncated file is still refused),
 /// every other chunk skipped with the pad byte RIFF puts after an odd-length
 /// chunk (the decoder itself does not skip that byte).
-fn essential_chunks(bytes: &[u8], path: &Path) -> Result<(Vec<u8>, Option<(usize, usize)>)> {
+///
+/// With `keep_body` false the `data` chunk's body is left out (its header
+/// kept) and the returned position is the body's in `bytes`: the header for
+/// the decoder, the samples read where they are, no copy.
+fn essential_chunks(
+    bytes: &[u8],
+    path: &Path,
+    keep_body: bool,
+) -> Result<(Vec<u8>, Option<(usize, usize)>)> {
     if bytes.is_empty() {
         bail!(
             "{} is empty (0 bytes): give a RIFF/WAVE file with 16-bit PCM or 32-bit float samples",
@@ -100,6 +107,11 @@ fn essential_chunks(bytes: &[u8], path: &Path) -> Result<(Vec<u8>, Option<(usize
         let end = body.saturating_add(size).min(bytes.len());
         if id == b"fmt " || id == b"data" {
             if id == b"data" {
+                if !keep_body {
+                    data = Some((body, size));
+                    out.extend_from_slice(&bytes[at..body]);
+                    break;
+                }
                 data = Some((out.len() + 8, size));
             }
             out.extend_from_slice(&bytes[at..end]);
@@ -133,11 +145,21 @@ pub fn read_wav_from<R: std::io::Read>(
     path: &Path,
     channel: Option<ChannelChoice>,
 ) -> Result<WavInput> {
-    let mut bytes = Vec::new();
+    let mut whole = Vec::new();
     source
-        .read_to_end(&mut bytes)
+        .read_to_end(&mut whole)
         .map_err(|e| anyhow!("cannot read {}: {e}", path.display()))?;
-    let (bytes, data) = essential_chunks(&bytes, path)?;
+    // The header alone for the decoder, the samples read in place; a file
+    // whose data chunk is short goes through the decoder whole, which
+    // reports the truncation in its own words.
+    let (header, in_place) = essential_chunks(&whole, path, false)?;
+    let complete = in_place.is_some_and(|(start, len)| start.saturating_add(len) <= whole.len());
+    let (bytes, data) = if complete {
+        (header, in_place)
+    } else {
+        essential_chunks(&whole, path, true)?
+    };
+    let source: &[u8] = if complete { &whole } else { &bytes };
     // The decoder reads the header (and refuses what it cannot read); the
     // samples are then decoded here, a whole buffer at a time.
     let mut reader =
@@ -164,7 +186,7 @@ pub fn read_wav_from<R: std::io::Read>(
     };
     let samples = match (spec.sample_format, spec.bits_per_sample) {
         (SampleFormat::Int, 16) => {
-            let raw: Vec<i16> = match sample_bytes(&bytes, data, 2) {
+            let raw: Vec<i16> = match sample_bytes(source, data, 2) {
                 Some(b) => b
                     .chunks_exact(2)
                     .map(|p| i16::from_le_bytes([p[0], p[1]]))
@@ -186,7 +208,7 @@ pub fn read_wav_from<R: std::io::Read>(
             })
         }
         (SampleFormat::Float, 32) => {
-            let raw: Vec<f32> = match sample_bytes(&bytes, data, 4) {
+            let raw: Vec<f32> = match sample_bytes(source, data, 4) {
                 Some(b) => b
                     .chunks_exact(4)
                     .map(|p| f32::from_le_bytes([p[0], p[1], p[2], p[3]]))
