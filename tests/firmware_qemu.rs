@@ -15,7 +15,6 @@ use object::{Object, ObjectSection};
 use stapes_core::config::FeatureConfig;
 use stapes_core::table::FilterbankForm;
 use stapes_sim::generate::GeneratedTables;
-use stapes_sim::run::{Samples, run_fixed, run_float};
 use stapes_tests::repo_root;
 
 const STAGES: [&str; 6] = ["intake", "window", "fft", "spectrum", "mel", "log"];
@@ -218,37 +217,41 @@ fn section_sizes(elf: &Path) -> (u64, u64) {
     (flash, ram)
 }
 
+/// The host's frames, from the runner that `export`, `features` and the
+/// Python module use: this test ties all of them to the board's bits.
 fn host_frames(
     arith: &str,
     config: &FeatureConfig,
     form: FilterbankForm,
     samples: &[i16],
 ) -> Vec<Vec<u32>> {
+    use stapes_sim::check::{Arith, CoreTables};
+    use stapes_sim::clip_runner::{ClipRunner, FlatValues, SampleSlice};
     let t = GeneratedTables::new(config);
-    match arith {
-        "f32" => run_float(
-            config,
-            t.view_f32(form),
-            &Samples::I16(samples.to_vec()),
-            128,
-        )
-        .unwrap()
-        .into_iter()
-        .map(|r| r.into_iter().map(f32::to_bits).collect())
-        .collect(),
-        a => {
-            let tables = t.fixed_tables(form).unwrap();
-            let frames = if a == "fixed16" {
-                run_fixed::<stapes_core::fft::Fixed16>(config, tables, samples, 128).unwrap()
-            } else {
-                run_fixed::<stapes_core::fft::Fixed32>(config, tables, samples, 128).unwrap()
-            };
-            frames
-                .into_iter()
-                .map(|r| r.into_iter().map(|v| v.to_bits() as u16 as u32).collect())
-                .collect()
-        }
+    let (a, tables) = match arith {
+        "f32" => (Arith::F32, CoreTables::Float(t.view_f32(form))),
+        "fixed16" => (
+            Arith::Fixed16,
+            CoreTables::Fixed(t.fixed_tables(form).unwrap()),
+        ),
+        _ => (
+            Arith::Fixed32,
+            CoreTables::Fixed(t.fixed_tables(form).unwrap()),
+        ),
+    };
+    let mut runner = ClipRunner::log_mel(config, a, tables, a != Arith::F32).unwrap();
+    let bands = runner.values_per_frame();
+    let mut out = runner.kind().empty();
+    // Fed in chunks of 128, as the firmware's DMA-sized pieces.
+    for piece in samples.chunks(128) {
+        runner.push(SampleSlice::I16(piece), &mut out);
     }
+    let words: Vec<u32> = match out {
+        FlatValues::F32(v) => v.into_iter().map(f32::to_bits).collect(),
+        FlatValues::I16(v) => v.into_iter().map(|x| x as u16 as u32).collect(),
+        other => panic!("log-mel frames of an unexpected type: {other:?}"),
+    };
+    words.chunks(bands).map(|c| c.to_vec()).collect()
 }
 
 #[test]
@@ -382,7 +385,6 @@ fn firmware_frames_equal_the_host_and_figures_are_collected() {
 fn model_input_builds(qemu: &Path, clip_path: &Path, samples: &[i16]) {
     use stapes_core::crc32::Crc32;
     use stapes_sim::check::{Arith, CoreTables};
-    use stapes_sim::run::Samples;
     let form = FilterbankForm::Sparse;
     println!(
         "| model input (int8, 49-frame window) | arith | core | RAM B (state + stack) | instructions per frame: filterbank / stages after it / sample intake and window push | total | frames and windows vs host |"
@@ -398,16 +400,28 @@ fn model_input_builds(qemu: &Path, clip_path: &Path, samples: &[i16]) {
                 Arith::F32 => CoreTables::Float(t.view_f32(form)),
                 _ => CoreTables::Fixed(t.fixed_tables(form).unwrap()),
             };
-            let run = stapes_sim::stage_check::run_arith(
-                arith,
+            // The runner `export` and the Python module use.
+            let mut runner = stapes_sim::clip_runner::ClipRunner::new(
                 &config,
+                arith,
                 core,
                 &stage_tables,
-                &Samples::I16(samples.to_vec()),
-                128,
+                None,
+                true,
             )
             .unwrap();
-            let codes = run.last().raw.clone().unwrap();
+            let values = runner.values_per_frame();
+            let mut flat = runner.kind().empty();
+            for piece in samples.chunks(128) {
+                runner.push(stapes_sim::clip_runner::SampleSlice::I16(piece), &mut flat);
+            }
+            let codes: Vec<Vec<i64>> = (0..flat.len() / values)
+                .map(|f| {
+                    (0..values)
+                        .map(|j| flat.get_f64(f * values + j) as i64)
+                        .collect()
+                })
+                .collect();
             let w = config.stages.model_window.unwrap();
             let (f, k) = (w.frames as usize, w.stride as usize);
             let mut crcs = Vec::new();

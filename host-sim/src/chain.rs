@@ -61,6 +61,18 @@ impl StageOut<'_> {
         self.len() == 0
     }
 
+    /// The first `n` values (all when there are fewer).
+    pub fn head(self, n: usize) -> Self {
+        match self {
+            StageOut::Float(v) => StageOut::Float(&v[..n.min(v.len())]),
+            StageOut::Level(v) => StageOut::Level(&v[..n.min(v.len())]),
+            StageOut::Pcen(v) => StageOut::Pcen(&v[..n.min(v.len())]),
+            StageOut::Cepstrum(v) => StageOut::Cepstrum(&v[..n.min(v.len())]),
+            StageOut::Int8(v) => StageOut::Int8(&v[..n.min(v.len())]),
+            StageOut::Uint8(v) => StageOut::Uint8(&v[..n.min(v.len())]),
+        }
+    }
+
     /// Whether the values are the board's exact integers (fixed stages and
     /// codes), not `f32`.
     pub fn is_integer(&self) -> bool {
@@ -90,6 +102,33 @@ impl StageOut<'_> {
             StageOut::Uint8(v) => v[i] as i64,
         })
     }
+}
+
+/// `config` with the stages after position `last` of [`stage_names`]
+/// removed (the window of frames is not a per-frame stage and goes too).
+fn truncated(config: &FeatureConfig, last: usize) -> FeatureConfig {
+    let names = stage_names(config);
+    let keep = |name: &str| {
+        names
+            .iter()
+            .position(|n| *n == name)
+            .is_some_and(|i| i <= last)
+    };
+    let mut c = *config;
+    let s = &mut c.stages;
+    if !keep("range_floor") {
+        s.range_floor = None;
+    }
+    if !keep("mfcc") {
+        s.mfcc = None;
+    }
+    if !keep("quantise") {
+        s.quantise = None;
+        if !keep("normalise") {
+            s.normalise = false;
+        }
+    }
+    c
 }
 
 /// Names of the configured stages, in chain order.
@@ -151,6 +190,13 @@ fn err(e: impl std::fmt::Display) -> anyhow::Error {
 impl<'t> FloatChain<'t> {
     /// The chain `config` names, reading `stages`.
     pub fn new(config: &FeatureConfig, stages: &StageTables<'t>) -> Result<Self> {
+        Self::up_to(config, stages, usize::MAX)
+    }
+
+    /// The chain's stages up to position `last` of [`stage_names`] (the
+    /// later ones are neither built nor run).
+    pub fn up_to(config: &FeatureConfig, stages: &StageTables<'t>, last: usize) -> Result<Self> {
+        let config = &truncated(config, last);
         let st = &config.stages;
         let level = match st.pcen {
             Some(p) => {
@@ -326,7 +372,20 @@ impl<'t> FixedChain<'t> {
         tables: &FixedTables<'t>,
         stages: &StageTables<'t>,
     ) -> Result<Self> {
+        Self::up_to(config, tables, stages, usize::MAX)
+    }
+
+    /// The chain's stages up to position `last` of [`stage_names`].
+    pub fn up_to(
+        config: &FeatureConfig,
+        tables: &FixedTables<'t>,
+        stages: &StageTables<'t>,
+        last: usize,
+    ) -> Result<Self> {
+        let full = config;
+        let config = &truncated(config, last);
         let st = &config.stages;
+        let _ = full;
         if st.normalise && st.quantise.is_none() {
             bail!(
                 "the fixed-point arithmetics normalise only folded into the quantiser: add \

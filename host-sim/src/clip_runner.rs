@@ -217,6 +217,15 @@ pub struct ClipRunner<'t> {
     scratch: Vec<i16>,
 }
 
+/// The configuration without its stages after the filterbank: the plain
+/// log-mel front end's (the energies are the same; only the chain differs).
+fn without_stages(config: &FeatureConfig) -> FeatureConfig {
+    FeatureConfig {
+        stages: stapes_core::StageConfig::NONE,
+        ..*config
+    }
+}
+
 /// Which output a stage and `raw` give in `arith`, or why none.
 fn output_kind(config: &FeatureConfig, arith: Arith, name: &str, raw: bool) -> Result<OutputKind> {
     use stapes_core::CodeRange;
@@ -250,10 +259,12 @@ fn frame_values(config: &FeatureConfig, stage: &str) -> usize {
 
 fn fixed_engine<'t, P: FixedArithmetic>(
     config: &FeatureConfig,
+    chain_config: &FeatureConfig,
     tables: stapes_core::fixed_tables::FixedTables<'t>,
     stages: &StageTables<'t>,
+    last: usize,
 ) -> Result<(Box<HostFixed<'t, P>>, FixedChain<'t>)> {
-    let chain = FixedChain::new(config, &tables, stages)?;
+    let chain = FixedChain::up_to(chain_config, &tables, stages, last)?;
     let fe = Box::new(
         HostFixed::<P>::with_stages(*config, tables, Unchanged).map_err(|e| anyhow!("{e}"))?,
     );
@@ -272,7 +283,20 @@ impl<'t> ClipRunner<'t> {
         stage: Option<&str>,
         raw: bool,
     ) -> Result<Self> {
-        let names = stage_names(config);
+        Self::with_chain_config(config, config, arith, tables, stages, stage, raw)
+    }
+
+    /// The front end of `config` with the chain `chain_config` names.
+    fn with_chain_config(
+        config: &FeatureConfig,
+        chain_config: &FeatureConfig,
+        arith: Arith,
+        tables: CoreTables<'t>,
+        stages: &StageTables<'t>,
+        stage: Option<&str>,
+        raw: bool,
+    ) -> Result<Self> {
+        let names = stage_names(chain_config);
         let stage_index = match stage {
             Some(n) => names.iter().position(|s| *s == n).ok_or_else(|| {
                 anyhow!(
@@ -283,21 +307,23 @@ impl<'t> ClipRunner<'t> {
             None => names.len() - 1,
         };
         let stage_name = names[stage_index];
-        let kind = output_kind(config, arith, stage_name, raw)?;
+        let kind = output_kind(chain_config, arith, stage_name, raw)?;
         let engine = match (arith, tables) {
             (Arith::F32, CoreTables::Float(t)) => {
-                let chain = FloatChain::new(config, stages)?;
+                let chain = FloatChain::up_to(chain_config, stages, stage_index)?;
                 let fe = Box::new(
                     HostFloat::with_stages(*config, t, Unchanged).map_err(|e| anyhow!("{e}"))?,
                 );
                 Engine::Float(fe, chain)
             }
             (Arith::Fixed16, CoreTables::Fixed(t)) => {
-                let (fe, chain) = fixed_engine::<Fixed16>(config, t, stages)?;
+                let (fe, chain) =
+                    fixed_engine::<Fixed16>(config, chain_config, t, stages, stage_index)?;
                 Engine::Fixed16(fe, chain)
             }
             (Arith::Fixed32, CoreTables::Fixed(t)) => {
-                let (fe, chain) = fixed_engine::<Fixed32>(config, t, stages)?;
+                let (fe, chain) =
+                    fixed_engine::<Fixed32>(config, chain_config, t, stages, stage_index)?;
                 Engine::Fixed32(fe, chain)
             }
             _ => bail!("the tables do not match the arithmetic {}", arith.name()),
@@ -309,9 +335,25 @@ impl<'t> ClipRunner<'t> {
             stage_index,
             stage_name,
             kind,
-            values: frame_values(config, stage_name),
+            values: frame_values(chain_config, stage_name).min(frame_values(config, stage_name)),
             scratch: Vec::new(),
         })
+    }
+
+    /// The plain log-mel bands of any configuration (its stages after the
+    /// filterbank left out): what the board's default front end gives, as
+    /// `float32` or (`raw`, fixed arithmetics) the exact `int16`.
+    pub fn log_mel(
+        config: &FeatureConfig,
+        arith: Arith,
+        tables: CoreTables<'t>,
+        raw: bool,
+    ) -> Result<Self> {
+        let plain = without_stages(config);
+        let mut runner =
+            Self::with_chain_config(config, &plain, arith, tables, &StageTables::NONE, None, raw)?;
+        runner.values = config.bands as usize;
+        Ok(runner)
     }
 
     /// The configuration.
@@ -381,7 +423,7 @@ impl<'t> ClipRunner<'t> {
         observer: Option<Observer<'_>>,
     ) -> usize {
         let mut observer = observer;
-        let keep = self.stage_index;
+        let keep = (self.stage_index, self.values);
         let mut scratch = std::mem::take(&mut self.scratch);
         let frames = match &mut self.engine {
             Engine::Float(fe, chain) => match samples {
@@ -454,7 +496,7 @@ pub struct Observer<'o> {
 /// Hands stage `keep` of each frame to `out`, and the observed stage to
 /// its callback.
 fn keeper<'a>(
-    keep: usize,
+    (keep, limit): (usize, usize),
     out: &'a mut FlatValues,
     observer: &'a mut Option<Observer<'_>>,
     frame: usize,
@@ -462,7 +504,7 @@ fn keeper<'a>(
     let mut k = 0;
     move |s| {
         if k == keep {
-            out.push(s);
+            out.push(s.head(limit));
         }
         if let Some(o) = observer.as_mut()
             && o.stage == k
@@ -477,7 +519,7 @@ fn drive_float<X: stapes_core::sample::Sample>(
     fe: &mut HostFloat<'_>,
     chain: &mut FloatChain<'_>,
     mut rest: &[X],
-    keep: usize,
+    keep: (usize, usize),
     out: &mut FlatValues,
     observer: &mut Option<Observer<'_>>,
 ) -> usize {
@@ -497,7 +539,7 @@ fn drive_fixed<P: FixedArithmetic>(
     fe: &mut HostFixed<'_, P>,
     chain: &mut FixedChain<'_>,
     mut rest: &[i16],
-    keep: usize,
+    keep: (usize, usize),
     out: &mut FlatValues,
     observer: &mut Option<Observer<'_>>,
 ) -> usize {
