@@ -33,6 +33,7 @@ espeak-ng --version | head -n 1
 
 step "formatting"
 cargo fmt --all --check
+cargo fmt --manifest-path host-sim/python/Cargo.toml --check
 
 step "tests: generator, core, reference, CLI, speech corpus, golden bits, float-free proof, firmware under QEMU (overflow checks on)"
 cargo test --workspace
@@ -65,5 +66,13 @@ if [ ! -x .venv/bin/python ]; then
 fi
 .venv/bin/python -c 'import numpy, scipy' 2>/dev/null || .venv/bin/pip install -q numpy scipy
 .venv/bin/python tests/python/numpy_cross_check.py "$demo_dir"
+
+step "Python module: wheel built with maturin, installed in .venv, pytest against the CLI and export"
+.venv/bin/python -c 'import maturin, pytest' 2>/dev/null || .venv/bin/pip install -q "maturin>=1.16,<2" pytest
+rm -rf target/wheels
+CARGO_TARGET_DIR="$PWD/target" .venv/bin/maturin build --release -q \
+  -m host-sim/python/Cargo.toml -o target/wheels
+.venv/bin/pip install -q --force-reinstall --no-deps target/wheels/stapes-*.whl
+STAPES_BIN="$PWD/target/release/stapes" .venv/bin/python -m pytest -q tests/python/test_module.py
 
 step "all tests passed"

@@ -673,62 +673,105 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
                 bar.inc(shard.len() as u64);
                 continue;
             }
-            let results: Vec<Result<Done>> = pool.install(|| {
-                shard
-                    .par_iter()
-                    .map_init(
-                        || {
-                            ClipRunner::new(
-                                &config,
-                                arith,
-                                tables,
-                                &stage_tables,
-                                Some(stage),
-                                a.raw,
-                            )
-                        },
-                        |runner, &item| {
-                            if stop.load(Ordering::Relaxed) {
-                                return Err(anyhow!("stopped"));
-                            }
-                            let r = match runner {
-                                Ok(r) => setup.process(r, item, with_sums),
-                                Err(e) => Err(anyhow!("{e}")),
-                            };
-                            if r.is_err() && a.strict {
-                                stop.store(true, Ordering::Relaxed);
-                            }
-                            bar.inc(1);
-                            r
-                        },
-                    )
-                    .collect()
-            });
+            // Blocks of clips run on every core while the block before is
+            // written on a thread of its own.
+            let writer = match (a.per_clip, frames) {
+                (false, Some(n)) => Some(crate::npy::PackedWriter::create(
+                    &dir.join(shard_name("features", k, "npy")),
+                    crate::npy::descr(&kind.empty()),
+                    shard.len(),
+                    &[n, values],
+                )?),
+                _ => None,
+            };
+            let block = (pool.current_num_threads() * 16).max(32);
             let mut done = Vec::new();
             let mut failed = Vec::new();
-            for (item, r) in shard.iter().zip(results) {
-                let clip = &data.clips[item.clip];
-                match r {
-                    Ok(d) => done.push(d),
-                    Err(e) => {
-                        if a.strict {
-                            bar.finish_and_clear();
-                            return Err(e.context(format!(
-                                "--strict: {} (copy {}) failed; the shards before it are kept \
-                                 and a rerun resumes after them",
-                                clip.relative, item.copy
-                            )));
+            let writer = std::thread::scope(|scope| -> Result<_> {
+                let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<FlatValues>>(2);
+                let writing = scope.spawn(move || -> Result<Option<crate::npy::PackedWriter>> {
+                    let mut writer = writer;
+                    for batch in rx {
+                        if let Some(w) = writer.as_mut() {
+                            for v in &batch {
+                                w.append(v.as_bytes())?;
+                            }
                         }
-                        failed.push((
-                            clip.relative.clone(),
-                            clip.split.clone(),
-                            item.copy,
-                            format!("{e:#}"),
-                        ));
+                    }
+                    Ok(writer)
+                });
+                for part in shard.chunks(block) {
+                    let results: Vec<Result<Done>> = pool.install(|| {
+                        part.par_iter()
+                            .map_init(
+                                || {
+                                    ClipRunner::new(
+                                        &config,
+                                        arith,
+                                        tables,
+                                        &stage_tables,
+                                        Some(stage),
+                                        a.raw,
+                                    )
+                                },
+                                |runner, &item| {
+                                    if stop.load(Ordering::Relaxed) {
+                                        return Err(anyhow!("stopped"));
+                                    }
+                                    let r = match runner {
+                                        Ok(r) => setup.process(r, item, with_sums),
+                                        Err(e) => Err(anyhow!("{e}")),
+                                    };
+                                    if r.is_err() && a.strict {
+                                        stop.store(true, Ordering::Relaxed);
+                                    }
+                                    bar.inc(1);
+                                    r
+                                },
+                            )
+                            .collect()
+                    });
+                    let mut batch = Vec::new();
+                    for (item, r) in part.iter().zip(results) {
+                        let clip = &data.clips[item.clip];
+                        match r {
+                            Ok(mut d) => {
+                                if !setup.per_clip {
+                                    batch.push(std::mem::replace(&mut d.values, kind.empty()));
+                                }
+                                done.push(d);
+                            }
+                            Err(e) => {
+                                if a.strict {
+                                    return Err(e.context(format!(
+                                        "--strict: {} (copy {}) failed; the shards before it \
+                                         are kept and a rerun resumes after them",
+                                        clip.relative, item.copy
+                                    )));
+                                }
+                                failed.push((
+                                    clip.relative.clone(),
+                                    clip.split.clone(),
+                                    item.copy,
+                                    format!("{e:#}"),
+                                ));
+                            }
+                        }
+                    }
+                    if tx.send(batch).is_err() {
+                        break; // the writer stopped on an error, reported below
                     }
                 }
+                drop(tx);
+                writing
+                    .join()
+                    .map_err(|_| anyhow!("the writing thread failed"))?
+            })
+            .inspect_err(|_| bar.finish_and_clear())?;
+            if let Some(w) = writer {
+                w.finish(done.len())?;
             }
-            write_shard(&setup, &dir, k, &done, &failed, with_sums, frames, values)?;
+            write_shard(&setup, &dir, k, &done, &failed, with_sums, values)?;
             tally.shards_written += 1;
             tally.done += done.len();
             tally.failed += failed.len();
@@ -786,7 +829,6 @@ fn write_shard(
     done: &[Done],
     failed: &[(String, String, u32, String)],
     with_sums: bool,
-    frames: Option<usize>,
     values: usize,
 ) -> Result<()> {
     if setup.per_clip {
@@ -796,27 +838,6 @@ fn write_shard(
             crate::npy::write_flat(&path, &[n, values], &d.values)?;
         }
     } else {
-        let n = frames.expect("packed output has a fixed length");
-        let mut all = done
-            .first()
-            .map_or(FlatValues::F32(Vec::new()), |d| match &d.values {
-                FlatValues::F32(_) => FlatValues::F32(Vec::new()),
-                FlatValues::I16(_) => FlatValues::I16(Vec::new()),
-                FlatValues::I32(_) => FlatValues::I32(Vec::new()),
-                FlatValues::I8(_) => FlatValues::I8(Vec::new()),
-                FlatValues::U8(_) => FlatValues::U8(Vec::new()),
-            });
-        if done.is_empty() {
-            all = crate::clip_runner::OutputKind::empty(kind_of(setup.dtype));
-        }
-        for d in done {
-            all.extend_from(&d.values, 0..d.values.len());
-        }
-        crate::npy::write_flat(
-            &dir.join(shard_name("features", k, "npy")),
-            &[done.len(), n, values],
-            &all,
-        )?;
         let labels: Vec<i32> = done.iter().map(|d| d.row.label_index as i32).collect();
         crate::npy::write_i32_vector(&dir.join(shard_name("labels", k, "npy")), &labels)?;
     }
@@ -844,17 +865,6 @@ fn write_shard(
         &dir.join(shard_name("manifest", k, "csv")),
         &setup.manifest_csv(&rows)?,
     )
-}
-
-fn kind_of(dtype: &str) -> crate::clip_runner::OutputKind {
-    use crate::clip_runner::OutputKind;
-    match dtype {
-        "int16" => OutputKind::Int16,
-        "int32" => OutputKind::Int32,
-        "int8" => OutputKind::Int8,
-        "uint8" => OutputKind::Uint8,
-        _ => OutputKind::Float32,
-    }
 }
 
 /// `<dir>/manifest.csv`: every shard's rows, in order (rows numbered

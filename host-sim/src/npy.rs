@@ -148,3 +148,76 @@ pub fn write_i32_vector(path: &Path, values: &[i32]) -> Result<()> {
     bytes.extend_from_slice(bytemuck::cast_slice(values));
     crate::output::write_atomic(path, &bytes)
 }
+
+/// An array written a block of rows at a time: its header is reserved for
+/// `most_rows` and rewritten with the rows actually written (padded with
+/// spaces to the same length, which the format allows) when it is
+/// finished; the file appears at its path only then.
+pub struct PackedWriter {
+    staged: crate::output::Staged,
+    buffer: Vec<u8>,
+    descr: &'static str,
+    row_shape: Vec<usize>,
+    header_len: usize,
+}
+
+impl PackedWriter {
+    /// Starts `path` for at most `most_rows` rows of `row_shape` (`descr`
+    /// values).
+    pub fn create(
+        path: &Path,
+        descr: &'static str,
+        most_rows: usize,
+        row_shape: &[usize],
+    ) -> Result<PackedWriter> {
+        use std::io::Write as _;
+        let mut shape = vec![most_rows];
+        shape.extend_from_slice(row_shape);
+        let header = header(descr, &shape);
+        let mut staged = crate::output::Staged::new(path)?;
+        staged.file().write_all(&header)?;
+        Ok(PackedWriter {
+            staged,
+            buffer: Vec::with_capacity(1 << 20),
+            descr,
+            row_shape: row_shape.to_vec(),
+            header_len: header.len(),
+        })
+    }
+
+    /// Appends rows' values (little-endian bytes).
+    pub fn append(&mut self, bytes: &[u8]) -> Result<()> {
+        use std::io::Write as _;
+        if self.buffer.len() + bytes.len() > self.buffer.capacity() {
+            self.staged.file().write_all(&self.buffer)?;
+            self.buffer.clear();
+        }
+        if bytes.len() > self.buffer.capacity() {
+            self.staged.file().write_all(bytes)?;
+        } else {
+            self.buffer.extend_from_slice(bytes);
+        }
+        Ok(())
+    }
+
+    /// Writes the header for `rows` rows and moves the file into place.
+    pub fn finish(mut self, rows: usize) -> Result<()> {
+        use std::io::{Seek, SeekFrom, Write as _};
+        self.staged.file().write_all(&self.buffer)?;
+        let mut shape = vec![rows];
+        shape.extend_from_slice(&self.row_shape);
+        let mut h = header(self.descr, &shape);
+        anyhow::ensure!(h.len() <= self.header_len, "the header outgrew its room");
+        // Pad the dictionary (before its final newline) to the room kept.
+        let extra = self.header_len - h.len();
+        h.pop();
+        h.extend(std::iter::repeat_n(b' ', extra));
+        h.push(b'\n');
+        let dict_len = (h.len() - 10) as u16;
+        h[8..10].copy_from_slice(&dict_len.to_le_bytes());
+        let f = self.staged.file();
+        f.seek(SeekFrom::Start(0))?;
+        f.write_all(&h)?;
+        self.staged.commit()
+    }
+}

@@ -126,3 +126,52 @@ fn move_into_place(
     }
     Ok(previous)
 }
+
+/// A file written in pieces beside its destination and moved into place
+/// only when [`Staged::commit`] is called (flushed to the disk first);
+/// dropped without a commit, it is removed.
+pub struct Staged {
+    tmp: tempfile::NamedTempFile,
+    path: std::path::PathBuf,
+}
+
+impl Staged {
+    /// A new temporary file beside `path` (its folder created).
+    pub fn new(path: &Path) -> Result<Staged> {
+        let dir = folder_of(path);
+        std::fs::create_dir_all(dir)
+            .with_context(|| format!("cannot create folder {}", dir.display()))?;
+        let tmp = tempfile::NamedTempFile::new_in(dir)
+            .with_context(|| format!("cannot create a temporary file in {}", dir.display()))?;
+        Ok(Staged {
+            tmp,
+            path: path.to_path_buf(),
+        })
+    }
+
+    /// The file being written.
+    pub fn file(&mut self) -> &mut std::fs::File {
+        self.tmp.as_file_mut()
+    }
+
+    /// Flushes the file to the disk and moves it to its destination.
+    pub fn commit(self) -> Result<()> {
+        let path = self.path;
+        self.tmp
+            .as_file()
+            .sync_all()
+            .with_context(|| format!("cannot flush {} to the disk", path.display()))?;
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::PermissionsExt;
+            self.tmp
+                .as_file()
+                .set_permissions(std::fs::Permissions::from_mode(0o644))
+                .ok();
+        }
+        self.tmp
+            .persist(&path)
+            .with_context(|| format!("cannot move the finished file to {}", path.display()))?;
+        Ok(())
+    }
+}

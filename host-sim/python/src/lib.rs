@@ -84,8 +84,15 @@ fn runner<'t>(
     let tables: CoreTables<'t> = loaded
         .core_tables(s.arith, stapes_core::table::FilterbankForm::Sparse)
         .map_err(value_error)?;
-    ClipRunner::new(&config, s.arith, tables, stage_tables, s.stage.as_deref(), s.raw)
-        .map_err(|e| value_error(format!("{e:#}")))
+    ClipRunner::new(
+        &config,
+        s.arith,
+        tables,
+        stage_tables,
+        s.stage.as_deref(),
+        s.raw,
+    )
+    .map_err(|e| value_error(format!("{e:#}")))
 }
 
 /// A 1-D, C-contiguous int16 or float32 array as samples.
@@ -126,7 +133,11 @@ fn check_rate(loaded: &LoadedTables, rate: u32) -> PyResult<()> {
 }
 
 /// A flat buffer as a numpy array of `shape`.
-fn to_numpy<'py>(py: Python<'py>, values: FlatValues, shape: &[usize]) -> PyResult<Bound<'py, PyAny>> {
+fn to_numpy<'py>(
+    py: Python<'py>,
+    values: FlatValues,
+    shape: &[usize],
+) -> PyResult<Bound<'py, PyAny>> {
     fn make<'py, T: numpy::Element>(
         py: Python<'py>,
         v: Vec<T>,
@@ -206,7 +217,11 @@ impl StreamingFrontEnd {
     /// Feeds `samples` (1-D int16 or float32); returns the frames they
     /// complete as a `[frames, values]` array (0 frames until a window
     /// fills).
-    fn push<'py>(&mut self, py: Python<'py>, samples: &Bound<'py, PyAny>) -> PyResult<Bound<'py, PyAny>> {
+    fn push<'py>(
+        &mut self,
+        py: Python<'py>,
+        samples: &Bound<'py, PyAny>,
+    ) -> PyResult<Bound<'py, PyAny>> {
         let x = samples_of(samples)?;
         let values = self.values;
         let out = self.cell.with_dependent_mut(|_, d| {
@@ -238,13 +253,19 @@ impl StreamingFrontEnd {
     /// NumPy's name of the output dtype.
     #[getter]
     fn dtype(&self) -> &'static str {
-        self.cell.with_dependent(|_, d| d.runner.kind().numpy_name())
+        self.cell
+            .with_dependent(|_, d| d.runner.kind().numpy_name())
     }
 
     /// The configuration's fingerprint (the tables' CRC-32 tie).
     #[getter]
     fn fingerprint(&self) -> PyResult<u32> {
-        Ok(self.cell.borrow_owner().config().map_err(value_error)?.fingerprint())
+        Ok(self
+            .cell
+            .borrow_owner()
+            .config()
+            .map_err(value_error)?
+            .fingerprint())
     }
 
     /// Values the quantiser clamped since the last reset.
@@ -316,10 +337,12 @@ fn features_batch<'py>(
     let inputs: Vec<Samples> = clips
         .iter()
         .enumerate()
-        .map(|(i, c)| samples_of(c).map_err(|e| {
-            let kind = e.get_type(py);
-            PyErr::from_type(kind, format!("clip {i}: {}", e.value(py)))
-        }))
+        .map(|(i, c)| {
+            samples_of(c).map_err(|e| {
+                let kind = e.get_type(py);
+                PyErr::from_type(kind, format!("clip {i}: {}", e.value(py)))
+            })
+        })
         .collect::<PyResult<_>>()?;
     let loaded = load_tables(preset, config, table_blob)?;
     check_rate(&loaded, sample_rate_hz)?;
