@@ -571,6 +571,7 @@ struct Tally {
     failed: usize,
     shards_written: usize,
     shards_kept: usize,
+    shards_redone: usize,
     padded: usize,
     trimmed: usize,
     per_label: BTreeMap<String, usize>,
@@ -637,7 +638,7 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
     let plan = plan_text(a, &setup, &loaded, values)?;
     let resumed = prepare_output(out, &plan)?;
     let labels: String = data.labels.iter().map(|l| format!("{l}\n")).collect();
-    crate::output::write_atomic(&out.join("labels.txt"), labels.as_bytes())?;
+    crate::output::write_atomic_unsynced(&out.join("labels.txt"), labels.as_bytes())?;
 
     let splits = data.splits();
     let work: Vec<(String, Vec<Item>)> =
@@ -657,6 +658,12 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
         let with_sums = split_name == "train";
         for (k, shard) in items.chunks(a.shard_clips).enumerate() {
             let manifest = dir.join(shard_name("manifest", k, "csv"));
+            if manifest.exists() && !shard_is_whole(&setup, &dir, k, values, kind, with_sums)? {
+                // Written before a power cut, say: done again.
+                std::fs::remove_file(&manifest)
+                    .with_context(|| format!("cannot remove {}", manifest.display()))?;
+                tally.shards_redone += 1;
+            }
             if manifest.exists() {
                 tally.shards_kept += 1;
                 tally.done += csv_rows(&manifest)?;
@@ -812,7 +819,7 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
         started.elapsed().as_secs_f64(),
         out,
     );
-    crate::output::write_atomic(&out.join("summary.txt"), summary.as_bytes())?;
+    crate::output::write_atomic_unsynced(&out.join("summary.txt"), summary.as_bytes())?;
     crate::say_text!(summary);
     Ok(if failed_total > 0 {
         Outcome::SomeFailed
@@ -835,14 +842,16 @@ fn write_shard(
         for d in done {
             let path = dir.join(&d.row.file);
             let n = d.values.len() / values;
-            crate::npy::write_flat(&path, &[n, values], &d.values)?;
+            let mut bytes = crate::npy::header(crate::npy::descr(&d.values), &[n, values]);
+            bytes.extend_from_slice(d.values.as_bytes());
+            crate::output::write_atomic_unsynced(&path, &bytes)?;
         }
     } else {
         let labels: Vec<i32> = done.iter().map(|d| d.row.label_index as i32).collect();
         crate::npy::write_i32_vector(&dir.join(shard_name("labels", k, "npy")), &labels)?;
     }
     if !failed.is_empty() {
-        crate::output::write_atomic(
+        crate::output::write_atomic_unsynced(
             &dir.join(shard_name("failed", k, "csv")),
             &failed_csv(failed)?,
         )?;
@@ -854,17 +863,80 @@ fn write_shard(
                 sums.add(s);
             }
         }
-        crate::output::write_atomic(
+        crate::output::write_atomic_unsynced(
             &dir.join(shard_name("sums", k, "txt")),
             sums.to_text().as_bytes(),
         )?;
     }
-    // Last: the manifest marks the shard finished.
+    // Last: the manifest marks the shard finished, the shard's one file
+    // flushed to the disk (a resumed export checks the others' sizes).
     let rows: Vec<ManifestRow> = done.iter().map(|d| d.row.clone()).collect();
     crate::output::write_atomic(
         &dir.join(shard_name("manifest", k, "csv")),
         &setup.manifest_csv(&rows)?,
     )
+}
+
+/// Whether a finished shard's files are all there and of the sizes its
+/// manifest implies.
+fn shard_is_whole(
+    setup: &Setup<'_>,
+    dir: &Path,
+    k: usize,
+    values: usize,
+    kind: crate::clip_runner::OutputKind,
+    with_sums: bool,
+) -> Result<bool> {
+    let size = |p: &Path| std::fs::metadata(p).map(|m| m.len() as usize).ok();
+    let manifest = dir.join(shard_name("manifest", k, "csv"));
+    let text = std::fs::read_to_string(&manifest)
+        .with_context(|| format!("cannot read {}", manifest.display()))?;
+    let mut reader = csv::Reader::from_reader(text.as_bytes());
+    let header = reader.headers()?.clone();
+    if header.iter().collect::<Vec<_>>() != MANIFEST_HEADER {
+        return Ok(false);
+    }
+    let rows: Vec<csv::StringRecord> = match reader.records().collect() {
+        Ok(r) => r,
+        Err(_) => return Ok(false),
+    };
+    let descr = crate::npy::descr(&kind.empty());
+    let frames_col = MANIFEST_HEADER
+        .iter()
+        .position(|c| *c == "frames")
+        .expect("column");
+    let file_col = MANIFEST_HEADER
+        .iter()
+        .position(|c| *c == "features_file")
+        .expect("column");
+    if setup.per_clip {
+        for r in &rows {
+            let Ok(frames) = r[frames_col].parse::<usize>() else {
+                return Ok(false);
+            };
+            let want = crate::npy::file_size(descr, &[frames, values], kind.size());
+            if size(&dir.join(&r[file_col])) != Some(want) {
+                return Ok(false);
+            }
+        }
+    } else {
+        let n = setup.frames.expect("packed output has a fixed length");
+        let features = crate::npy::file_size(descr, &[rows.len(), n, values], kind.size());
+        let labels = crate::npy::file_size("<i4", &[rows.len()], 4);
+        if size(&dir.join(shard_name("features", k, "npy"))) != Some(features)
+            || size(&dir.join(shard_name("labels", k, "npy"))) != Some(labels)
+        {
+            return Ok(false);
+        }
+    }
+    if with_sums {
+        let p = dir.join(shard_name("sums", k, "txt"));
+        match std::fs::read_to_string(&p) {
+            Ok(t) if Sums::from_text(&t, &p).is_ok() => {}
+            _ => return Ok(false),
+        }
+    }
+    Ok(true)
 }
 
 /// `<dir>/manifest.csv`: every shard's rows, in order (rows numbered
@@ -886,7 +958,7 @@ fn join_manifests(dir: &Path, shards: usize) -> Result<()> {
         };
         joined.extend_from_slice(body);
     }
-    crate::output::write_atomic(&dir.join("manifest.csv"), &joined)
+    crate::output::write_atomic_unsynced(&dir.join("manifest.csv"), &joined)
 }
 
 fn plan_text(
@@ -1021,7 +1093,7 @@ fn write_statistics(
     let _ = writeln!(text, "[stages.normalise]");
     let _ = writeln!(text, "mean = [{}]", list(&mean));
     let _ = writeln!(text, "deviation = [{}]", list(&deviation));
-    crate::output::write_atomic(&out.join("statistics.toml"), text.as_bytes())?;
+    crate::output::write_atomic_unsynced(&out.join("statistics.toml"), text.as_bytes())?;
     // The tables of the configuration with this normaliser: what the
     // board's normaliser and quantiser read.
     let normalised = FeatureConfig {
@@ -1132,12 +1204,17 @@ fn summary_text(
             .join(", ");
         let _ = writeln!(
             t,
-            "  {name}: {} rows, {} failed; shards written {}, kept from before {}; padded {}, \
+            "  {name}: {} rows, {} failed; shards written {}, kept from before {}{}; padded {}, \
              trimmed {}{}",
             tally.done,
             tally.failed,
             tally.shards_written,
             tally.shards_kept,
+            if tally.shards_redone > 0 {
+                format!(" ({} found incomplete and redone)", tally.shards_redone)
+            } else {
+                String::new()
+            },
             tally.padded,
             tally.trimmed,
             if labels.is_empty() {

@@ -142,11 +142,18 @@ pub fn write_flat(
     crate::output::write_atomic(path, &bytes)
 }
 
-/// Writes `int32` `values` as a 1-D array, atomically.
+/// Writes `int32` `values` as a 1-D array, atomically, without waiting
+/// for the disk ([`crate::output::write_atomic_unsynced`]).
 pub fn write_i32_vector(path: &Path, values: &[i32]) -> Result<()> {
     let mut bytes = header("<i4", &[values.len()]);
     bytes.extend_from_slice(bytemuck::cast_slice(values));
-    crate::output::write_atomic(path, &bytes)
+    crate::output::write_atomic_unsynced(path, &bytes)
+}
+
+/// The size in bytes of a `.npy` file written by [`header`] for `shape`
+/// and values of `size` bytes.
+pub fn file_size(descr: &str, shape: &[usize], size: usize) -> usize {
+    header(descr, shape).len() + shape.iter().product::<usize>() * size
 }
 
 /// An array written a block of rows at a time: its header is reserved for
@@ -218,6 +225,8 @@ impl PackedWriter {
         let f = self.staged.file();
         f.seek(SeekFrom::Start(0))?;
         f.write_all(&h)?;
-        self.staged.commit()
+        // The shard's manifest, written after it, is the one file flushed
+        // to the disk; a resumed export checks this file's size.
+        self.staged.commit_unsynced()
     }
 }

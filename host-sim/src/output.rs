@@ -11,6 +11,19 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
     write_atomic_with(path, |f| f.write_all(bytes).map_err(Into::into))
 }
 
+/// Writes `bytes` to `path` whole or not at all (a temporary file renamed
+/// into place) without waiting for the disk: a killed process leaves the
+/// old file or the new one, never a part; after a power cut the file may be
+/// empty, so a reader must be able to tell (`export` checks every shard's
+/// sizes before it keeps it).
+pub fn write_atomic_unsynced(path: &Path, bytes: &[u8]) -> Result<()> {
+    let mut s = Staged::new(path)?;
+    s.file()
+        .write_all(bytes)
+        .with_context(|| format!("cannot write {}", path.display()))?;
+    s.commit_unsynced()
+}
+
 /// Runs `fill` on a temporary file beside `path`, then renames it to `path`.
 /// On any error the temporary file is removed and `path` is left as it was.
 pub fn write_atomic_with(
@@ -156,11 +169,17 @@ impl Staged {
 
     /// Flushes the file to the disk and moves it to its destination.
     pub fn commit(self) -> Result<()> {
-        let path = self.path;
         self.tmp
             .as_file()
             .sync_all()
-            .with_context(|| format!("cannot flush {} to the disk", path.display()))?;
+            .with_context(|| format!("cannot flush {} to the disk", self.path.display()))?;
+        self.commit_unsynced()
+    }
+
+    /// Moves the file to its destination without waiting for the disk (see
+    /// [`write_atomic_unsynced`]).
+    pub fn commit_unsynced(self) -> Result<()> {
+        let path = self.path;
         #[cfg(unix)]
         {
             use std::os::unix::fs::PermissionsExt;

@@ -229,6 +229,19 @@ fn a_killed_export_resumes_without_redoing_finished_shards_and_matches_a_clean_r
     for (k, v) in &a {
         assert!(v == &b[k], "{k} differs from a clean run");
     }
+    // A shard whose features a power cut left short is found and redone.
+    let f = killed.join("train/features-00001.npy");
+    let len = std::fs::metadata(&f).unwrap().len();
+    std::fs::OpenOptions::new()
+        .write(true)
+        .open(&f)
+        .unwrap()
+        .set_len(len / 2)
+        .unwrap();
+    let (code, out, err) = stapes(&rerun);
+    assert_eq!(code, 0, "{out}{err}");
+    assert!(out.contains("1 found incomplete and redone"), "{out}");
+    assert_eq!(tree(&killed), b);
 }
 
 #[test]
