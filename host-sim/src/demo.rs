@@ -139,24 +139,29 @@ pub fn demo(a: &DemoArgs) -> Result<Outcome> {
         .iter()
         .map(|r| r.iter().map(|&v| v as f64).collect())
         .collect();
-    let top = run
-        .reference
-        .iter()
-        .flatten()
-        .copied()
-        .fold(f64::NEG_INFINITY, f64::max)
-        .ceil();
-    let range = (top - 80.0, top);
+    // The colour scale spans the data (both maps share it).
+    let finite = || {
+        run.reference
+            .iter()
+            .chain(&core_f64)
+            .flatten()
+            .copied()
+            .filter(|v| v.is_finite())
+    };
+    let top = finite().fold(f64::NEG_INFINITY, f64::max).ceil();
+    let bottom = finite().fold(f64::INFINITY, f64::min).floor();
+    let range = (bottom, top);
     let png = dir.join("log-mel-core.png");
     plots::heat_map(
         &png,
         &HeatMap {
-            title: "log-mel, stapes core (f32)",
+            title: "log-mel, stapes core (f32): dB = 10·log10(band energy), samples at ±1 full scale",
             values: &core_f64,
             hop_s,
             centres_hz: &centres,
             range,
             unit: "dB",
+            grey_means: None,
         },
     )?;
     wrote.push((png, "core log-mel spectrogram"));
@@ -164,12 +169,13 @@ pub fn demo(a: &DemoArgs) -> Result<Outcome> {
     plots::heat_map(
         &png,
         &HeatMap {
-            title: "log-mel, f64 reference",
+            title: "log-mel, f64 reference: dB = 10·log10(band energy), samples at ±1 full scale",
             values: &run.reference,
             hop_s,
             centres_hz: &centres,
             range,
             unit: "dB",
+            grey_means: None,
         },
     )?;
     wrote.push((png, "reference log-mel spectrogram"));
@@ -178,12 +184,13 @@ pub fn demo(a: &DemoArgs) -> Result<Outcome> {
     plots::heat_map(
         &png,
         &HeatMap {
-            title: "|core - reference| (grey: more than 60 dB below the frame's loudest band)",
+            title: "|core - reference| in dB",
             values: &run.primary().error_map,
             hop_s,
             centres_hz: &centres,
             range: (0.0, emax),
             unit: "dB",
+            grey_means: Some("not compared:\nover 60 dB below\nthe frame's peak"),
         },
     )?;
     wrote.push((png, "error between them"));
@@ -212,8 +219,18 @@ pub fn demo(a: &DemoArgs) -> Result<Outcome> {
         "speech16k-40 filterbank (f32 table weights at each FFT bin)",
         &triangles,
         config.sample_rate_hz as f64 / 2.0,
+        false,
     )?;
     wrote.push((png, "the filterbank's triangles"));
+    let png = dir.join("filterbank-mel-axis.png");
+    plots::filterbank(
+        &png,
+        "speech16k-40 filterbank on a mel-scaled axis (equal spacing in mel)",
+        &triangles,
+        config.sample_rate_hz as f64 / 2.0,
+        true,
+    )?;
+    wrote.push((png, "the same triangles against mel"));
 
     crate::say!("wrote:");
     for (path, what) in &wrote {

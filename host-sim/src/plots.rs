@@ -74,12 +74,31 @@ fn colour_bar(
     lo: f64,
     hi: f64,
     unit: &str,
+    grey_means: Option<&str>,
 ) -> Result<()> {
     let f = font();
     let span = (hi - lo).max(1e-12);
-    let mut scale = ChartBuilder::on(bar)
+    let (bar, swatch) = bar.split_vertically(bar.dim_in_pixel().1 as i32 - 70);
+    if let Some(text) = grey_means {
+        swatch
+            .draw(&Rectangle::new(
+                [(12, 8), (40, 30)],
+                RGBColor(200, 200, 200).filled(),
+            ))
+            .map_err(err(path))?;
+        for (i, line) in text.split('\n').enumerate() {
+            swatch
+                .draw(&Text::new(
+                    line.to_string(),
+                    (46, 8 + 15 * i as i32),
+                    (f, 12),
+                ))
+                .map_err(err(path))?;
+        }
+    }
+    let mut scale = ChartBuilder::on(&bar)
         .margin_top(40)
-        .margin_bottom(50)
+        .margin_bottom(10)
         .margin_right(10)
         .y_label_area_size(60)
         .caption(unit, (f, 14))
@@ -127,6 +146,29 @@ pub struct HeatMap<'a> {
     pub range: (f64, f64),
     /// Colour scale label.
     pub unit: &'a str,
+    /// What a grey (NaN) cell means, shown beside a grey swatch under the
+    /// colour scale when there is one.
+    pub grey_means: Option<&'a str>,
+}
+
+/// A band-index label at integer positions (cell centres) only.
+fn band_label(v: f64, bands: usize) -> String {
+    let r = v.round();
+    if (v - r).abs() < 1e-6 && r >= 0.0 && (r as usize) < bands {
+        format!("{r:.0}")
+    } else {
+        String::new()
+    }
+}
+
+/// The centre frequency of the band whose cell centre is at `v`.
+fn centre_label(v: f64, centres: &[f64]) -> String {
+    let r = v.round();
+    if (v - r).abs() < 1e-6 && r >= 0.0 && (r as usize) < centres.len() {
+        format!("{:.0}", centres[r as usize])
+    } else {
+        String::new()
+    }
 }
 
 /// Draws a frames × bands heat map to a PNG, written whole or not at all.
@@ -149,27 +191,27 @@ pub fn heat_map(path: &Path, map: &HeatMap<'_>) -> Result<()> {
             .x_label_area_size(40)
             .y_label_area_size(55)
             .right_y_label_area_size(65)
-            .build_cartesian_2d(0f64..t_max, 0f64..bands as f64)
+            // Band b's cell spans [b - 0.5, b + 0.5]: a label at b is at
+            // the cell's centre, and no label names a band that is not
+            // there.
+            .build_cartesian_2d(0f64..t_max, -0.5f64..bands as f64 - 0.5)
             .map_err(err(path))?
-            .set_secondary_coord(0f64..t_max, 0f64..bands as f64);
+            .set_secondary_coord(0f64..t_max, -0.5f64..bands as f64 - 0.5);
         chart
             .configure_mesh()
             .disable_mesh()
             .x_desc("time (s)")
             .y_desc("band index")
-            .y_label_formatter(&|b: &f64| format!("{b:.0}"))
+            .y_label_formatter(&|b: &f64| band_label(*b, bands))
             .label_style((f, 13))
             .axis_desc_style((f, 14))
             .draw()
             .map_err(err(path))?;
         chart
             .configure_secondary_axes()
-            .y_desc("band centre (Hz)")
+            .y_desc("band centre (Hz), at the cell's centre")
             .y_labels(8)
-            .y_label_formatter(&|b: &f64| {
-                let i = (b.floor() as usize).min(centres.len().saturating_sub(1));
-                format!("{:.0}", centres.get(i).copied().unwrap_or(0.0))
-            })
+            .y_label_formatter(&|b: &f64| centre_label(*b, &centres))
             .label_style((f, 13))
             .axis_desc_style((f, 14))
             .draw()
@@ -186,21 +228,39 @@ pub fn heat_map(path: &Path, map: &HeatMap<'_>) -> Result<()> {
                         palette((v - lo) / span)
                     };
                     Rectangle::new(
-                        [(t0, b as f64), (t0 + map.hop_s, b as f64 + 1.0)],
+                        [(t0, b as f64 - 0.5), (t0 + map.hop_s, b as f64 + 0.5)],
                         colour.filled(),
                     )
                 })
             }))
             .map_err(err(path))?;
 
-        colour_bar(&bar, path, lo, hi, map.unit)?;
+        let grey = map
+            .values
+            .iter()
+            .flatten()
+            .any(|v| v.is_nan())
+            .then_some(map.grey_means);
+        colour_bar(&bar, path, lo, hi, map.unit, grey.flatten())?;
         root.present().map_err(err(path))?;
     }
     finish_png(tmp, path)
 }
 
 /// Draws each band's weights against frequency.
-pub fn filterbank(path: &Path, title: &str, bands: &[Vec<(f64, f64)>], max_hz: f64) -> Result<()> {
+///
+/// With `mel_axis` the x axis is mel-scaled (O'Shaughnessy's formula,
+/// 2595·log10(1 + f/700)), labelled in Hz: triangles equally spaced in mel
+/// then look equally wide, and the low bands are not crowded together.
+pub fn filterbank(
+    path: &Path,
+    title: &str,
+    bands: &[Vec<(f64, f64)>],
+    max_hz: f64,
+    mel_axis: bool,
+) -> Result<()> {
+    let mel = |hz: f64| 2595.0 * (1.0 + hz / 700.0).log10();
+    let x_of = |hz: f64| if mel_axis { mel(hz) } else { hz };
     let f = font();
     let tmp = tempfile::Builder::new()
         .suffix(".png")
@@ -218,23 +278,59 @@ pub fn filterbank(path: &Path, title: &str, bands: &[Vec<(f64, f64)>], max_hz: f
         let mut chart = ChartBuilder::on(&root)
             .caption(title, (f, 20))
             .margin(12)
+            .margin_right(36)
             .x_label_area_size(40)
             .y_label_area_size(55)
-            .build_cartesian_2d(0f64..max_hz, 0f64..peak)
+            .build_cartesian_2d(0f64..x_of(max_hz), 0f64..peak)
             .map_err(err(path))?;
-        chart
-            .configure_mesh()
-            .x_desc("frequency (Hz)")
-            .y_desc("weight")
-            .label_style((f, 13))
+        // On the mel axis, ticks at round frequencies.
+        let ticks: Vec<f64> = [
+            0.0, 100.0, 250.0, 500.0, 1000.0, 1500.0, 2000.0, 3000.0, 4000.0, 5000.0, 6000.0,
+            8000.0, 10000.0, 12000.0, 16000.0, 20000.0, 24000.0,
+        ]
+        .into_iter()
+        .filter(|&t| t <= max_hz)
+        .collect();
+        let mut mesh = chart.configure_mesh();
+        mesh.x_desc(if mel_axis {
+            "frequency (Hz), mel-scaled axis"
+        } else {
+            "frequency (Hz)"
+        })
+        .y_desc("weight");
+        if mel_axis {
+            mesh.x_labels(0).disable_x_mesh();
+        } else {
+            mesh.x_label_formatter(&|x: &f64| format!("{x:.0}"));
+        }
+        mesh.label_style((f, 13))
             .axis_desc_style((f, 14))
             .draw()
             .map_err(err(path))?;
+        if mel_axis {
+            // Tick marks and labels drawn by hand at round frequencies.
+            for &t in &ticks {
+                let x = x_of(t);
+                chart
+                    .draw_series(std::iter::once(PathElement::new(
+                        [(x, 0.0), (x, peak)],
+                        RGBColor(225, 225, 225).stroke_width(1),
+                    )))
+                    .map_err(err(path))?;
+                chart
+                    .draw_series(std::iter::once(Text::new(
+                        format!("{t:.0}"),
+                        (x, -peak * 0.02),
+                        (f, 12),
+                    )))
+                    .map_err(err(path))?;
+            }
+        }
         for (b, points) in bands.iter().enumerate() {
             let colour = palette(b as f64 / bands.len().max(2) as f64 * 0.85);
             chart
                 .draw_series(LineSeries::new(
-                    points.iter().copied(),
+                    points.iter().map(|&(hz, w)| (x_of(hz), w)),
                     colour.stroke_width(2),
                 ))
                 .map_err(err(path))?;
@@ -276,9 +372,9 @@ pub fn band_level_map(
             .x_label_area_size(40)
             .y_label_area_size(55)
             .right_y_label_area_size(65)
-            .build_cartesian_2d(0f64..cols as f64, 0f64..bands as f64)
+            .build_cartesian_2d(0f64..cols as f64, -0.5f64..bands as f64 - 0.5)
             .map_err(err(path))?
-            .set_secondary_coord(0f64..cols as f64, 0f64..bands as f64);
+            .set_secondary_coord(0f64..cols as f64, -0.5f64..bands as f64 - 0.5);
         chart
             .configure_mesh()
             .disable_mesh()
@@ -293,19 +389,16 @@ pub fn band_level_map(
                     String::new()
                 }
             })
-            .y_label_formatter(&|b: &f64| format!("{b:.0}"))
+            .y_label_formatter(&|b: &f64| band_label(*b, bands))
             .label_style((f, 13))
             .axis_desc_style((f, 14))
             .draw()
             .map_err(err(path))?;
         chart
             .configure_secondary_axes()
-            .y_desc("band centre (Hz)")
+            .y_desc("band centre (Hz), at the cell's centre")
             .y_labels(8)
-            .y_label_formatter(&|b: &f64| {
-                let i = (b.floor() as usize).min(centres.len().saturating_sub(1));
-                format!("{:.0}", centres.get(i).copied().unwrap_or(0.0))
-            })
+            .y_label_formatter(&|b: &f64| centre_label(*b, &centres))
             .label_style((f, 13))
             .axis_desc_style((f, 14))
             .draw()
@@ -314,13 +407,13 @@ pub fn band_level_map(
             .draw_series(values.iter().enumerate().flat_map(|(c, row)| {
                 row.iter().enumerate().map(move |(b, &v)| {
                     Rectangle::new(
-                        [(c as f64, b as f64), (c as f64 + 1.0, b as f64 + 1.0)],
+                        [(c as f64, b as f64 - 0.5), (c as f64 + 1.0, b as f64 + 0.5)],
                         palette(v / hi).filled(),
                     )
                 })
             }))
             .map_err(err(path))?;
-        colour_bar(&bar, path, 0.0, hi, "dB")?;
+        colour_bar(&bar, path, 0.0, hi, "dB", None)?;
         root.present().map_err(err(path))?;
     }
     finish_png(tmp, path)
