@@ -354,66 +354,117 @@ fn unit(config: &FeatureConfig) -> &'static str {
 fn features(a: &FeaturesArgs) -> Result<Outcome> {
     let loaded = LoadedTables::load(&a.config, &a.input_args)?;
     let config = loaded.config()?;
-    let samples = read_wav_for(&a.input, a.input_args.channel, config.sample_rate_hz)?;
-    at_least_one_frame(&a.input, &samples, &config)?;
-    let chunk = if a.input_args.chunk_samples == 0 {
-        samples.len().max(1)
-    } else {
-        a.input_args.chunk_samples
-    };
-    let bands = config.bands as usize;
     let tables = loaded.core_tables(a.arith, form(a.input_args.form))?;
     for w in crate::predict::warnings(&config, a.arith)? {
         eprintln!("{w}");
     }
-    if config.stages.any() || a.stage.is_some() || a.windows {
+    if a.windows {
+        // The model's windows overlap: built from the whole clip in memory.
+        let samples = read_wav_for(&a.input, a.input_args.channel, config.sample_rate_hz)?;
+        at_least_one_frame(&a.input, &samples, &config)?;
+        let chunk = match a.input_args.chunk_samples {
+            0 => samples.len().max(1),
+            n => n,
+        };
         return stage_features(a, &loaded, &config, tables, &samples, chunk);
     }
-    // The board's front end and chain, into one flat buffer the size of
-    // the output (no list per frame).
-    if a.raw && a.arith == Arith::F32 {
+    if a.raw && a.arith == Arith::F32 && !config.stages.any() {
         return Err(anyhow!(
             "--raw writes the fixed path's integers: add --arith fixed16 or --arith fixed32"
         ));
     }
-    let stage_tables = loaded.stage_tables()?;
-    let mut runner =
-        crate::clip_runner::ClipRunner::new(&config, a.arith, tables, &stage_tables, None, a.raw)?;
-    let mut out = runner.kind().empty();
-    for piece in SampleChunks::new(&samples, chunk) {
-        runner.push(piece, &mut out);
+    // Streamed: a block of samples read, run through the board's front end
+    // and chain, and its frames written, then the next; a long recording
+    // never sits in memory whole.
+    let mut stream =
+        crate::wav_stream::WavStream::open(&a.input, a.input_args.channel, config.sample_rate_hz)?;
+    let total = stream.len() as usize;
+    if total < config.window_samples as usize {
+        let empty = Samples::I16(vec![0; total]);
+        at_least_one_frame(&a.input, &empty, &config)?;
     }
-    let frames = out.len() / bands;
-    let (stats, report, what) = match &out {
-        crate::clip_runner::FlatValues::I16(ints) => {
-            crate::npy::write_i16(&a.output, frames, bands, ints.iter().copied())?;
-            // Statistics in output units.
-            let levels = || ints.iter().map(|&v| v as f32 / 256.0);
-            (
-                Summary::of(levels()),
-                InputReport::of(&samples, &config, levels()),
-                format!(
-                    "int16 (1/256 {} per LSB, the board's exact values)",
-                    unit(&config)
-                ),
-            )
-        }
-        crate::clip_runner::FlatValues::F32(values) => {
-            crate::npy::write_f32(&a.output, frames, bands, values.iter().copied())?;
-            (
-                Summary::of(values.iter().copied()),
-                InputReport::of(&samples, &config, values.iter().copied()),
-                format!("float32, {}", unit(&config)),
-            )
-        }
-        _ => unreachable!("the log-mel front end writes float32 or int16"),
+    let stage_tables = loaded.stage_tables()?;
+    let mut runner = crate::clip_runner::ClipRunner::new(
+        &config,
+        a.arith,
+        tables,
+        &stage_tables,
+        a.stage.as_deref(),
+        a.raw,
+    )?;
+    let values = runner.values_per_frame();
+    let most = crate::run::frame_count(&config, total);
+    let mut writer = crate::npy::PackedWriter::create(
+        &a.output,
+        crate::npy::descr(&runner.kind().empty()),
+        most,
+        &[values],
+    )?;
+    let chunk = match a.input_args.chunk_samples {
+        0 => usize::MAX,
+        n => n,
     };
-    let Summary {
-        count,
-        lo,
-        hi,
-        mean,
-    } = stats;
+    let plain = !config.stages.any();
+    let mut tally = InputTally::new(&config);
+    let mut summary = SummaryTally::default();
+    let mut out = runner.kind().empty();
+    let mut frames = 0;
+    while let Some(block) = stream.next_block(1 << 16)? {
+        tally.add_samples(&block);
+        for piece in SampleChunks::new(&block, chunk) {
+            out.clear();
+            frames += runner.push(piece, &mut out);
+            writer.append(out.as_bytes())?;
+            // Statistics in output units (the plain log-mel's int16 are
+            // 1/256 dB or ln).
+            let scale = if matches!(out, crate::clip_runner::FlatValues::I16(_)) {
+                1.0 / 256.0
+            } else {
+                1.0
+            };
+            for i in 0..out.len() {
+                let v = (out.get_f64(i) * scale) as f32;
+                summary.add(v);
+                if plain {
+                    tally.add_value(v);
+                }
+            }
+        }
+    }
+    writer.finish_synced(frames)?;
+    let kind = runner.kind();
+    let what = match (plain, kind) {
+        (true, crate::clip_runner::OutputKind::Int16) => format!(
+            "int16 (1/256 {} per LSB, the board's exact values)",
+            unit(&config)
+        ),
+        (true, _) => format!("float32, {}", unit(&config)),
+        (false, crate::clip_runner::OutputKind::Int8) => "int8 codes".to_string(),
+        (false, crate::clip_runner::OutputKind::Uint8) => "uint8 codes".to_string(),
+        (false, crate::clip_runner::OutputKind::Float32) => "float32".to_string(),
+        (false, _) => "int32, the board's exact integers (1/256 units; PCEN 1/65536)".to_string(),
+    };
+    if !plain {
+        crate::say!(
+            "features: {} with {} ({} core), stage {}",
+            a.input.display(),
+            loaded.name(),
+            a.arith.name(),
+            runner.stage()
+        );
+        crate::say!(
+            "  output: {} {what}, shape {:?}{}",
+            a.output.display(),
+            [frames, values],
+            if config.stages.quantise.is_some() {
+                format!(", {} values clamped by the quantiser", runner.clamped())
+            } else {
+                String::new()
+            }
+        );
+        return Ok(Outcome::Success);
+    }
+    let report = tally.finish();
     crate::say!(
         "features: {} with {} ({} core)",
         a.input.display(),
@@ -422,8 +473,8 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
     );
     crate::say!(
         "  input:  {} samples, {:.2} s at {} Hz",
-        samples.len(),
-        samples.len() as f64 / config.sample_rate_hz as f64,
+        total,
+        total as f64 / config.sample_rate_hz as f64,
         config.sample_rate_hz
     );
     crate::say!(
@@ -436,11 +487,14 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
         "  output: {} [{} frames x {} bands], {what}",
         a.output.display(),
         frames,
-        bands
+        values
     );
-    if count > 0 {
+    if summary.count > 0 {
         crate::say!(
-            "  values: min {lo:.2}, mean {mean:.2}, max {hi:.2} {}",
+            "  values: min {:.2}, mean {:.2}, max {:.2} {}",
+            summary.lo,
+            summary.sum / summary.count as f64,
+            summary.hi,
             unit(&config)
         );
     }
@@ -448,6 +502,102 @@ fn features(a: &FeaturesArgs) -> Result<Outcome> {
         crate::say!("  {line}");
     }
     Ok(Outcome::Success)
+}
+
+/// Count, range and sum of output values, one value at a time.
+#[derive(Default)]
+struct SummaryTally {
+    count: usize,
+    lo: f32,
+    hi: f32,
+    sum: f64,
+}
+
+impl SummaryTally {
+    fn add(&mut self, v: f32) {
+        if self.count == 0 {
+            (self.lo, self.hi) = (v, v);
+        }
+        self.lo = self.lo.min(v);
+        self.hi = self.hi.max(v);
+        self.sum += v as f64;
+        self.count += 1;
+    }
+}
+
+/// [`InputReport`] built a block of samples at a time.
+struct InputTally {
+    floor: f32,
+    window: usize,
+    hop: usize,
+    at_floor: usize,
+    values: usize,
+    at_full_scale: usize,
+    constant_frames: usize,
+    /// Samples seen, the last one, and where its run of equal samples began.
+    seen: usize,
+    last: i16,
+    run_start: usize,
+}
+
+impl InputTally {
+    fn new(config: &FeatureConfig) -> Self {
+        InputTally {
+            floor: floor_output(config) as f32,
+            window: config.window_samples as usize,
+            hop: config.hop_samples as usize,
+            at_floor: 0,
+            values: 0,
+            at_full_scale: 0,
+            constant_frames: 0,
+            seen: 0,
+            last: 0,
+            run_start: 0,
+        }
+    }
+
+    fn add_value(&mut self, v: f32) {
+        self.at_floor += (v <= self.floor + 1e-3) as usize;
+        self.values += 1;
+    }
+
+    /// The samples as the fixed path takes them (float rounded to 16 bits,
+    /// as [`Samples::to_i16`]).
+    fn add_samples(&mut self, block: &Samples) {
+        let x = match block {
+            Samples::I16(v) => std::borrow::Cow::Borrowed(v),
+            Samples::F32(_) => std::borrow::Cow::Owned(block.to_i16()),
+        };
+        for &s in x.iter() {
+            self.at_full_scale += (s == i16::MIN || s == i16::MAX) as usize;
+            if self.seen == 0 || s != self.last {
+                self.run_start = self.seen;
+                self.last = s;
+            }
+            let t = self.seen;
+            self.seen += 1;
+            // Sample t ends frame i when t + 1 = i·hop + window.
+            if t + 1 >= self.window && (t + 1 - self.window) % self.hop == 0 {
+                let start = t + 1 - self.window;
+                self.constant_frames += (self.run_start <= start) as usize;
+            }
+        }
+    }
+
+    fn finish(&self) -> InputReport {
+        InputReport {
+            at_floor: self.at_floor,
+            values: self.values,
+            out_of_range: 0,
+            at_full_scale: self.at_full_scale,
+            constant_frames: self.constant_frames,
+            frames: if self.seen < self.window {
+                0
+            } else {
+                (self.seen - self.window) / self.hop + 1
+            },
+        }
+    }
 }
 
 /// `samples` in pieces of `chunk` (the DMA chunks a board receives).
@@ -485,34 +635,6 @@ impl<'a> Iterator for SampleChunks<'a> {
             SampleSlice::I16(v) => SampleSlice::I16(&v[r]),
             SampleSlice::F32(v) => SampleSlice::F32(&v[r]),
         })
-    }
-}
-
-/// Count, range and mean of output values.
-struct Summary {
-    count: usize,
-    lo: f32,
-    hi: f32,
-    mean: f64,
-}
-
-impl Summary {
-    fn of(values: impl IntoIterator<Item = f32>) -> Summary {
-        let mut s = Summary {
-            count: 0,
-            lo: f32::INFINITY,
-            hi: f32::NEG_INFINITY,
-            mean: 0.0,
-        };
-        let mut sum = 0.0f64;
-        for v in values {
-            s.count += 1;
-            s.lo = s.lo.min(v);
-            s.hi = s.hi.max(v);
-            sum += v as f64;
-        }
-        s.mean = sum / s.count.max(1) as f64;
-        s
     }
 }
 

@@ -53,3 +53,4 @@ pub mod sweep;
 pub mod synth;
 pub mod table_source;
 pub mod wav;
+pub mod wav_stream;

@@ -207,8 +207,17 @@ impl PackedWriter {
         Ok(())
     }
 
+    /// [`PackedWriter::finish`], flushing the file to the disk first.
+    pub fn finish_synced(self, rows: usize) -> Result<()> {
+        self.finish_with(rows, true)
+    }
+
     /// Writes the header for `rows` rows and moves the file into place.
-    pub fn finish(mut self, rows: usize) -> Result<()> {
+    pub fn finish(self, rows: usize) -> Result<()> {
+        self.finish_with(rows, false)
+    }
+
+    fn finish_with(mut self, rows: usize, sync: bool) -> Result<()> {
         use std::io::{Seek, SeekFrom, Write as _};
         self.staged.file().write_all(&self.buffer)?;
         let mut shape = vec![rows];
@@ -225,8 +234,12 @@ impl PackedWriter {
         let f = self.staged.file();
         f.seek(SeekFrom::Start(0))?;
         f.write_all(&h)?;
-        // The shard's manifest, written after it, is the one file flushed
-        // to the disk; a resumed export checks this file's size.
-        self.staged.commit_unsynced()
+        // In an export, the shard's manifest, written after this file, is
+        // the one flushed to the disk; a resumed export checks this size.
+        if sync {
+            self.staged.commit()
+        } else {
+            self.staged.commit_unsynced()
+        }
     }
 }

@@ -165,25 +165,7 @@ pub fn read_wav_from<R: std::io::Read>(
     let mut reader =
         WavReader::new(std::io::Cursor::new(&bytes)).map_err(|e| describe_hound(path, e))?;
     let spec = reader.spec();
-    if spec.sample_rate == 0 {
-        bail!(
-            "{} declares a sample rate of 0 Hz: its header is corrupt; re-export the recording",
-            path.display()
-        );
-    }
-    let channels = spec.channels as usize;
-    let pick = match (channels, channel) {
-        (1, _) => None,
-        (2, Some(c)) => Some(c),
-        (2, None) => bail!(
-            "{} is stereo: choose a channel with --channel left, right or mix",
-            path.display()
-        ),
-        (n, _) => bail!(
-            "{} has {n} channels: give a mono or stereo file",
-            path.display()
-        ),
-    };
+    let (channels, pick, _) = check_spec(spec, path, channel)?;
     let samples = match (spec.sample_format, spec.bits_per_sample) {
         (SampleFormat::Int, 16) => {
             let raw: Vec<i16> = match sample_bytes(source, data, 2) {
@@ -268,6 +250,50 @@ pub fn read_wav_from<R: std::io::Read>(
     })
 }
 
+/// The rate, channel and sample-format checks of a header: the channels,
+/// the channel taken, and whether the samples are 32-bit float (otherwise
+/// 16-bit PCM).
+fn check_spec(
+    spec: hound::WavSpec,
+    path: &Path,
+    channel: Option<ChannelChoice>,
+) -> Result<(usize, Option<ChannelChoice>, bool)> {
+    if spec.sample_rate == 0 {
+        bail!(
+            "{} declares a sample rate of 0 Hz: its header is corrupt; re-export the recording",
+            path.display()
+        );
+    }
+    let channels = spec.channels as usize;
+    let pick = match (channels, channel) {
+        (1, _) => None,
+        (2, Some(c)) => Some(c),
+        (2, None) => bail!(
+            "{} is stereo: choose a channel with --channel left, right or mix",
+            path.display()
+        ),
+        (n, _) => bail!(
+            "{} has {n} channels: give a mono or stereo file",
+            path.display()
+        ),
+    };
+    let float = match (spec.sample_format, spec.bits_per_sample) {
+        (SampleFormat::Int, 16) => false,
+        (SampleFormat::Float, 32) => true,
+        (format, bits) => bail!(
+            "{} holds {bits}-bit {} samples: give 16-bit PCM or 32-bit float \
+             (convert the file first)",
+            path.display(),
+            if format == SampleFormat::Int {
+                "integer"
+            } else {
+                "float"
+            }
+        ),
+    };
+    Ok((channels, pick, float))
+}
+
 fn check_whole_frames(path: &Path, len: usize, channels: usize) -> Result<()> {
     if len % channels != 0 {
         bail!(
@@ -347,4 +373,90 @@ pub fn probe_length(path: &Path) -> Result<usize> {
         at = body.saturating_add(len).saturating_add(len % 2);
     }
     bail!("{} has no data chunk", path.display())
+}
+
+/// Where a WAV file's samples are and how they are laid out, from its
+/// header alone: what [`crate::wav_stream::WavStream`] reads.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct HeaderInfo {
+    /// Sample rate in Hz.
+    pub rate_hz: u32,
+    /// Channels in the file (1 or 2).
+    pub channels: usize,
+    /// The channel taken from a stereo file.
+    pub pick: Option<ChannelChoice>,
+    /// 32-bit float samples (otherwise 16-bit PCM).
+    pub float: bool,
+    /// Offset of the first sample byte.
+    pub data_start: usize,
+    /// Bytes of samples the data chunk declares.
+    pub data_len: usize,
+}
+
+/// The header of `path`, checked as [`read_wav`] checks it (the same
+/// messages), without reading the samples. A file whose data chunk is
+/// shorter than it declares is read whole by [`read_wav`] for its error.
+pub fn header_info(path: &Path, channel: Option<ChannelChoice>) -> Result<HeaderInfo> {
+    use std::io::{Read, Seek, SeekFrom};
+    let mut file =
+        std::fs::File::open(path).map_err(|e| anyhow!("cannot read {}: {e}", path.display()))?;
+    let size = file.metadata()?.len() as usize;
+    let mut riff = [0u8; 12];
+    let whole = |path: &Path| -> anyhow::Error {
+        match read_wav(path, channel) {
+            Err(e) => e,
+            Ok(_) => anyhow!("{} has a header this reader cannot stream", path.display()),
+        }
+    };
+    if size < 12
+        || file.read_exact(&mut riff).is_err()
+        || &riff[..4] != b"RIFF"
+        || &riff[8..12] != b"WAVE"
+    {
+        return Err(whole(path));
+    }
+    // Walk the chunks up to `data`, keeping `fmt ` and the data header.
+    let mut head = b"RIFF\0\0\0\0WAVE".to_vec();
+    let mut at = 12usize;
+    let data = loop {
+        let mut ch = [0u8; 8];
+        if at + 8 > size || file.read_exact(&mut ch).is_err() {
+            return Err(whole(path));
+        }
+        let len = u32::from_le_bytes([ch[4], ch[5], ch[6], ch[7]]) as usize;
+        let body = at + 8;
+        if &ch[..4] == b"data" {
+            head.extend_from_slice(&ch);
+            break (body, len);
+        }
+        if &ch[..4] == b"fmt " {
+            let mut b = vec![0u8; len];
+            if file.read_exact(&mut b).is_err() {
+                return Err(whole(path));
+            }
+            head.extend_from_slice(&ch);
+            head.extend_from_slice(&b);
+            if len % 2 == 1 {
+                head.push(0);
+            }
+        }
+        at = body.saturating_add(len).saturating_add(len % 2);
+        file.seek(SeekFrom::Start(at as u64))?;
+    };
+    if data.0.saturating_add(data.1) > size {
+        return Err(whole(path));
+    }
+    let riff_len = (head.len() - 8) as u32;
+    head[4..8].copy_from_slice(&riff_len.to_le_bytes());
+    let reader =
+        WavReader::new(std::io::Cursor::new(&head)).map_err(|e| describe_hound(path, e))?;
+    let (channels, pick, float) = check_spec(reader.spec(), path, channel)?;
+    Ok(HeaderInfo {
+        rate_hz: reader.spec().sample_rate,
+        channels,
+        pick,
+        float,
+        data_start: data.0,
+        data_len: data.1,
+    })
 }

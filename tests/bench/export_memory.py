@@ -8,7 +8,10 @@ Writes 100 distinct one-second clips (the speed benchmark's generator) and
 links each into the dataset folder until it holds --clips clips (hard
 links: the disk holds 100 clips), runs `stapes export` over it (f32,
 speech16k-40, every core, 2048 clips per shard) and prints the child's
-peak resident memory (getrusage), wall time and output size.
+peak resident memory (getrusage), wall time and output size. Then writes one
+long recording (--long-minutes, the same clips end to end) and runs `stapes
+features` over it, which streams from disk to disk: its peak memory must not
+grow with the recording.
 """
 import argparse
 import os
@@ -27,6 +30,7 @@ from export_speed import STAPES, make_clips  # noqa: E402
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--clips", type=int, default=100_000)
+    ap.add_argument("--long-minutes", type=int, default=60)
     args = ap.parse_args()
     if not STAPES.exists():
         sys.exit("build first: cargo build --release -p stapes-sim")
@@ -53,6 +57,28 @@ def main():
         print(r.stdout.strip().splitlines()[0])
         print(f"export memory: {args.clips} clips, peak resident {peak_kib / 1024:.1f} MiB, "
               f"wall {wall:.1f} s, output {size / 1e9:.2f} GB")
+        shutil.rmtree(out)
+
+        import wave
+        long = work / "long.wav"
+        with wave.open(str(long), "wb") as w:
+            w.setnchannels(1)
+            w.setsampwidth(2)
+            w.setframerate(16000)
+            pieces = [wave.open(str(p), "rb").readframes(16000) for p in sources]
+            for i in range(args.long_minutes * 60):
+                w.writeframes(pieces[i % len(pieces)])
+        npy = work / "long.npy"
+        start = time.perf_counter()
+        r = subprocess.run([str(STAPES), "features", "--input", str(long), "--output", str(npy),
+                            "--arith", "fixed16"], capture_output=True, text=True)
+        wall = time.perf_counter() - start
+        if r.returncode != 0:
+            sys.exit(r.stderr)
+        peak_kib = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+        print(f"features memory: a {args.long_minutes}-minute recording "
+              f"({long.stat().st_size / 1e6:.0f} MB), peak resident of any child so far "
+              f"{peak_kib / 1024:.1f} MiB, wall {wall:.1f} s, output {npy.stat().st_size / 1e6:.0f} MB")
     finally:
         shutil.rmtree(work, ignore_errors=True)
 
