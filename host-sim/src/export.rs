@@ -680,105 +680,99 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
                 bar.inc(shard.len() as u64);
                 continue;
             }
-            // Blocks of clips run on every core while the block before is
-            // written on a thread of its own.
-            let writer = match (a.per_clip, frames) {
-                (false, Some(n)) => Some(crate::npy::PackedWriter::create(
-                    &dir.join(shard_name("features", k, "npy")),
-                    crate::npy::descr(&kind.empty()),
-                    shard.len(),
-                    &[n, values],
-                )?),
-                _ => None,
-            };
-            let block = (pool.current_num_threads() * 16).max(32);
+            // Every clip of the shard runs on any core and puts its values
+            // straight into its own slot of the shard's array (the clips of
+            // a packed shard are all one size); the array is written once.
+            let row_bytes = frames.map_or(0, |n| n * values * kind.size());
+            let mut slots = vec![
+                0u8;
+                if a.per_clip {
+                    0
+                } else {
+                    shard.len() * row_bytes
+                }
+            ];
+            let results: Vec<Result<Done>> = pool.install(|| {
+                let work = |runner: &mut Result<ClipRunner<'_>>, item: Item, slot: &mut [u8]| {
+                    if stop.load(Ordering::Relaxed) {
+                        return Err(anyhow!("stopped"));
+                    }
+                    let r = match runner {
+                        Ok(r) => setup.process(r, item, with_sums),
+                        Err(e) => Err(anyhow!("{e}")),
+                    };
+                    let r = r.and_then(|mut d| {
+                        if setup.per_clip {
+                            write_clip_file(&dir, &d, values)?;
+                        } else {
+                            slot.copy_from_slice(d.values.as_bytes());
+                        }
+                        d.values = kind.empty();
+                        Ok(d)
+                    });
+                    if r.is_err() && a.strict {
+                        stop.store(true, Ordering::Relaxed);
+                    }
+                    bar.inc(1);
+                    r
+                };
+                let init =
+                    || ClipRunner::new(&config, arith, tables, &stage_tables, Some(stage), a.raw);
+                if a.per_clip {
+                    shard
+                        .par_iter()
+                        .map_init(init, |r, &item| work(r, item, &mut []))
+                        .collect()
+                } else {
+                    shard
+                        .par_iter()
+                        .zip(slots.par_chunks_mut(row_bytes.max(1)))
+                        .map_init(init, |r, (&item, slot)| work(r, item, slot))
+                        .collect()
+                }
+            });
             let mut done = Vec::new();
             let mut failed = Vec::new();
-            let writer = std::thread::scope(|scope| -> Result<_> {
-                let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<FlatValues>>(2);
-                let writing = scope.spawn(move || -> Result<Option<crate::npy::PackedWriter>> {
-                    let mut writer = writer;
-                    for batch in rx {
-                        if let Some(w) = writer.as_mut() {
-                            for v in &batch {
-                                w.append(v.as_bytes())?;
-                            }
+            let mut kept = 0;
+            for (i, (item, r)) in shard.iter().zip(results).enumerate() {
+                let clip = &data.clips[item.clip];
+                match r {
+                    Ok(d) => {
+                        // Close the gaps failed clips left.
+                        if kept != i && row_bytes > 0 {
+                            slots.copy_within(i * row_bytes..(i + 1) * row_bytes, kept * row_bytes);
                         }
+                        kept += 1;
+                        done.push(d);
                     }
-                    Ok(writer)
-                });
-                for part in shard.chunks(block) {
-                    let results: Vec<Result<Done>> = pool.install(|| {
-                        part.par_iter()
-                            .map_init(
-                                || {
-                                    ClipRunner::new(
-                                        &config,
-                                        arith,
-                                        tables,
-                                        &stage_tables,
-                                        Some(stage),
-                                        a.raw,
-                                    )
-                                },
-                                |runner, &item| {
-                                    if stop.load(Ordering::Relaxed) {
-                                        return Err(anyhow!("stopped"));
-                                    }
-                                    let r = match runner {
-                                        Ok(r) => setup.process(r, item, with_sums),
-                                        Err(e) => Err(anyhow!("{e}")),
-                                    };
-                                    if r.is_err() && a.strict {
-                                        stop.store(true, Ordering::Relaxed);
-                                    }
-                                    bar.inc(1);
-                                    r
-                                },
-                            )
-                            .collect()
-                    });
-                    let mut batch = Vec::new();
-                    for (item, r) in part.iter().zip(results) {
-                        let clip = &data.clips[item.clip];
-                        match r {
-                            Ok(mut d) => {
-                                if !setup.per_clip {
-                                    batch.push(std::mem::replace(&mut d.values, kind.empty()));
-                                }
-                                done.push(d);
-                            }
-                            Err(e) => {
-                                if a.strict {
-                                    return Err(e.context(format!(
-                                        "--strict: {} (copy {}) failed; the shards before it \
-                                         are kept and a rerun resumes after them",
-                                        clip.relative, item.copy
-                                    )));
-                                }
-                                failed.push((
-                                    clip.relative.clone(),
-                                    clip.split.clone(),
-                                    item.copy,
-                                    format!("{e:#}"),
-                                ));
-                            }
+                    Err(e) => {
+                        if a.strict {
+                            bar.finish_and_clear();
+                            return Err(e.context(format!(
+                                "--strict: {} (copy {}) failed; the shards before it are kept \
+                                 and a rerun resumes after them",
+                                clip.relative, item.copy
+                            )));
                         }
-                    }
-                    if tx.send(batch).is_err() {
-                        break; // the writer stopped on an error, reported below
+                        failed.push((
+                            clip.relative.clone(),
+                            clip.split.clone(),
+                            item.copy,
+                            format!("{e:#}"),
+                        ));
                     }
                 }
-                drop(tx);
-                writing
-                    .join()
-                    .map_err(|_| anyhow!("the writing thread failed"))?
-            })
-            .inspect_err(|_| bar.finish_and_clear())?;
-            if let Some(w) = writer {
-                w.finish(done.len())?;
             }
-            write_shard(&setup, &dir, k, &done, &failed, with_sums, values)?;
+            if let (false, Some(n)) = (a.per_clip, frames) {
+                slots.truncate(kept * row_bytes);
+                let header =
+                    crate::npy::header(crate::npy::descr(&kind.empty()), &[kept, n, values]);
+                crate::output::write_atomic_unsynced_parts(
+                    &dir.join(shard_name("features", k, "npy")),
+                    &[&header, &slots],
+                )?;
+            }
+            write_shard(&setup, &dir, k, &done, &failed, with_sums)?;
             tally.shards_written += 1;
             tally.done += done.len();
             tally.failed += failed.len();
@@ -836,17 +830,8 @@ fn write_shard(
     done: &[Done],
     failed: &[(String, String, u32, String)],
     with_sums: bool,
-    values: usize,
 ) -> Result<()> {
-    if setup.per_clip {
-        for d in done {
-            let path = dir.join(&d.row.file);
-            let n = d.values.len() / values;
-            let mut bytes = crate::npy::header(crate::npy::descr(&d.values), &[n, values]);
-            bytes.extend_from_slice(d.values.as_bytes());
-            crate::output::write_atomic_unsynced(&path, &bytes)?;
-        }
-    } else {
+    if !setup.per_clip {
         let labels: Vec<i32> = done.iter().map(|d| d.row.label_index as i32).collect();
         crate::npy::write_i32_vector(&dir.join(shard_name("labels", k, "npy")), &labels)?;
     }
@@ -937,6 +922,14 @@ fn shard_is_whole(
         }
     }
     Ok(true)
+}
+
+/// One clip's own `.npy` (`--per-clip`), written by the worker that ran it.
+fn write_clip_file(dir: &Path, d: &Done, values: usize) -> Result<()> {
+    let n = d.values.len() / values;
+    let mut bytes = crate::npy::header(crate::npy::descr(&d.values), &[n, values]);
+    bytes.extend_from_slice(d.values.as_bytes());
+    crate::output::write_atomic_unsynced(&dir.join(&d.row.file), &bytes)
 }
 
 /// `<dir>/manifest.csv`: every shard's rows, in order (rows numbered
