@@ -1118,12 +1118,13 @@ fn write_statistics(
                 &normalised,
                 Some((mean.clone(), deviation.clone())),
             )?;
-            let w = crate::emit::write_all(
+            let w = crate::emit::write_all_with(
                 &t,
                 &name,
                 &out.join("board-tables"),
                 "stapes export (statistics of the training split)",
                 crate::emit::BlobContents::ALL,
+                false,
             )?;
             let _ = write!(
                 note,

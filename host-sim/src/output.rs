@@ -86,9 +86,27 @@ fn folder_of(path: &Path) -> &Path {
 /// complete are they moved into place, and if a move fails, the files
 /// already moved are put back as they were.
 pub fn write_set_atomic(files: &[(&Path, &[u8])]) -> Result<()> {
+    write_set(files, true)
+}
+
+/// [`write_set_atomic`] without waiting for the disk (see
+/// [`write_atomic_unsynced`]): for files a rerun rewrites.
+pub fn write_set_atomic_unsynced(files: &[(&Path, &[u8])]) -> Result<()> {
+    write_set(files, false)
+}
+
+fn write_set(files: &[(&Path, &[u8])], durable: bool) -> Result<()> {
     let mut ready = Vec::with_capacity(files.len());
     for &(path, bytes) in files {
-        let tmp = staged(path, |f| f.write_all(bytes).map_err(Into::into))?;
+        let tmp = if durable {
+            staged(path, |f| f.write_all(bytes).map_err(Into::into))?
+        } else {
+            let mut s = Staged::new(path)?;
+            s.file()
+                .write_all(bytes)
+                .with_context(|| format!("cannot write {}", path.display()))?;
+            s.tmp
+        };
         ready.push((path, tmp));
     }
     // Every file is complete: keep the old versions aside, then move. On

@@ -51,6 +51,19 @@ pub fn write_all(
     command: &str,
     contents: BlobContents,
 ) -> Result<WrittenTables> {
+    write_all_with(tables, name, dir, command, contents, true)
+}
+
+/// [`write_all`], flushed to the disk only when `durable` (a command that
+/// rewrites them on every run, as `export` does, need not wait).
+pub fn write_all_with(
+    tables: &GeneratedTables,
+    name: &str,
+    dir: &Path,
+    command: &str,
+    contents: BlobContents,
+    durable: bool,
+) -> Result<WrittenTables> {
     let rust = dir.join(format!("{name}.rs"));
     let header = dir.join(format!("{name}.h"));
     let blob_path = dir.join(format!("{name}.bin"));
@@ -58,11 +71,16 @@ pub fn write_all(
     // The three describe one configuration: all of them, or none.
     let source = rust_source(tables, command);
     let c = c_header(tables, &c_prefix(name), command);
-    write_set_atomic(&[
+    let files: [(&Path, &[u8]); 3] = [
         (&rust, source.as_bytes()),
         (&header, c.as_bytes()),
         (&blob_path, &bytes),
-    ])?;
+    ];
+    if durable {
+        write_set_atomic(&files)?;
+    } else {
+        crate::output::write_set_atomic_unsynced(&files)?;
+    }
     Ok(WrittenTables {
         rust,
         header,
