@@ -16,7 +16,6 @@ grow with the recording.
 import argparse
 import os
 import pathlib
-import resource
 import shutil
 import subprocess
 import sys
@@ -25,6 +24,23 @@ import time
 
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parent))
 from export_speed import STAPES, make_clips  # noqa: E402
+
+
+def run(cmd):
+    """Runs `cmd`; returns its exit status, wall seconds, its own peak
+    resident memory in MiB (os.wait4's rusage of that child alone) and its
+    standard output."""
+    start = time.perf_counter()
+    with tempfile.TemporaryFile() as out, tempfile.TemporaryFile() as err:
+        child = subprocess.Popen(cmd, stdout=out, stderr=err)
+        _, status, usage = os.wait4(child.pid, 0)
+        child.returncode = os.waitstatus_to_exitcode(status)
+        wall = time.perf_counter() - start
+        out.seek(0)
+        err.seek(0)
+        if child.returncode != 0:
+            sys.exit(err.read().decode())
+        return wall, usage.ru_maxrss / 1024, out.read().decode()
 
 
 def main():
@@ -46,16 +62,11 @@ def main():
             d.mkdir(parents=True, exist_ok=True)
             os.link(src, d / f"{i:06d}.wav")
         out = work / "out"
-        start = time.perf_counter()
-        r = subprocess.run([str(STAPES), "export", "--input-dir", str(data), "--output-dir",
-                            str(out), "--frames", "97", "--quiet"], capture_output=True, text=True)
-        wall = time.perf_counter() - start
-        if r.returncode != 0:
-            sys.exit(r.stderr)
-        peak_kib = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+        wall, peak, text = run([str(STAPES), "export", "--input-dir", str(data),
+                                "--output-dir", str(out), "--frames", "97", "--quiet"])
         size = sum(f.stat().st_size for f in out.rglob("*") if f.is_file())
-        print(r.stdout.strip().splitlines()[0])
-        print(f"export memory: {args.clips} clips, peak resident {peak_kib / 1024:.1f} MiB, "
+        print(text.strip().splitlines()[0])
+        print(f"export memory: {args.clips} clips, peak resident {peak:.1f} MiB, "
               f"wall {wall:.1f} s, output {size / 1e9:.2f} GB")
         shutil.rmtree(out)
 
@@ -69,16 +80,11 @@ def main():
             for i in range(args.long_minutes * 60):
                 w.writeframes(pieces[i % len(pieces)])
         npy = work / "long.npy"
-        start = time.perf_counter()
-        r = subprocess.run([str(STAPES), "features", "--input", str(long), "--output", str(npy),
-                            "--arith", "fixed16"], capture_output=True, text=True)
-        wall = time.perf_counter() - start
-        if r.returncode != 0:
-            sys.exit(r.stderr)
-        peak_kib = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+        wall, peak, _ = run([str(STAPES), "features", "--input", str(long), "--output",
+                             str(npy), "--arith", "fixed16"])
         print(f"features memory: a {args.long_minutes}-minute recording "
-              f"({long.stat().st_size / 1e6:.0f} MB), peak resident of any child so far "
-              f"{peak_kib / 1024:.1f} MiB, wall {wall:.1f} s, output {npy.stat().st_size / 1e6:.0f} MB")
+              f"({long.stat().st_size / 1e6:.0f} MB), peak resident {peak:.1f} MiB, "
+              f"wall {wall:.1f} s, output {npy.stat().st_size / 1e6:.0f} MB")
     finally:
         shutil.rmtree(work, ignore_errors=True)
 
