@@ -9,16 +9,19 @@
 //!   is refused.
 //! * `labels.txt`: label names, one per line; a label's index is its line
 //!   number from 0.
-//! * per split (`train`, `validation`, `test`, …), per shard of
-//!   `--shard-clips` clips: `features-NNNNN.npy` `[clips × frames ×
-//!   values]` in the stage's dtype, `labels-NNNNN.npy` (`int32`),
-//!   `manifest-NNNNN.csv` (one row per clip), `failed-NNNNN.csv` (clips that
-//!   could not be read, with the error), and for the training split
-//!   `sums-NNNNN.txt` (the statistics' partial sums). With `--per-clip`,
-//!   one `.npy` per clip under `<split>/clips/` instead of the packed
-//!   arrays. A shard is finished when its manifest exists: it is written
-//!   last, after everything else of the shard is on the disk.
-//! * when done: `<split>/manifest.csv` (every shard's rows),
+//! * per split (`train`, `validation`, `test`, …): `features.npy`, one
+//!   packed array `[clips × frames × values]` in the stage's dtype, built
+//!   as `features.npy.partial` a shard of `--shard-clips` clips at a time
+//!   (the shard's rows written at their place and flushed to the disk), and
+//!   `labels.npy` (`int32`); per shard, `manifest-NNNNN.csv` (one row per
+//!   clip), `failed-NNNNN.csv` (clips that could not be read, with the
+//!   error), and for the training split `sums-NNNNN.txt` (the statistics'
+//!   partial sums). With `--per-clip`, one `.npy` per clip under
+//!   `<split>/clips/` instead of the packed array. A shard is finished when
+//!   its manifest exists: it is written last.
+//! * when a split is done: its array renamed to `features.npy` with the
+//!   final count in its header, `labels.npy`, and `manifest.csv` (every
+//!   shard's rows); when all are done:
 //!   `statistics.toml` (the `[stages.normalise]` table from the training
 //!   split, in the board's arithmetic), the tables of the configuration
 //!   with that normaliser under `board-tables/`, and `summary.txt`.
@@ -656,17 +659,51 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
         let dir = out.join(split_name);
         let mut tally = Tally::default();
         let with_sums = split_name == "train";
+        let shards = items.len().div_ceil(a.shard_clips);
+        // The split's one packed array, appended a shard at a time.
+        let mut array = match (a.per_clip, frames) {
+            (false, Some(n)) => Some(SplitArray::open(
+                &dir,
+                crate::npy::descr(&kind.empty()),
+                items.len(),
+                &[n, values],
+                kind.size(),
+            )?),
+            _ => None,
+        };
+        let mut rows_before = 0;
+        let mut invalid_from = None;
         for (k, shard) in items.chunks(a.shard_clips).enumerate() {
             let manifest = dir.join(shard_name("manifest", k, "csv"));
-            if manifest.exists() && !shard_is_whole(&setup, &dir, k, values, kind, with_sums)? {
-                // Written before a power cut, say: done again.
+            if invalid_from.is_none()
+                && manifest.exists()
+                && !shard_is_whole(
+                    &setup,
+                    &dir,
+                    k,
+                    values,
+                    kind,
+                    with_sums,
+                    array.as_ref(),
+                    rows_before,
+                )?
+            {
+                invalid_from = Some(k);
+            }
+            if let Some(first) = invalid_from
+                && manifest.exists()
+            {
+                // Written before a power cut, say (or after such a shard in
+                // the split's array): done again.
                 std::fs::remove_file(&manifest)
                     .with_context(|| format!("cannot remove {}", manifest.display()))?;
-                tally.shards_redone += 1;
+                tally.shards_redone += (k >= first) as usize;
             }
             if manifest.exists() {
+                let rows = csv_rows(&manifest)?;
+                rows_before += rows;
                 tally.shards_kept += 1;
-                tally.done += csv_rows(&manifest)?;
+                tally.done += rows;
                 let failed = dir.join(shard_name("failed", k, "csv"));
                 if failed.exists() {
                     tally.failed += csv_rows(&failed)?;
@@ -763,15 +800,12 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
                     }
                 }
             }
-            if let (false, Some(n)) = (a.per_clip, frames) {
-                slots.truncate(kept * row_bytes);
-                let header =
-                    crate::npy::header(crate::npy::descr(&kind.empty()), &[kept, n, values]);
-                crate::output::write_atomic_unsynced_parts(
-                    &dir.join(shard_name("features", k, "npy")),
-                    &[&header, &slots],
-                )?;
+            if let Some(array) = array.as_mut() {
+                // The shard's rows at their place in the split's array,
+                // flushed to the disk: the shard's one fsync.
+                array.put(rows_before, &slots[..kept * row_bytes])?;
             }
+            rows_before += kept;
             write_shard(&setup, &dir, k, &done, &failed, with_sums)?;
             tally.shards_written += 1;
             tally.done += done.len();
@@ -785,7 +819,11 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
                 }
             }
         }
-        join_manifests(&dir, items.len().div_ceil(a.shard_clips))?;
+        let labels = join_manifests(&dir, shards)?;
+        if let Some(array) = array {
+            array.finish(rows_before)?;
+            crate::npy::write_i32_vector(&dir.join("labels.npy"), &labels)?;
+        }
         tallies.push((split_name.clone(), tally));
     }
     bar.finish_and_clear();
@@ -831,10 +869,6 @@ fn write_shard(
     failed: &[(String, String, u32, String)],
     with_sums: bool,
 ) -> Result<()> {
-    if !setup.per_clip {
-        let labels: Vec<i32> = done.iter().map(|d| d.row.label_index as i32).collect();
-        crate::npy::write_i32_vector(&dir.join(shard_name("labels", k, "npy")), &labels)?;
-    }
     if !failed.is_empty() {
         crate::output::write_atomic_unsynced(
             &dir.join(shard_name("failed", k, "csv")),
@@ -853,13 +887,18 @@ fn write_shard(
             sums.to_text().as_bytes(),
         )?;
     }
-    // Last: the manifest marks the shard finished, the shard's one file
-    // flushed to the disk (a resumed export checks the others' sizes).
+    // Last: the manifest marks the shard finished. A packed shard's rows
+    // were flushed to the disk with the split's array (the shard's one
+    // fsync); with --per-clip the manifest is the file flushed. A resumed
+    // export checks the sizes of what the manifest lists.
     let rows: Vec<ManifestRow> = done.iter().map(|d| d.row.clone()).collect();
-    crate::output::write_atomic(
-        &dir.join(shard_name("manifest", k, "csv")),
-        &setup.manifest_csv(&rows)?,
-    )
+    let path = dir.join(shard_name("manifest", k, "csv"));
+    let text = setup.manifest_csv(&rows)?;
+    if setup.per_clip {
+        crate::output::write_atomic(&path, &text)
+    } else {
+        crate::output::write_atomic_unsynced(&path, &text)
+    }
 }
 
 /// Whether a finished shard's files are all there and of the sizes its
@@ -871,6 +910,8 @@ fn shard_is_whole(
     values: usize,
     kind: crate::clip_runner::OutputKind,
     with_sums: bool,
+    array: Option<&SplitArray>,
+    rows_before: usize,
 ) -> Result<bool> {
     let size = |p: &Path| std::fs::metadata(p).map(|m| m.len() as usize).ok();
     let manifest = dir.join(shard_name("manifest", k, "csv"));
@@ -904,15 +945,10 @@ fn shard_is_whole(
                 return Ok(false);
             }
         }
-    } else {
-        let n = setup.frames.expect("packed output has a fixed length");
-        let features = crate::npy::file_size(descr, &[rows.len(), n, values], kind.size());
-        let labels = crate::npy::file_size("<i4", &[rows.len()], 4);
-        if size(&dir.join(shard_name("features", k, "npy"))) != Some(features)
-            || size(&dir.join(shard_name("labels", k, "npy"))) != Some(labels)
-        {
-            return Ok(false);
-        }
+    } else if let Some(array) = array
+        && !array.holds(rows_before + rows.len())
+    {
+        return Ok(false);
     }
     if with_sums {
         let p = dir.join(shard_name("sums", k, "txt"));
@@ -934,7 +970,7 @@ fn write_clip_file(dir: &Path, d: &Done, values: usize) -> Result<()> {
 
 /// `<dir>/manifest.csv`: every shard's rows, in order (rows numbered
 /// within their shard).
-fn join_manifests(dir: &Path, shards: usize) -> Result<()> {
+fn join_manifests(dir: &Path, shards: usize) -> Result<Vec<i32>> {
     let mut joined: Vec<u8> = Vec::new();
     for k in 0..shards {
         let p = dir.join(shard_name("manifest", k, "csv"));
@@ -951,7 +987,125 @@ fn join_manifests(dir: &Path, shards: usize) -> Result<()> {
         };
         joined.extend_from_slice(body);
     }
-    crate::output::write_atomic_unsynced(&dir.join("manifest.csv"), &joined)
+    crate::output::write_atomic_unsynced(&dir.join("manifest.csv"), &joined)?;
+    // Each row's label index, in row order.
+    let column = MANIFEST_HEADER
+        .iter()
+        .position(|c| *c == "label_index")
+        .expect("column");
+    let mut reader = csv::Reader::from_reader(&joined[..]);
+    reader
+        .records()
+        .map(|r| {
+            let r = r?;
+            r[column]
+                .parse::<i32>()
+                .map_err(|_| anyhow!("{}: a label index is not a number", dir.display()))
+        })
+        .collect()
+}
+
+/// A split's packed array, `features.npy`, built a shard at a time in
+/// `features.npy.partial` (its header reserved for every clip of the
+/// split) and renamed when the split is complete. A shard's rows go at
+/// their place after the rows of the shards before it, so a resumed export
+/// overwrites whatever a killed one left beyond them.
+struct SplitArray {
+    file: std::fs::File,
+    partial: PathBuf,
+    done: PathBuf,
+    header_len: usize,
+    row_bytes: usize,
+    descr: &'static str,
+    row_shape: Vec<usize>,
+}
+
+impl SplitArray {
+    fn open(
+        dir: &Path,
+        descr: &'static str,
+        most_rows: usize,
+        row_shape: &[usize],
+        size: usize,
+    ) -> Result<SplitArray> {
+        let done = dir.join("features.npy");
+        let partial = dir.join("features.npy.partial");
+        std::fs::create_dir_all(dir)
+            .with_context(|| format!("cannot create folder {}", dir.display()))?;
+        let mut shape = vec![most_rows];
+        shape.extend_from_slice(row_shape);
+        let header = crate::npy::header(descr, &shape);
+        // A finished array goes back to being built, rows kept (the
+        // shards' manifests say how many are good).
+        if done.exists() && !partial.exists() {
+            std::fs::rename(&done, &partial)
+                .with_context(|| format!("cannot reopen {}", done.display()))?;
+        }
+        let file = std::fs::OpenOptions::new()
+            .read(true)
+            .write(true)
+            .create(true)
+            .truncate(false)
+            .open(&partial)
+            .with_context(|| format!("cannot open {}", partial.display()))?;
+        let len = file.metadata()?.len() as usize;
+        let array = SplitArray {
+            file,
+            partial,
+            done,
+            header_len: header.len(),
+            row_bytes: row_shape.iter().product::<usize>() * size,
+            descr,
+            row_shape: row_shape.to_vec(),
+        };
+        // The header's room: a finished array's header was padded to the
+        // same length, so its rows stay where they are.
+        if len < header.len() {
+            array.write_at(0, &header)?;
+        }
+        Ok(array)
+    }
+
+    fn write_at(&self, at: usize, bytes: &[u8]) -> Result<()> {
+        use std::os::unix::fs::FileExt;
+        self.file
+            .write_all_at(bytes, at as u64)
+            .with_context(|| format!("cannot write {}", self.partial.display()))
+    }
+
+    /// Whether the file holds the first `rows` rows.
+    fn holds(&self, rows: usize) -> bool {
+        self.file
+            .metadata()
+            .is_ok_and(|m| m.len() as usize >= self.header_len + rows * self.row_bytes)
+    }
+
+    /// Writes rows from row `first` on (dropping anything after them) and
+    /// flushes the file to the disk.
+    fn put(&mut self, first: usize, bytes: &[u8]) -> Result<()> {
+        let at = self.header_len + first * self.row_bytes;
+        self.write_at(at, bytes)?;
+        self.file.set_len((at + bytes.len()) as u64)?;
+        self.file
+            .sync_data()
+            .with_context(|| format!("cannot flush {} to the disk", self.partial.display()))
+    }
+
+    /// Writes the header for `rows` rows, keeps exactly those, and renames
+    /// the file to `features.npy`.
+    fn finish(self, rows: usize) -> Result<()> {
+        let mut shape = vec![rows];
+        shape.extend_from_slice(&self.row_shape);
+        let header = crate::npy::header_padded(self.descr, &shape, self.header_len)?;
+        self.write_at(0, &header)?;
+        self.file
+            .set_len((self.header_len + rows * self.row_bytes) as u64)?;
+        self.file
+            .sync_all()
+            .with_context(|| format!("cannot flush {} to the disk", self.partial.display()))?;
+        std::fs::rename(&self.partial, &self.done)
+            .with_context(|| format!("cannot move {} into place", self.done.display()))
+    }
 }
 
 fn plan_text(
@@ -1246,14 +1400,4 @@ fn summary_text(
         out.display()
     );
     t
-}
-
-/// Paths of a shard's files, for tests and tools.
-pub fn shard_paths(out: &Path, split: &str, k: usize) -> (PathBuf, PathBuf, PathBuf) {
-    let dir = out.join(split);
-    (
-        dir.join(shard_name("features", k, "npy")),
-        dir.join(shard_name("labels", k, "npy")),
-        dir.join(shard_name("manifest", k, "csv")),
-    )
 }

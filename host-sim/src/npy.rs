@@ -113,6 +113,21 @@ pub fn header(descr: &str, shape: &[usize]) -> Vec<u8> {
     out
 }
 
+/// [`header`] padded with spaces to `len` bytes (the format allows any
+/// padding before the final newline), for a header rewritten in the room an
+/// earlier one took.
+pub fn header_padded(descr: &str, shape: &[usize], len: usize) -> Result<Vec<u8>> {
+    let mut h = header(descr, shape);
+    anyhow::ensure!(h.len() <= len, "the header outgrew its room");
+    let extra = len - h.len();
+    h.pop();
+    h.extend(std::iter::repeat_n(b' ', extra));
+    h.push(b'\n');
+    let dict_len = (h.len() - 10) as u16;
+    h[8..10].copy_from_slice(&dict_len.to_le_bytes());
+    Ok(h)
+}
+
 /// The NumPy type string of a buffer's values.
 pub fn descr(values: &crate::clip_runner::FlatValues) -> &'static str {
     use crate::clip_runner::FlatValues;
@@ -222,15 +237,7 @@ impl PackedWriter {
         self.staged.file().write_all(&self.buffer)?;
         let mut shape = vec![rows];
         shape.extend_from_slice(&self.row_shape);
-        let mut h = header(self.descr, &shape);
-        anyhow::ensure!(h.len() <= self.header_len, "the header outgrew its room");
-        // Pad the dictionary (before its final newline) to the room kept.
-        let extra = self.header_len - h.len();
-        h.pop();
-        h.extend(std::iter::repeat_n(b' ', extra));
-        h.push(b'\n');
-        let dict_len = (h.len() - 10) as u16;
-        h[8..10].copy_from_slice(&dict_len.to_le_bytes());
+        let h = header_padded(self.descr, &shape, self.header_len)?;
         let f = self.staged.file();
         f.seek(SeekFrom::Start(0))?;
         f.write_all(&h)?;

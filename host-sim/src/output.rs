@@ -24,17 +24,6 @@ pub fn write_atomic_unsynced(path: &Path, bytes: &[u8]) -> Result<()> {
     s.commit_unsynced()
 }
 
-/// [`write_atomic_unsynced`] of `parts` one after another.
-pub fn write_atomic_unsynced_parts(path: &Path, parts: &[&[u8]]) -> Result<()> {
-    let mut s = Staged::new(path)?;
-    for p in parts {
-        s.file()
-            .write_all(p)
-            .with_context(|| format!("cannot write {}", path.display()))?;
-    }
-    s.commit_unsynced()
-}
-
 /// Runs `fill` on a temporary file beside `path`, then renames it to `path`.
 /// On any error the temporary file is removed and `path` is left as it was.
 pub fn write_atomic_with(

@@ -190,15 +190,19 @@ fn a_killed_export_resumes_without_redoing_finished_shards_and_matches_a_clean_r
     child.wait().unwrap();
     let finished = manifests(&killed.join("train"));
     assert!(finished.len() < 80, "killed before the end");
-    // Every finished shard is whole: its arrays hold all its rows.
+    // Every finished shard's rows are in the split's array being built.
+    let partial = killed.join("train/features.npy.partial");
+    let (descr, shape, _) = npy_shape(&partial);
+    assert_eq!(descr, "<f4");
+    assert_eq!(
+        shape,
+        vec![800, 100, 40],
+        "the header keeps room for every clip"
+    );
+    let header = std::fs::metadata(&partial).unwrap().len() as usize;
+    assert!(header >= 128 + finished.len() * 10 * 100 * 40 * 4);
     let mut stamps = Vec::new();
     for m in &finished {
-        let k = m.file_name().unwrap().to_string_lossy()[9..14].to_string();
-        let (descr, shape, body) =
-            npy_shape(&killed.join("train").join(format!("features-{k}.npy")));
-        assert_eq!(descr, "<f4");
-        assert_eq!(shape, vec![10, 100, 40]);
-        assert_eq!(body, 10 * 100 * 40 * 4);
         stamps.push((m.clone(), std::fs::metadata(m).unwrap().modified().unwrap()));
     }
     // The rerun keeps them, finishes the rest and leaves no temporary file.
@@ -229,8 +233,10 @@ fn a_killed_export_resumes_without_redoing_finished_shards_and_matches_a_clean_r
     for (k, v) in &a {
         assert!(v == &b[k], "{k} differs from a clean run");
     }
-    // A shard whose features a power cut left short is found and redone.
-    let f = killed.join("train/features-00001.npy");
+    // Rows a power cut left short are found, and their shards redone
+    // (with every shard after them: the split's array is appended in
+    // order).
+    let f = killed.join("train/features.npy");
     let len = std::fs::metadata(&f).unwrap().len();
     std::fs::OpenOptions::new()
         .write(true)
@@ -240,7 +246,10 @@ fn a_killed_export_resumes_without_redoing_finished_shards_and_matches_a_clean_r
         .unwrap();
     let (code, out, err) = stapes(&rerun);
     assert_eq!(code, 0, "{out}{err}");
-    assert!(out.contains("1 found incomplete and redone"), "{out}");
+    assert!(
+        out.contains("kept from before 39 (41 found incomplete and redone)"),
+        "{out}"
+    );
     assert_eq!(tree(&killed), b);
 }
 
@@ -291,7 +300,7 @@ fn the_output_does_not_depend_on_the_thread_count() {
     let (a, b) = (tree(&one), tree(&two));
     assert_eq!(a, b);
     // int8 codes, the model's input; augmented copies only in train.
-    let (descr, shape, _) = npy_shape(&one.join("train/features-00000.npy"));
+    let (descr, shape, _) = npy_shape(&one.join("train/features.npy"));
     assert_eq!(descr, "|i1");
     assert_eq!(shape[2], 10);
     let train = String::from_utf8(a["train/manifest.csv"].clone()).unwrap();
@@ -353,7 +362,7 @@ fn a_gain_copy_is_the_clip_scaled_before_the_board_arithmetic() {
         "--raw",
     ]);
     assert_eq!(code, 0, "{o}{e}");
-    let packed = std::fs::read(out.join("train/features-00000.npy")).unwrap();
+    let packed = std::fs::read(out.join("train/features.npy")).unwrap();
     let want = std::fs::read(&one).unwrap();
     let body = |b: &[u8]| {
         let len = u16::from_le_bytes([b[8], b[9]]) as usize;
@@ -393,7 +402,7 @@ fn bad_clips_are_listed_and_the_rest_go_on_unless_strict() {
         failed.contains("stop/eight-k.wav") && failed.contains("8000 Hz"),
         "{failed}"
     );
-    let (_, shape, _) = npy_shape(&out.join("train/features-00000.npy"));
+    let (_, shape, _) = npy_shape(&out.join("train/features.npy"));
     assert_eq!(shape, vec![6, 98, 40]);
 
     let strict = tmp.path().join("strict");

@@ -134,13 +134,15 @@ def test_batch_equals_export_and_single_calls(tmp_path):
     out = tmp_path / "out"
     cli("export", "--input-dir", str(data), "--output-dir", str(out), "--preset",
         "kws16k-mfcc10", "--arith", "fixed16", "--raw", "--frames", "98", "--align", "centre")
-    packed = np.load(out / "train" / "features-00000.npy")
+    packed = np.load(out / "train" / "features.npy")
+    labels = np.load(out / "train" / "labels.npy")
     names = [line.split(",")[1] for line in
              (out / "train" / "manifest.csv").read_text().splitlines()[1:]]
     batch = stapes.features_batch([clips[n] for n in names], RATE, preset="kws16k-mfcc10",
                                   arithmetic="fixed16", raw=True, frames=98, align="centre")
     assert batch.dtype == packed.dtype == np.int8
     assert np.array_equal(batch, packed)
+    assert list(labels) == [0 if n.startswith("go/") else 1 for n in names]
     # Without a length: one array per clip, each the one-call result.
     listed = stapes.features_batch([clips[n] for n in names], RATE, preset="kws16k-mfcc10",
                                    arithmetic="fixed16", raw=True, threads=2)
