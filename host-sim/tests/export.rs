@@ -594,3 +594,36 @@ fn the_statistics_are_the_training_frames_mean_and_deviation() {
             .exists()
     );
 }
+
+#[test]
+fn per_clip_files_are_checked_on_resume_and_a_missing_one_is_redone() {
+    let tmp = tempfile::tempdir().unwrap();
+    let data = tmp.path().join("data");
+    dataset(&data, &["go", "stop"], 5);
+    let out = tmp.path().join("out");
+    let args = [
+        "export",
+        "--input-dir",
+        data.to_str().unwrap(),
+        "--output-dir",
+        out.to_str().unwrap(),
+        "--per-clip",
+        "--shard-clips",
+        "3",
+        "--arith",
+        "fixed32",
+    ];
+    let (code, o, e) = stapes(&args);
+    assert_eq!(code, 0, "{o}{e}");
+    let before = tree(&out);
+    // Each clip's own length, no padding.
+    let (_, shape, _) = npy_shape(&out.join("train/clips/go/c000.0.npy"));
+    assert_eq!(shape[1], 40);
+    // A clip file lost after its shard finished: that shard and the ones
+    // after it are redone, and the folder is as before.
+    std::fs::remove_file(out.join("train/clips/stop/c001.0.npy")).unwrap();
+    let (code, o, e) = stapes(&args);
+    assert_eq!(code, 0, "{o}{e}");
+    assert!(o.contains("found incomplete and redone"), "{o}");
+    assert_eq!(tree(&out), before);
+}
