@@ -627,3 +627,57 @@ fn per_clip_files_are_checked_on_resume_and_a_missing_one_is_redone() {
     assert!(o.contains("found incomplete and redone"), "{o}");
     assert_eq!(tree(&out), before);
 }
+
+#[test]
+fn a_trimmed_clip_aligned_at_the_end_keeps_its_last_samples_and_float_input_works() {
+    let tmp = tempfile::tempdir().unwrap();
+    let data = tmp.path().join("data/go");
+    std::fs::create_dir_all(&data).unwrap();
+    // A float clip of 20,000 samples; 50 frames take 512 + 49·160 = 8352.
+    let x: Vec<f32> = clip(4, 20000).iter().map(|&v| v as f32 / 32768.0).collect();
+    let spec = hound::WavSpec {
+        channels: 1,
+        sample_rate: 16000,
+        bits_per_sample: 32,
+        sample_format: hound::SampleFormat::Float,
+    };
+    let mut w = hound::WavWriter::create(data.join("f.wav"), spec).unwrap();
+    x.iter().for_each(|&v| w.write_sample(v).unwrap());
+    w.finalize().unwrap();
+    let out = tmp.path().join("out");
+    let (code, o, e) = stapes(&[
+        "export",
+        "--input-dir",
+        tmp.path().join("data").to_str().unwrap(),
+        "--output-dir",
+        out.to_str().unwrap(),
+        "--frames",
+        "50",
+        "--align",
+        "end",
+    ]);
+    assert_eq!(code, 0, "{o}{e}");
+    assert!(o.contains("trimmed 1"), "{o}");
+    // The same as `features` of the clip's last 8352 samples.
+    let tail = tmp.path().join("tail.wav");
+    let mut w = hound::WavWriter::create(&tail, spec).unwrap();
+    x[20000 - 8352..]
+        .iter()
+        .for_each(|&v| w.write_sample(v).unwrap());
+    w.finalize().unwrap();
+    let one = tmp.path().join("one.npy");
+    let (code, o, e) = stapes(&[
+        "features",
+        "--input",
+        tail.to_str().unwrap(),
+        "--output",
+        one.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{o}{e}");
+    let body = |p: &Path| {
+        let b = std::fs::read(p).unwrap();
+        let len = u16::from_le_bytes([b[8], b[9]]) as usize;
+        b[10 + len..].to_vec()
+    };
+    assert_eq!(body(&out.join("train/features.npy")), body(&one));
+}
