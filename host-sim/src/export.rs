@@ -720,17 +720,8 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
             // Every clip of the shard runs on any core and puts its values
             // straight into its own slot of the shard's array (the clips of
             // a packed shard are all one size); the array is written once.
-            let row_bytes = frames.map_or(0, |n| n * values * kind.size());
-            let mut slots = vec![
-                0u8;
-                if a.per_clip {
-                    0
-                } else {
-                    shard.len() * row_bytes
-                }
-            ];
             let results: Vec<Result<Done>> = pool.install(|| {
-                let work = |runner: &mut Result<ClipRunner<'_>>, item: Item, slot: &mut [u8]| {
+                let work = |runner: &mut Result<ClipRunner<'_>>, item: Item, slot: usize| {
                     if stop.load(Ordering::Relaxed) {
                         return Err(anyhow!("stopped"));
                     }
@@ -739,10 +730,12 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
                         Err(e) => Err(anyhow!("{e}")),
                     };
                     let r = r.and_then(|mut d| {
-                        if setup.per_clip {
-                            write_clip_file(&dir, &d, values)?;
-                        } else {
-                            slot.copy_from_slice(d.values.as_bytes());
+                        match array.as_ref() {
+                            // Its row, at its place in the split's array.
+                            Some(array) => {
+                                array.write_row(rows_before + slot, d.values.as_bytes())?
+                            }
+                            None => write_clip_file(&dir, &d, values)?,
                         }
                         d.values = kind.empty();
                         Ok(d)
@@ -755,18 +748,11 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
                 };
                 let init =
                     || ClipRunner::new(&config, arith, tables, &stage_tables, Some(stage), a.raw);
-                if a.per_clip {
-                    shard
-                        .par_iter()
-                        .map_init(init, |r, &item| work(r, item, &mut []))
-                        .collect()
-                } else {
-                    shard
-                        .par_iter()
-                        .zip(slots.par_chunks_mut(row_bytes.max(1)))
-                        .map_init(init, |r, (&item, slot)| work(r, item, slot))
-                        .collect()
-                }
+                shard
+                    .par_iter()
+                    .enumerate()
+                    .map_init(init, |r, (i, &item)| work(r, item, i))
+                    .collect()
             });
             let mut done = Vec::new();
             let mut failed = Vec::new();
@@ -776,8 +762,10 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
                 match r {
                     Ok(d) => {
                         // Close the gaps failed clips left.
-                        if kept != i && row_bytes > 0 {
-                            slots.copy_within(i * row_bytes..(i + 1) * row_bytes, kept * row_bytes);
+                        if let Some(array) = array.as_ref()
+                            && kept != i
+                        {
+                            array.move_row(rows_before + i, rows_before + kept)?;
                         }
                         kept += 1;
                         done.push(d);
@@ -801,9 +789,8 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
                 }
             }
             if let Some(array) = array.as_mut() {
-                // The shard's rows at their place in the split's array,
-                // flushed to the disk: the shard's one fsync.
-                array.put(rows_before, &slots[..kept * row_bytes])?;
+                // The shard's rows, flushed to the disk: its one fsync.
+                array.seal(rows_before + kept)?;
             }
             rows_before += kept;
             write_shard(&setup, &dir, k, &done, &failed, with_sums)?;
@@ -1080,12 +1067,31 @@ impl SplitArray {
             .is_ok_and(|m| m.len() as usize >= self.header_len + rows * self.row_bytes)
     }
 
-    /// Writes rows from row `first` on (dropping anything after them) and
+    /// Writes row `row` (from any thread: each row has its own place).
+    fn write_row(&self, row: usize, bytes: &[u8]) -> Result<()> {
+        anyhow::ensure!(
+            bytes.len() == self.row_bytes,
+            "a row of {} bytes",
+            bytes.len()
+        );
+        self.write_at(self.header_len + row * self.row_bytes, bytes)
+    }
+
+    /// Copies row `from` to row `to` (closing the gap a failed clip left).
+    fn move_row(&self, from: usize, to: usize) -> Result<()> {
+        use std::os::unix::fs::FileExt;
+        let mut row = vec![0u8; self.row_bytes];
+        self.file
+            .read_exact_at(&mut row, (self.header_len + from * self.row_bytes) as u64)
+            .with_context(|| format!("cannot read {}", self.partial.display()))?;
+        self.write_row(to, &row)
+    }
+
+    /// Keeps the first `rows` rows (dropping anything after them) and
     /// flushes the file to the disk.
-    fn put(&mut self, first: usize, bytes: &[u8]) -> Result<()> {
-        let at = self.header_len + first * self.row_bytes;
-        self.write_at(at, bytes)?;
-        self.file.set_len((at + bytes.len()) as u64)?;
+    fn seal(&mut self, rows: usize) -> Result<()> {
+        self.file
+            .set_len((self.header_len + rows * self.row_bytes) as u64)?;
         self.file
             .sync_data()
             .with_context(|| format!("cannot flush {} to the disk", self.partial.display()))
