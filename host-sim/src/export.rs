@@ -567,6 +567,19 @@ fn statistics_stage(config: &FeatureConfig) -> usize {
         .expect("the level stage")
 }
 
+/// Seconds spent in each phase of a run.
+#[derive(Clone, Copy, Debug, Default)]
+struct Phases {
+    /// Tables, dataset, plan: before the first clip.
+    setup: f64,
+    /// Running the clips (on every core).
+    clips: f64,
+    /// Flushing the split arrays to the disk (one fsync per shard).
+    flush: f64,
+    /// The whole run.
+    total: f64,
+}
+
 /// The per-split tally for the summary.
 #[derive(Default)]
 struct Tally {
@@ -647,6 +660,12 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
     let work: Vec<(String, Vec<Item>)> =
         splits.iter().map(|s| (s.clone(), setup.items(s))).collect();
     let total: usize = work.iter().map(|(_, w)| w.len()).sum();
+    // Where the time goes, for the summary: what divides among the cores
+    // (the clips) and what does not.
+    let mut phases = Phases {
+        setup: started.elapsed().as_secs_f64(),
+        ..Phases::default()
+    };
     let bar = progress_bar(total as u64, a.quiet);
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(a.threads.unwrap_or(0))
@@ -720,6 +739,7 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
             // Every clip of the shard runs on any core and puts its values
             // straight into its own slot of the shard's array (the clips of
             // a packed shard are all one size); the array is written once.
+            let clips_started = Instant::now();
             let results: Vec<Result<Done>> = pool.install(|| {
                 let work = |runner: &mut Result<ClipRunner<'_>>, item: Item, slot: usize| {
                     if stop.load(Ordering::Relaxed) {
@@ -754,6 +774,7 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
                     .map_init(init, |r, (i, &item)| work(r, item, i))
                     .collect()
             });
+            phases.clips += clips_started.elapsed().as_secs_f64();
             let mut done = Vec::new();
             let mut failed = Vec::new();
             let mut kept = 0;
@@ -790,7 +811,9 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
             }
             if let Some(array) = array.as_mut() {
                 // The shard's rows, flushed to the disk: its one fsync.
+                let flush_started = Instant::now();
                 array.seal(rows_before + kept)?;
+                phases.flush += flush_started.elapsed().as_secs_f64();
             }
             rows_before += kept;
             write_shard(&setup, &dir, k, &done, &failed, with_sums)?;
@@ -835,7 +858,10 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
         frames,
         values,
         statistics.as_deref(),
-        started.elapsed().as_secs_f64(),
+        Phases {
+            total: started.elapsed().as_secs_f64(),
+            ..phases
+        },
         out,
     );
     crate::output::write_atomic_unsynced(&out.join("summary.txt"), summary.as_bytes())?;
@@ -1312,9 +1338,10 @@ fn summary_text(
     frames: Option<usize>,
     values: usize,
     statistics: Option<&str>,
-    seconds: f64,
+    phases: Phases,
     out: &Path,
 ) -> String {
+    let seconds = phases.total;
     let mut t = String::new();
     let _ = writeln!(
         t,
@@ -1401,8 +1428,14 @@ fn summary_text(
     }
     let _ = writeln!(
         t,
-        "  time: {seconds:.2} s ({:.0} rows per second); output in {}",
+        "  time: {seconds:.3} s ({:.0} rows per second): setup {:.1} ms, clips {:.1} ms, \
+         flushing the arrays to the disk {:.1} ms, the rest (shard files, statistics, \
+         summary) {:.1} ms; output in {}",
         processed as f64 / seconds.max(1e-9),
+        phases.setup * 1e3,
+        phases.clips * 1e3,
+        phases.flush * 1e3,
+        (seconds - phases.setup - phases.clips - phases.flush).max(0.0) * 1e3,
         out.display()
     );
     t
