@@ -85,8 +85,9 @@ pub struct ExportArgs {
     /// One .npy per clip (under <split>/clips/) instead of packed arrays.
     #[arg(long)]
     pub per_clip: bool,
-    /// Clips per output file (memory is bounded by this, not the dataset).
-    #[arg(long, value_name = "N", default_value_t = 2048)]
+    /// Clips per shard: the unit a rerun resumes from and flushes to the
+    /// disk (one fsync each, while the next shard runs).
+    #[arg(long, value_name = "N", default_value_t = 256)]
     pub shard_clips: usize,
     /// Percent of clips without a split of their own that go to
     /// validation (by a stable hash of the path).

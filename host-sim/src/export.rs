@@ -410,7 +410,10 @@ impl Setup<'_> {
     }
 }
 
-fn failed_csv(rows: &[(String, String, u32, String)]) -> Result<Vec<u8>> {
+/// A clip that could not be read: its path, split, copy and the error.
+type FailedClip = (String, String, u32, String);
+
+fn failed_csv(rows: &[FailedClip]) -> Result<Vec<u8>> {
     let mut w = csv::Writer::from_writer(Vec::new());
     w.write_record(["path", "split", "copy", "error"])?;
     for (path, split, copy, error) in rows {
@@ -574,7 +577,8 @@ struct Phases {
     setup: f64,
     /// Running the clips (on every core).
     clips: f64,
-    /// Flushing the split arrays to the disk (one fsync per shard).
+    /// Waiting, after the clips, for the shards' flushes to the disk (one
+    /// fsync per shard, on a thread of its own while the clips run).
     flush: f64,
     /// The whole run.
     total: f64,
@@ -680,7 +684,7 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
         let with_sums = split_name == "train";
         let shards = items.len().div_ceil(a.shard_clips);
         // The split's one packed array, appended a shard at a time.
-        let mut array = match (a.per_clip, frames) {
+        let array = match (a.per_clip, frames) {
             (false, Some(n)) => Some(SplitArray::open(
                 &dir,
                 crate::npy::descr(&kind.empty()),
@@ -692,143 +696,169 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
         };
         let mut rows_before = 0;
         let mut invalid_from = None;
-        for (k, shard) in items.chunks(a.shard_clips).enumerate() {
-            let manifest = dir.join(shard_name("manifest", k, "csv"));
-            if invalid_from.is_none()
-                && manifest.exists()
-                && !shard_is_whole(
-                    &setup,
-                    &dir,
-                    k,
-                    values,
-                    kind,
-                    with_sums,
-                    array.as_ref(),
-                    rows_before,
-                )?
-            {
-                invalid_from = Some(k);
-            }
-            if let Some(first) = invalid_from
-                && manifest.exists()
-            {
-                // Written before a power cut, say (or after such a shard in
-                // the split's array): done again.
-                std::fs::remove_file(&manifest)
-                    .with_context(|| format!("cannot remove {}", manifest.display()))?;
-                tally.shards_redone += (k >= first) as usize;
-            }
-            if manifest.exists() {
-                let rows = csv_rows(&manifest)?;
-                rows_before += rows;
-                tally.shards_kept += 1;
-                tally.done += rows;
-                let failed = dir.join(shard_name("failed", k, "csv"));
-                if failed.exists() {
-                    tally.failed += csv_rows(&failed)?;
-                }
-                if with_sums {
-                    let p = dir.join(shard_name("sums", k, "txt"));
-                    let text = std::fs::read_to_string(&p)
-                        .with_context(|| format!("cannot read {}", p.display()))?;
-                    train_sums.add(&Sums::from_text(&text, &p)?);
-                }
-                bar.inc(shard.len() as u64);
-                continue;
-            }
-            // Every clip of the shard runs on any core and puts its values
-            // straight into its own slot of the shard's array (the clips of
-            // a packed shard are all one size); the array is written once.
-            let clips_started = Instant::now();
-            let results: Vec<Result<Done>> = pool.install(|| {
-                let work = |runner: &mut Result<ClipRunner<'_>>, item: Item, slot: usize| {
-                    if stop.load(Ordering::Relaxed) {
-                        return Err(anyhow!("stopped"));
+        // Each finished shard is committed in order on a thread of its own:
+        // its rows flushed to the disk (the shard's one fsync), then its
+        // files, the manifest last.
+        std::thread::scope(|scope| -> Result<()> {
+            let (commit, to_commit) =
+                std::sync::mpsc::channel::<(usize, Vec<Done>, Vec<FailedClip>)>();
+            let array = array.as_ref();
+            let (setup, dir) = (&setup, &dir);
+            let committer = scope.spawn(move || -> Result<()> {
+                for (k, done, failed) in to_commit {
+                    if let Some(array) = array {
+                        array.sync()?;
                     }
-                    let r = match runner {
-                        Ok(r) => setup.process(r, item, with_sums),
-                        Err(e) => Err(anyhow!("{e}")),
-                    };
-                    let r = r.and_then(|mut d| {
-                        match array.as_ref() {
-                            // Its row, at its place in the split's array.
-                            Some(array) => {
-                                array.write_row(rows_before + slot, d.values.as_bytes())?
-                            }
-                            None => write_clip_file(&dir, &d, values)?,
-                        }
-                        d.values = kind.empty();
-                        Ok(d)
-                    });
-                    if r.is_err() && a.strict {
-                        stop.store(true, Ordering::Relaxed);
-                    }
-                    bar.inc(1);
-                    r
-                };
-                let init =
-                    || ClipRunner::new(&config, arith, tables, &stage_tables, Some(stage), a.raw);
-                shard
-                    .par_iter()
-                    .enumerate()
-                    .map_init(init, |r, (i, &item)| work(r, item, i))
-                    .collect()
+                    write_shard(setup, dir, k, &done, &failed, with_sums)?;
+                }
+                Ok(())
             });
-            phases.clips += clips_started.elapsed().as_secs_f64();
-            let mut done = Vec::new();
-            let mut failed = Vec::new();
-            let mut kept = 0;
-            for (i, (item, r)) in shard.iter().zip(results).enumerate() {
-                let clip = &data.clips[item.clip];
-                match r {
-                    Ok(d) => {
-                        // Close the gaps failed clips left.
-                        if let Some(array) = array.as_ref()
-                            && kept != i
-                        {
-                            array.move_row(rows_before + i, rows_before + kept)?;
-                        }
-                        kept += 1;
-                        done.push(d);
+            for (k, shard) in items.chunks(a.shard_clips).enumerate() {
+                let manifest = dir.join(shard_name("manifest", k, "csv"));
+                if invalid_from.is_none()
+                    && manifest.exists()
+                    && !shard_is_whole(
+                        &setup,
+                        &dir,
+                        k,
+                        values,
+                        kind,
+                        with_sums,
+                        array,
+                        rows_before,
+                    )?
+                {
+                    invalid_from = Some(k);
+                }
+                if let Some(first) = invalid_from
+                    && manifest.exists()
+                {
+                    // Written before a power cut, say (or after such a shard in
+                    // the split's array): done again.
+                    std::fs::remove_file(&manifest)
+                        .with_context(|| format!("cannot remove {}", manifest.display()))?;
+                    tally.shards_redone += (k >= first) as usize;
+                }
+                if manifest.exists() {
+                    let rows = csv_rows(&manifest)?;
+                    rows_before += rows;
+                    tally.shards_kept += 1;
+                    tally.done += rows;
+                    let failed = dir.join(shard_name("failed", k, "csv"));
+                    if failed.exists() {
+                        tally.failed += csv_rows(&failed)?;
                     }
-                    Err(e) => {
-                        if a.strict {
-                            bar.finish_and_clear();
-                            return Err(e.context(format!(
-                                "--strict: {} (copy {}) failed; the shards before it are kept \
-                                 and a rerun resumes after them",
-                                clip.relative, item.copy
-                            )));
+                    if with_sums {
+                        let p = dir.join(shard_name("sums", k, "txt"));
+                        let text = std::fs::read_to_string(&p)
+                            .with_context(|| format!("cannot read {}", p.display()))?;
+                        train_sums.add(&Sums::from_text(&text, &p)?);
+                    }
+                    bar.inc(shard.len() as u64);
+                    continue;
+                }
+                // Every clip of the shard runs on any core and puts its values
+                // straight into its own slot of the shard's array (the clips of
+                // a packed shard are all one size); the array is written once.
+                let clips_started = Instant::now();
+                let results: Vec<Result<Done>> = pool.install(|| {
+                    let work = |runner: &mut Result<ClipRunner<'_>>, item: Item, slot: usize| {
+                        if stop.load(Ordering::Relaxed) {
+                            return Err(anyhow!("stopped"));
                         }
-                        failed.push((
-                            clip.relative.clone(),
-                            clip.split.clone(),
-                            item.copy,
-                            format!("{e:#}"),
-                        ));
+                        let r = match runner {
+                            Ok(r) => setup.process(r, item, with_sums),
+                            Err(e) => Err(anyhow!("{e}")),
+                        };
+                        let r = r.and_then(|mut d| {
+                            match array {
+                                // Its row, at its place in the split's array.
+                                Some(array) => {
+                                    array.write_row(rows_before + slot, d.values.as_bytes())?
+                                }
+                                None => write_clip_file(&dir, &d, values)?,
+                            }
+                            d.values = kind.empty();
+                            Ok(d)
+                        });
+                        if r.is_err() && a.strict {
+                            stop.store(true, Ordering::Relaxed);
+                        }
+                        bar.inc(1);
+                        r
+                    };
+                    let init = || {
+                        ClipRunner::new(&config, arith, tables, &stage_tables, Some(stage), a.raw)
+                    };
+                    shard
+                        .par_iter()
+                        .enumerate()
+                        .map_init(init, |r, (i, &item)| work(r, item, i))
+                        .collect()
+                });
+                phases.clips += clips_started.elapsed().as_secs_f64();
+                let mut done = Vec::new();
+                let mut failed = Vec::new();
+                let mut kept = 0;
+                for (i, (item, r)) in shard.iter().zip(results).enumerate() {
+                    let clip = &data.clips[item.clip];
+                    match r {
+                        Ok(d) => {
+                            // Close the gaps failed clips left.
+                            if let Some(array) = array
+                                && kept != i
+                            {
+                                array.move_row(rows_before + i, rows_before + kept)?;
+                            }
+                            kept += 1;
+                            done.push(d);
+                        }
+                        Err(e) => {
+                            if a.strict {
+                                bar.finish_and_clear();
+                                return Err(e.context(format!(
+                                    "--strict: {} (copy {}) failed; the shards before it are kept \
+                                     and a rerun resumes after them",
+                                    clip.relative, item.copy
+                                )));
+                            }
+                            failed.push((
+                                clip.relative.clone(),
+                                clip.split.clone(),
+                                item.copy,
+                                format!("{e:#}"),
+                            ));
+                        }
                     }
                 }
-            }
-            if let Some(array) = array.as_mut() {
-                // The shard's rows, flushed to the disk: its one fsync.
-                let flush_started = Instant::now();
-                array.seal(rows_before + kept)?;
-                phases.flush += flush_started.elapsed().as_secs_f64();
-            }
-            rows_before += kept;
-            write_shard(&setup, &dir, k, &done, &failed, with_sums)?;
-            tally.shards_written += 1;
-            tally.done += done.len();
-            tally.failed += failed.len();
-            for d in &done {
-                *tally.per_label.entry(d.row.label.clone()).or_default() += 1;
-                tally.padded += (d.row.frames > d.row.clip_frames) as usize;
-                tally.trimmed += (d.row.frames < d.row.clip_frames) as usize;
-                if let Some(s) = &d.sums {
-                    train_sums.add(s);
+                rows_before += kept;
+                tally.shards_written += 1;
+                tally.done += done.len();
+                tally.failed += failed.len();
+                for d in &done {
+                    *tally.per_label.entry(d.row.label.clone()).or_default() += 1;
+                    tally.padded += (d.row.frames > d.row.clip_frames) as usize;
+                    tally.trimmed += (d.row.frames < d.row.clip_frames) as usize;
+                    if let Some(s) = &d.sums {
+                        train_sums.add(s);
+                    }
+                }
+                // Flushed and marked finished on the committing thread while
+                // the next shard runs.
+                if commit.send((k, done, failed)).is_err() {
+                    break; // the committer stopped on an error, reported below
                 }
             }
-        }
+            drop(commit);
+            // What the disk still owes once the clips are done.
+            let waited = Instant::now();
+            committer
+                .join()
+                .map_err(|_| anyhow!("the committing thread failed"))??;
+            phases.flush += waited.elapsed().as_secs_f64();
+            Ok(())
+        })
+        .inspect_err(|_| bar.finish_and_clear())?;
         let labels = join_manifests(&dir, shards)?;
         if let Some(array) = array {
             array.finish(rows_before)?;
@@ -1113,11 +1143,8 @@ impl SplitArray {
         self.write_row(to, &row)
     }
 
-    /// Keeps the first `rows` rows (dropping anything after them) and
-    /// flushes the file to the disk.
-    fn seal(&mut self, rows: usize) -> Result<()> {
-        self.file
-            .set_len((self.header_len + rows * self.row_bytes) as u64)?;
+    /// Flushes the rows written so far to the disk.
+    fn sync(&self) -> Result<()> {
         self.file
             .sync_data()
             .with_context(|| format!("cannot flush {} to the disk", self.partial.display()))
@@ -1429,7 +1456,7 @@ fn summary_text(
     let _ = writeln!(
         t,
         "  time: {seconds:.3} s ({:.0} rows per second): setup {:.1} ms, clips {:.1} ms, \
-         flushing the arrays to the disk {:.1} ms, the rest (shard files, statistics, \
+         waiting for the disk after them {:.1} ms, the rest (shard files, statistics, \
          summary) {:.1} ms; output in {}",
         processed as f64 / seconds.max(1e-9),
         phases.setup * 1e3,
