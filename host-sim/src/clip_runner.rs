@@ -129,14 +129,6 @@ impl FlatValues {
         }
     }
 
-    /// Appends `n` copies of values `range` of `other` (padding with a
-    /// frame).
-    pub fn extend_repeated(&mut self, other: &FlatValues, range: std::ops::Range<usize>, n: usize) {
-        for _ in 0..n {
-            self.extend_from(other, range.clone());
-        }
-    }
-
     /// The values as little-endian bytes (what a `.npy` body holds).
     pub fn as_bytes(&self) -> &[u8] {
         match self {

@@ -140,23 +140,6 @@ pub fn descr(values: &crate::clip_runner::FlatValues) -> &'static str {
     }
 }
 
-/// Writes `values` as an array of `shape` in one buffer (header and body),
-/// atomically.
-pub fn write_flat(
-    path: &Path,
-    shape: &[usize],
-    values: &crate::clip_runner::FlatValues,
-) -> Result<()> {
-    anyhow::ensure!(
-        shape.iter().product::<usize>() == values.len(),
-        "shape {shape:?} does not hold {} values",
-        values.len()
-    );
-    let mut bytes = header(descr(values), shape);
-    bytes.extend_from_slice(values.as_bytes());
-    crate::output::write_atomic(path, &bytes)
-}
-
 /// Writes `int32` `values` as a 1-D array, atomically, without waiting
 /// for the disk ([`crate::output::write_atomic_unsynced`]).
 pub fn write_i32_vector(path: &Path, values: &[i32]) -> Result<()> {
@@ -222,17 +205,9 @@ impl PackedWriter {
         Ok(())
     }
 
-    /// [`PackedWriter::finish`], flushing the file to the disk first.
-    pub fn finish_synced(self, rows: usize) -> Result<()> {
-        self.finish_with(rows, true)
-    }
-
-    /// Writes the header for `rows` rows and moves the file into place.
-    pub fn finish(self, rows: usize) -> Result<()> {
-        self.finish_with(rows, false)
-    }
-
-    fn finish_with(mut self, rows: usize, sync: bool) -> Result<()> {
+    /// Writes the header for `rows` rows, flushes the file to the disk and
+    /// moves it into place.
+    pub fn finish_synced(mut self, rows: usize) -> Result<()> {
         use std::io::{Seek, SeekFrom, Write as _};
         self.staged.file().write_all(&self.buffer)?;
         let mut shape = vec![rows];
@@ -241,12 +216,6 @@ impl PackedWriter {
         let f = self.staged.file();
         f.seek(SeekFrom::Start(0))?;
         f.write_all(&h)?;
-        // In an export, the shard's manifest, written after this file, is
-        // the one flushed to the disk; a resumed export checks this size.
-        if sync {
-            self.staged.commit()
-        } else {
-            self.staged.commit_unsynced()
-        }
+        self.staged.commit()
     }
 }
