@@ -677,6 +677,7 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
         .map_err(|e| anyhow!("cannot start the worker threads: {e}"))?;
     let mut tallies: Vec<(String, Tally)> = Vec::new();
     let mut train_sums = Sums::default();
+    let mut statistics: Option<String> = None;
     let stop = AtomicBool::new(false);
     for (split_name, items) in &work {
         let dir = out.join(split_name);
@@ -850,6 +851,18 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
                 }
             }
             drop(commit);
+            // The training split's statistics are complete: written while
+            // the committing thread flushes the last shard.
+            if with_sums && train_sums.frames > 0 {
+                statistics = Some(write_statistics(
+                    out,
+                    &loaded,
+                    &config,
+                    stage,
+                    arith,
+                    &train_sums,
+                )?);
+            }
             // What the disk still owes once the clips are done.
             let waited = Instant::now();
             committer
@@ -867,18 +880,6 @@ pub fn export(a: &ExportArgs) -> Result<Outcome> {
         tallies.push((split_name.clone(), tally));
     }
     bar.finish_and_clear();
-    let statistics = if train_sums.frames > 0 {
-        Some(write_statistics(
-            out,
-            &loaded,
-            &config,
-            stage,
-            arith,
-            &train_sums,
-        )?)
-    } else {
-        None
-    };
     let failed_total: usize = tallies.iter().map(|(_, t)| t.failed).sum();
     let summary = summary_text(
         &setup,
