@@ -179,15 +179,7 @@ pub fn read_wav_from<R: std::io::Read>(
                     .map_err(|e| describe_sample_error(path, e))?,
             };
             check_whole_frames(path, raw.len(), channels)?;
-            Samples::I16(match pick {
-                None => raw,
-                Some(ChannelChoice::Left) => raw.chunks_exact(2).map(|p| p[0]).collect(),
-                Some(ChannelChoice::Right) => raw.chunks_exact(2).map(|p| p[1]).collect(),
-                Some(ChannelChoice::Mix) => raw
-                    .chunks_exact(2)
-                    .map(|p| ((p[0] as i32 + p[1] as i32) >> 1) as i16)
-                    .collect(),
-            })
+            Samples::I16(pick_i16(raw, pick))
         }
         (SampleFormat::Float, 32) => {
             let raw: Vec<f32> = match sample_bytes(source, data, 4) {
@@ -201,37 +193,8 @@ pub fn read_wav_from<R: std::io::Read>(
                     .map_err(|e| describe_sample_error(path, e))?,
             };
             check_whole_frames(path, raw.len(), channels)?;
-            if let Some(i) = raw.iter().position(|v| !v.is_finite()) {
-                bail!(
-                    "{} holds a non-finite sample ({}) at sample {} (channel-interleaved \
-                     index {i}): repair or re-export the recording",
-                    path.display(),
-                    raw[i],
-                    i / channels
-                );
-            }
-            // Full scale is ±1.0: a board clamps such samples (and counts
-            // them); a tool preparing training data refuses them.
-            if let Some(i) = raw.iter().position(|v| !(-1.0..=1.0).contains(v)) {
-                bail!(
-                    "{} holds a float sample of {} at sample {} (channel-interleaved \
-                     index {i}), outside the full-scale range [-1, 1]: normalise or \
-                     re-export the recording",
-                    path.display(),
-                    raw[i],
-                    i / channels
-                );
-            }
-            Samples::F32(match pick {
-                None => raw,
-                Some(ChannelChoice::Left) => raw.chunks_exact(2).map(|p| p[0]).collect(),
-                Some(ChannelChoice::Right) => raw.chunks_exact(2).map(|p| p[1]).collect(),
-                // Halved first: no sum can overflow.
-                Some(ChannelChoice::Mix) => raw
-                    .chunks_exact(2)
-                    .map(|p| p[0] * 0.5 + p[1] * 0.5)
-                    .collect(),
-            })
+            check_float(path, &raw, channels, 0)?;
+            Samples::F32(pick_f32(raw, pick))
         }
         (format, bits) => bail!(
             "{} holds {bits}-bit {} samples: give 16-bit PCM or 32-bit float \
@@ -292,6 +255,64 @@ fn check_spec(
         ),
     };
     Ok((channels, pick, float))
+}
+
+/// Interleaved 16-bit samples as the channel `pick` takes (all of a mono
+/// file; the integer average, rounded towards −∞, for a mix).
+pub(crate) fn pick_i16(raw: Vec<i16>, pick: Option<ChannelChoice>) -> Vec<i16> {
+    match pick {
+        None => raw,
+        Some(ChannelChoice::Left) => raw.chunks_exact(2).map(|p| p[0]).collect(),
+        Some(ChannelChoice::Right) => raw.chunks_exact(2).map(|p| p[1]).collect(),
+        Some(ChannelChoice::Mix) => raw
+            .chunks_exact(2)
+            .map(|p| ((p[0] as i32 + p[1] as i32) >> 1) as i16)
+            .collect(),
+    }
+}
+
+/// Interleaved float samples as the channel `pick` takes.
+pub(crate) fn pick_f32(raw: Vec<f32>, pick: Option<ChannelChoice>) -> Vec<f32> {
+    match pick {
+        None => raw,
+        Some(ChannelChoice::Left) => raw.chunks_exact(2).map(|p| p[0]).collect(),
+        Some(ChannelChoice::Right) => raw.chunks_exact(2).map(|p| p[1]).collect(),
+        // Halved first: no sum can overflow.
+        Some(ChannelChoice::Mix) => raw
+            .chunks_exact(2)
+            .map(|p| p[0] * 0.5 + p[1] * 0.5)
+            .collect(),
+    }
+}
+
+/// Refuses a non-finite float sample, or one outside full scale ±1 (a
+/// board clamps such samples and counts them; a tool preparing training
+/// data refuses them). `first` is the channel-interleaved index of
+/// `raw[0]` in the file, so the message names the sample's place.
+pub(crate) fn check_float(path: &Path, raw: &[f32], channels: usize, first: u64) -> Result<()> {
+    let at = |i: usize| first + i as u64;
+    if let Some(i) = raw.iter().position(|v| !v.is_finite()) {
+        bail!(
+            "{} holds a non-finite sample ({}) at sample {} (channel-interleaved \
+             index {}): repair or re-export the recording",
+            path.display(),
+            raw[i],
+            at(i) / channels as u64,
+            at(i)
+        );
+    }
+    if let Some(i) = raw.iter().position(|v| !(-1.0..=1.0).contains(v)) {
+        bail!(
+            "{} holds a float sample of {} at sample {} (channel-interleaved \
+             index {}), outside the full-scale range [-1, 1]: normalise or \
+             re-export the recording",
+            path.display(),
+            raw[i],
+            at(i) / channels as u64,
+            at(i)
+        );
+    }
+    Ok(())
 }
 
 fn check_whole_frames(path: &Path, len: usize, channels: usize) -> Result<()> {

@@ -117,53 +117,20 @@ impl WavStream {
                     .chunks_exact(2)
                     .map(|p| i16::from_le_bytes([p[0], p[1]]))
                     .collect();
-                Samples::I16(match self.pick {
-                    None => raw,
-                    Some(ChannelChoice::Left) => raw.chunks_exact(2).map(|p| p[0]).collect(),
-                    Some(ChannelChoice::Right) => raw.chunks_exact(2).map(|p| p[1]).collect(),
-                    Some(ChannelChoice::Mix) => raw
-                        .chunks_exact(2)
-                        .map(|p| ((p[0] as i32 + p[1] as i32) >> 1) as i16)
-                        .collect(),
-                })
+                Samples::I16(crate::wav::pick_i16(raw, self.pick))
             }
             Encoding::Float32 => {
                 let raw: Vec<f32> = b
                     .chunks_exact(4)
                     .map(|p| f32::from_le_bytes([p[0], p[1], p[2], p[3]]))
                     .collect();
-                let channels = self.channels;
-                let at = |i: usize| first + (i / channels) as u64;
-                if let Some(i) = raw.iter().position(|v| !v.is_finite()) {
-                    bail!(
-                        "{} holds a non-finite sample ({}) at sample {} (channel-interleaved \
-                         index {}): repair or re-export the recording",
-                        self.path.display(),
-                        raw[i],
-                        at(i),
-                        first * channels as u64 + i as u64
-                    );
-                }
-                if let Some(i) = raw.iter().position(|v| !(-1.0..=1.0).contains(v)) {
-                    bail!(
-                        "{} holds a float sample of {} at sample {} (channel-interleaved index \
-                         {}), outside the full-scale range [-1, 1]: normalise or re-export the \
-                         recording",
-                        self.path.display(),
-                        raw[i],
-                        at(i),
-                        first * channels as u64 + i as u64
-                    );
-                }
-                Samples::F32(match self.pick {
-                    None => raw,
-                    Some(ChannelChoice::Left) => raw.chunks_exact(2).map(|p| p[0]).collect(),
-                    Some(ChannelChoice::Right) => raw.chunks_exact(2).map(|p| p[1]).collect(),
-                    Some(ChannelChoice::Mix) => raw
-                        .chunks_exact(2)
-                        .map(|p| p[0] * 0.5 + p[1] * 0.5)
-                        .collect(),
-                })
+                crate::wav::check_float(
+                    &self.path,
+                    &raw,
+                    self.channels,
+                    first * self.channels as u64,
+                )?;
+                Samples::F32(crate::wav::pick_f32(raw, self.pick))
             }
         }))
     }
