@@ -23,6 +23,7 @@
 /* floor_db = -100 */
 /* stages.pcen = off */
 /* stages.range_floor = off */
+/* stages.level_map = off */
 /* stages.mfcc = off */
 /* stages.normalise = false */
 /* stages.quantise = scale 0.6 zero_point 39 int8 */

@@ -22,6 +22,7 @@ pub const CONFIG: stapes_core::config::FeatureConfig = stapes_core::config::Feat
     stages: stapes_core::config::StageConfig {
         pcen: None,
         range_floor: None,
+        level_map: None,
         mfcc: None,
         normalise: false,
         quantise: Some(stapes_core::stage_config::QuantiseConfig { scale: 0.6, zero_point: 39, codes: stapes_core::quantise::CodeRange::Int8 }),

@@ -23,6 +23,7 @@
 /* floor_db = -100 */
 /* stages.pcen = off */
 /* stages.range_floor = 40 dB below the peak */
+/* stages.level_map = off */
 /* stages.mfcc = 10 coefficients, lifter off, log-energy in place of c0 off */
 /* stages.normalise = false */
 /* stages.quantise = scale 4 zero_point 0 int8 */

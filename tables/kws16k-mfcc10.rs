@@ -22,6 +22,7 @@ pub const CONFIG: stapes_core::config::FeatureConfig = stapes_core::config::Feat
     stages: stapes_core::config::StageConfig {
         pcen: None,
         range_floor: Some(stapes_core::stage_config::RangeFloorConfig { below_peak_db: 40.0 }),
+        level_map: None,
         mfcc: Some(stapes_core::stage_config::MfccConfig { coefficients: 10, lifter: None, log_energy: false }),
         normalise: false,
         quantise: Some(stapes_core::stage_config::QuantiseConfig { scale: 4.0, zero_point: 0, codes: stapes_core::quantise::CodeRange::Int8 }),

@@ -23,6 +23,7 @@
 /* floor_db = -100 */
 /* stages.pcen = alpha 0.98 delta 2 root 0.5 epsilon 0.000001 time_constant_s 0.4 */
 /* stages.range_floor = off */
+/* stages.level_map = off */
 /* stages.mfcc = off */
 /* stages.normalise = false */
 /* stages.quantise = scale 0.05 zero_point -128 int8 */

@@ -22,6 +22,7 @@ pub const CONFIG: stapes_core::config::FeatureConfig = stapes_core::config::Feat
     stages: stapes_core::config::StageConfig {
         pcen: Some(stapes_core::pcen::PcenParams { alpha: 0.98, delta: 2.0, root: 0.5, epsilon: 1e-6, time_constant_s: 0.4 }),
         range_floor: None,
+        level_map: None,
         mfcc: None,
         normalise: false,
         quantise: Some(stapes_core::stage_config::QuantiseConfig { scale: 0.05, zero_point: -128, codes: stapes_core::quantise::CodeRange::Int8 }),

@@ -23,6 +23,7 @@
 /* floor_db = -100 */
 /* stages.pcen = off */
 /* stages.range_floor = off */
+/* stages.level_map = off */
 /* stages.mfcc = off */
 /* stages.normalise = false */
 /* stages.quantise = off */

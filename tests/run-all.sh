@@ -75,4 +75,7 @@ CARGO_TARGET_DIR="$PWD/target" .venv/bin/maturin build --release -q \
 .venv/bin/pip install -q --force-reinstall --no-deps target/wheels/stapes-*.whl
 STAPES_BIN="$PWD/target/release/stapes" .venv/bin/python -m pytest -q tests/python/test_module.py
 
+step "stapes match against desktop pipelines written from the formulas (numpy/scipy)"
+STAPES_BIN="$PWD/target/release/stapes" .venv/bin/python -m pytest -q tests/python/test_match.py
+
 step "all tests passed"

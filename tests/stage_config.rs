@@ -20,6 +20,7 @@ fn every_stage() -> StageConfig {
         range_floor: Some(RangeFloorConfig {
             below_peak_db: 55.5,
         }),
+        level_map: None,
         mfcc: Some(MfccConfig {
             coefficients: 13,
             lifter: Some(22),

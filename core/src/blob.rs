@@ -27,7 +27,7 @@
 
 use core::fmt;
 
-use crate::config::{CONFIG_BYTES, FeatureConfig, STAGE_CONFIG_BYTES, StageConfig};
+use crate::config::{CONFIG_BYTES, FeatureConfig, StageConfig};
 use crate::crc32::Crc32;
 use crate::fixed_tables::{FixedParams, FixedTableError, FixedTables};
 use crate::stage_tables::{FixedStageParams, StageTableError, StageTables};
@@ -87,7 +87,7 @@ pub enum SectionKind {
     FixedParams = 14,
     /// Window, Q31 (`i32`), read by the 32-bit fixed path (format version 2).
     WindowQ31 = 15,
-    /// [`StageConfig::to_bytes`](crate::stage_config::StageConfig::to_bytes)
+    /// [`StageConfig::to_section`](crate::stage_config::StageConfig::to_section)
     /// (format version 3; absent for a configuration without stages).
     StageConfig = 16,
     /// The MFCC's DCT matrix, f32.
@@ -392,9 +392,7 @@ impl<'a> TableBlob<'a> {
         let raw: &[u8; CONFIG_BYTES] = raw.try_into().map_err(|_| BlobError::BadConfig)?;
         let mut config = FeatureConfig::from_bytes(raw).ok_or(BlobError::BadConfig)?;
         if let Ok(raw) = blob.section_bytes(SectionKind::StageConfig) {
-            let raw: &[u8; STAGE_CONFIG_BYTES] =
-                raw.try_into().map_err(|_| BlobError::BadConfig)?;
-            config.stages = StageConfig::from_bytes(raw).ok_or(BlobError::BadConfig)?;
+            config.stages = StageConfig::from_section(raw).ok_or(BlobError::BadConfig)?;
         }
         if config.fingerprint() != le_u32(bytes, 16) {
             return Err(BlobError::BadConfig);

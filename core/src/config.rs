@@ -23,8 +23,8 @@ use crate::crc32::Crc32;
 use crate::quantise::CodeRange;
 use crate::scale;
 pub use crate::stage_config::{
-    MfccConfig, ModelWindowConfig, QuantiseConfig, RangeFloorConfig, STAGE_CONFIG_BYTES,
-    StageConfig,
+    LEVEL_MAP_BYTES, LevelMapConfig, MfccConfig, ModelWindowConfig, QuantiseConfig,
+    RangeFloorConfig, STAGE_CONFIG_BYTES, STAGE_SECTION_MAX_BYTES, StageConfig,
 };
 
 /// Largest FFT length the configuration accepts (a compile-time FFT must exist).
@@ -572,6 +572,55 @@ impl FeatureConfig {
                 });
             }
         }
+        if let Some(m) = s.level_map {
+            if s.pcen.is_some() {
+                return Err(ConfigError::StageConflict {
+                    field: "stages.level_map",
+                    with: "stages.pcen",
+                    fix: "the level map acts on log values and PCEN replaces the log; drop one",
+                });
+            }
+            if m.added_energy != 0.0 {
+                check_float(
+                    "stages.level_map.added_energy",
+                    m.added_energy,
+                    1e-30,
+                    1e30,
+                    "give the energy added before the log in the board's units (samples at ±1, no 1/N), or 0 for none",
+                )?;
+            }
+            check_float(
+                "stages.level_map.gain",
+                m.gain,
+                1e-4,
+                1e4,
+                "give the factor on the log's values, such as 0.1 for log10 from dB",
+            )?;
+            check_float(
+                "stages.level_map.offset",
+                m.offset,
+                -1e6,
+                1e6,
+                "give the value added after the gain, in the output's unit",
+            )?;
+            for (field, v) in [
+                ("stages.level_map.lower", m.lower),
+                ("stages.level_map.upper", m.upper),
+            ] {
+                if let Some(v) = v {
+                    check_float(field, v, -1e6, 1e6, "give a bound in the output's unit")?;
+                }
+            }
+            if let (Some(lo), Some(hi)) = (m.lower, m.upper)
+                && lo >= hi
+            {
+                return Err(ConfigError::StageConflict {
+                    field: "stages.level_map.lower",
+                    with: "stages.level_map.upper",
+                    fix: "the lower bound must be below the upper bound",
+                });
+            }
+        }
         if let Some(r) = s.range_floor {
             check_float(
                 "stages.range_floor.below_peak_db",
@@ -836,7 +885,8 @@ impl FeatureConfig {
         let mut crc = Crc32::new();
         crc.update(&self.to_bytes());
         if self.stages.any() {
-            crc.update(&self.stages.to_bytes());
+            let (bytes, len) = self.stages.to_section();
+            crc.update(&bytes[..len]);
         }
         crc.finish()
     }

@@ -80,6 +80,95 @@ pub struct ModelWindowConfig {
     pub stride: u32,
 }
 
+/// The level map: the conventions a desktop pipeline may wrap around its log,
+/// applied after the log and the range floor, before MFCC:
+///
+/// `y = clamp(gain · k·ln(max(E, floor) + added_energy) + offset, lower, upper)`
+///
+/// with `k·ln` the configuration's log (`10·log10` or `ln`). It reproduces
+/// `ln(E + ε)`, dB against a fixed reference (`offset = −10·log10(ref)`),
+/// samples scaled other than to ±1 or an FFT scaled by `1/N` or `1/√N` (an
+/// offset, since a scale on the energies is an offset on their log), another
+/// log base (`gain`), a fixed output scale and offset, and clipping to a
+/// fixed range. The added energy is in the board's energy units (samples at
+/// ±1, no `1/N`). On the fixed paths the values stay `i16` in 1/256 units,
+/// so a mapped value beyond ±128 saturates.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct LevelMapConfig {
+    /// Energy added to every band before the log (≥ 0; 0 for none).
+    pub added_energy: f32,
+    /// Multiplies the log's values (> 0).
+    pub gain: f32,
+    /// Added after the gain, in the output's unit.
+    pub offset: f32,
+    /// Lowest output value, or none.
+    pub lower: Option<f32>,
+    /// Highest output value, or none.
+    pub upper: Option<f32>,
+}
+
+impl LevelMapConfig {
+    /// The map that changes nothing.
+    pub const IDENTITY: LevelMapConfig = LevelMapConfig {
+        added_energy: 0.0,
+        gain: 1.0,
+        offset: 0.0,
+        lower: None,
+        upper: None,
+    };
+
+    /// Canonical little-endian encoding: which bounds are present (bit 0
+    /// lower, bit 1 upper) in byte 0, bytes 1–3 zero, then `added_energy`,
+    /// `gain`, `offset`, `lower`, `upper` (0 when absent).
+    pub fn to_bytes(&self) -> [u8; LEVEL_MAP_BYTES] {
+        let mut out = [0u8; LEVEL_MAP_BYTES];
+        out[0] = self.lower.is_some() as u8 | (self.upper.is_some() as u8) << 1;
+        let values = [
+            self.added_energy,
+            self.gain,
+            self.offset,
+            self.lower.unwrap_or(0.0),
+            self.upper.unwrap_or(0.0),
+        ];
+        for (i, v) in values.iter().enumerate() {
+            out[4 + 4 * i..8 + 4 * i].copy_from_slice(&v.to_bits().to_le_bytes());
+        }
+        out
+    }
+
+    /// Decodes [`LevelMapConfig::to_bytes`]; `None` for a reserved bit or
+    /// byte, or a bound's value without its flag.
+    pub fn from_bytes(b: &[u8; LEVEL_MAP_BYTES]) -> Option<LevelMapConfig> {
+        let float = |i: usize| {
+            let at = 4 + 4 * i;
+            f32::from_bits(u32::from_le_bytes([b[at], b[at + 1], b[at + 2], b[at + 3]]))
+        };
+        if b[0] > 3 || b[1..4].iter().any(|&x| x != 0) {
+            return None;
+        }
+        let bound = |bit: u8, i: usize| {
+            if b[0] & bit != 0 {
+                Some(Some(float(i)))
+            } else if float(i).to_bits() == 0 {
+                Some(None)
+            } else {
+                None
+            }
+        };
+        Some(LevelMapConfig {
+            added_energy: float(0),
+            gain: float(1),
+            offset: float(2),
+            lower: bound(1, 3)?,
+            upper: bound(2, 4)?,
+        })
+    }
+}
+
+/// Length in bytes of [`LevelMapConfig::to_bytes`].
+pub const LEVEL_MAP_BYTES: usize = 24;
+
 /// The stages after the filterbank. See the module docs for their order.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -88,6 +177,9 @@ pub struct StageConfig {
     pub pcen: Option<PcenParams>,
     /// A floor relative to each frame's loudest log value.
     pub range_floor: Option<RangeFloorConfig>,
+    /// The log's conventions beyond its floor (added energy, gain, offset,
+    /// fixed bounds); after the range floor.
+    pub level_map: Option<LevelMapConfig>,
     /// MFCC from the log-mel values.
     pub mfcc: Option<MfccConfig>,
     /// Per-value normalisation `(x − mean) / deviation`, with the statistics
@@ -104,6 +196,7 @@ impl StageConfig {
     pub const NONE: StageConfig = StageConfig {
         pcen: None,
         range_floor: None,
+        level_map: None,
         mfcc: None,
         normalise: false,
         quantise: None,
@@ -126,6 +219,10 @@ const HAS_NORMALISE: u8 = 8;
 const HAS_QUANTISE: u8 = 16;
 const HAS_MODEL_WINDOW: u8 = 32;
 const HAS_LIFTER: u8 = 64;
+const HAS_LEVEL_MAP: u8 = 128;
+
+/// Length in bytes of [`StageConfig::to_section`] with a level map.
+pub const STAGE_SECTION_MAX_BYTES: usize = STAGE_CONFIG_BYTES + LEVEL_MAP_BYTES;
 
 impl StageConfig {
     /// Canonical little-endian encoding (the fingerprint's extension and the
@@ -190,14 +287,52 @@ impl StageConfig {
         put(self.model_window.map_or(0, |w| w.frames).to_le_bytes());
         put(self.model_window.map_or(0, |w| w.stride).to_le_bytes());
         // 4 + 12·4 = 52 bytes used; the rest is reserved and stays zero.
+        if self.level_map.is_some() {
+            flags |= HAS_LEVEL_MAP;
+        }
         out[0] = flags;
         out[1] = codes;
         out[2] = self.mfcc.is_some_and(|m| m.log_energy) as u8;
         out
     }
 
-    /// Decodes [`StageConfig::to_bytes`]; `None` for an unknown flag or code
-    /// range, a set reserved byte, or a value present without its flag.
+    /// The blob's stage section: [`StageConfig::to_bytes`], followed by
+    /// [`LevelMapConfig::to_bytes`] when there is a level map (the flag in
+    /// byte 0 says so). Returns the bytes and the length used.
+    pub fn to_section(&self) -> ([u8; STAGE_SECTION_MAX_BYTES], usize) {
+        let mut out = [0u8; STAGE_SECTION_MAX_BYTES];
+        out[..STAGE_CONFIG_BYTES].copy_from_slice(&self.to_bytes());
+        match self.level_map {
+            Some(m) => {
+                out[STAGE_CONFIG_BYTES..].copy_from_slice(&m.to_bytes());
+                (out, STAGE_SECTION_MAX_BYTES)
+            }
+            None => (out, STAGE_CONFIG_BYTES),
+        }
+    }
+
+    /// Decodes [`StageConfig::to_section`]; `None` for a wrong length for its
+    /// flags or any bad byte.
+    pub fn from_section(b: &[u8]) -> Option<StageConfig> {
+        let head: &[u8; STAGE_CONFIG_BYTES] = b.get(..STAGE_CONFIG_BYTES)?.try_into().ok()?;
+        let mut plain = *head;
+        plain[0] &= !HAS_LEVEL_MAP;
+        let mut stages = StageConfig::from_bytes(&plain)?;
+        match (head[0] & HAS_LEVEL_MAP != 0, b.len()) {
+            (false, STAGE_CONFIG_BYTES) => Some(stages),
+            (true, STAGE_SECTION_MAX_BYTES) => {
+                let tail: &[u8; LEVEL_MAP_BYTES] = b[STAGE_CONFIG_BYTES..].try_into().ok()?;
+                stages.level_map = Some(LevelMapConfig::from_bytes(tail)?);
+                Some(stages)
+            }
+            _ => None,
+        }
+    }
+
+    /// Decodes [`StageConfig::to_bytes`] of a configuration without a level
+    /// map ([`StageConfig::from_section`] reads one); `None` for an unknown
+    /// flag or code range, a set reserved byte, or a value present without
+    /// its flag.
     pub fn from_bytes(b: &[u8; STAGE_CONFIG_BYTES]) -> Option<StageConfig> {
         let word = |i: usize| {
             let at = 4 + 4 * i;
@@ -228,6 +363,7 @@ impl StageConfig {
             range_floor: has(HAS_RANGE_FLOOR).then(|| RangeFloorConfig {
                 below_peak_db: float(5),
             }),
+            level_map: None,
             mfcc: has(HAS_MFCC).then(|| MfccConfig {
                 coefficients: word(6),
                 lifter: has(HAS_LIFTER).then(|| word(7)),

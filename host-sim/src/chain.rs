@@ -19,8 +19,8 @@ use stapes_core::quantise::{AffineQuantiser, Code, CodeRange, FixedQuantiseStage
 use stapes_core::stage::FrameStage;
 use stapes_core::stage_tables::StageTables;
 use stapes_core::{
-    FixedLog, FixedMfcc, FixedPcen, FloatLog, FloatMfcc, FloatPcen, Normalise, NormalisedQuantise,
-    QuantiseStage, RangeFloor,
+    FixedLevelMap, FixedLog, FixedMfcc, FixedPcen, FloatLevelMap, FloatLog, FloatMfcc, FloatPcen,
+    Normalise, NormalisedQuantise, QuantiseStage, RangeFloor,
 };
 
 /// Largest stage output the host handles (the validator's band limit).
@@ -119,6 +119,9 @@ fn truncated(config: &FeatureConfig, last: usize) -> FeatureConfig {
     if !keep("range_floor") {
         s.range_floor = None;
     }
+    if !keep("level_map") {
+        s.level_map = None;
+    }
     if !keep("mfcc") {
         s.mfcc = None;
     }
@@ -137,6 +140,9 @@ pub fn stage_names(config: &FeatureConfig) -> Vec<&'static str> {
     let mut names = vec![if s.pcen.is_some() { "pcen" } else { "log" }];
     if s.range_floor.is_some() {
         names.push("range_floor");
+    }
+    if s.level_map.is_some() {
+        names.push("level_map");
     }
     if s.mfcc.is_some() {
         names.push("mfcc");
@@ -179,6 +185,7 @@ enum FloatTail<'t> {
 pub struct FloatChain<'t> {
     level: FloatLevel,
     floor: Option<RangeFloor<f32>>,
+    map: Option<FloatLevelMap>,
     mfcc: Option<FloatMfcc<'t, HOST_VALUES>>,
     tail: FloatTail<'t>,
 }
@@ -246,6 +253,7 @@ impl<'t> FloatChain<'t> {
         Ok(FloatChain {
             level,
             floor,
+            map: FloatLevelMap::for_config(config),
             mfcc,
             tail,
         })
@@ -260,6 +268,10 @@ impl<'t> FloatChain<'t> {
         };
         visit(StageOut::Float(frame));
         if let Some(s) = &mut self.floor {
+            frame = s.process(frame);
+            visit(StageOut::Float(frame));
+        }
+        if let Some(s) = &mut self.map {
             frame = s.process(frame);
             visit(StageOut::Float(frame));
         }
@@ -361,6 +373,7 @@ fn fixed_codes<'t, T: Code>(
 pub struct FixedChain<'t> {
     level: FixedLevel<'t>,
     floor: Option<RangeFloor<I8F8>>,
+    map: Option<FixedLevelMap>,
     mfcc: Option<FixedMfcc<'t, HOST_VALUES>>,
     codes: FixedCodes<'t>,
 }
@@ -436,9 +449,16 @@ impl<'t> FixedChain<'t> {
                 FixedCodes::Uint8,
             )?,
         };
+        let map = match st.level_map {
+            Some(_) => Some(FixedLevelMap::for_config(config).ok_or_else(|| {
+                anyhow!("stages.level_map does not fit the fixed formats: use --arith f32")
+            })?),
+            None => None,
+        };
         Ok(FixedChain {
             level,
             floor,
+            map,
             mfcc,
             codes,
         })
@@ -458,6 +478,10 @@ impl<'t> FixedChain<'t> {
                 visit(StageOut::Level(levels));
                 if let Some(f) = &mut self.floor {
                     levels = f.process(levels);
+                    visit(StageOut::Level(levels));
+                }
+                if let Some(m) = &mut self.map {
+                    levels = m.process(levels);
                     visit(StageOut::Level(levels));
                 }
                 match &mut self.mfcc {

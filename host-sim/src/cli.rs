@@ -36,6 +36,8 @@ pub enum Command {
     Statistics(StatisticsArgs),
     /// Turn a labelled dataset folder into the board's features for training (packed .npy per split, manifests, statistics), resumably.
     Export(ExportArgs),
+    /// Find the configuration that reproduces the features a user's own pipeline computed for some clips, and name what a streaming board cannot reproduce.
+    Match(crate::pipeline_match::MatchArgs),
 }
 
 /// `stapes export`.

@@ -37,6 +37,7 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Features(a) => features(&a),
         Command::Demo(a) => crate::demo::demo(&a),
         Command::Export(a) => crate::export::export(&a),
+        Command::Match(a) => crate::pipeline_match::run(&a),
         Command::Statistics(a) => {
             let named = a.config.resolve()?;
             let (mean, deviation, frames, clips) =

@@ -17,6 +17,12 @@
 //! ```toml
 //! [stages.range_floor]
 //! below_peak_db = 60.0
+//! [stages.level_map]     # y = clamp(gain·log(max(E, floor) + added_energy) + offset, lower, upper)
+//! added_energy = 1e-6    # every key optional: 0, 1, 0, none, none
+//! gain = 1.0
+//! offset = 0.0
+//! lower = -80.0
+//! upper = 40.0
 //! [stages.mfcc]
 //! coefficients = 10
 //! lifter = 22            # optional
@@ -47,6 +53,7 @@ use stapes_core::config::{
 use stapes_core::pcen::PcenParams;
 use stapes_core::presets;
 use stapes_core::quantise::CodeRange;
+use stapes_core::stage_config::LevelMapConfig;
 
 /// Configuration selection shared by every subcommand.
 #[derive(Args, Debug, Clone, Default)]
@@ -167,6 +174,7 @@ struct ConfigFile {
 struct StagesFile {
     pcen: Option<PcenFile>,
     range_floor: Option<RangeFloorFile>,
+    level_map: Option<LevelMapFile>,
     mfcc: Option<MfccFile>,
     normalise: Option<NormaliseFile>,
     quantise: Option<QuantiseFile>,
@@ -187,6 +195,16 @@ struct PcenFile {
 #[serde(deny_unknown_fields)]
 struct RangeFloorFile {
     below_peak_db: f32,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields)]
+struct LevelMapFile {
+    added_energy: Option<f32>,
+    gain: Option<f32>,
+    offset: Option<f32>,
+    lower: Option<f32>,
+    upper: Option<f32>,
 }
 
 #[derive(Deserialize, Debug)]
@@ -240,6 +258,16 @@ fn apply_stages_file(
     if let Some(r) = file.range_floor {
         st.range_floor = Some(RangeFloorConfig {
             below_peak_db: r.below_peak_db,
+        });
+    }
+    if let Some(m) = file.level_map {
+        let d = LevelMapConfig::IDENTITY;
+        st.level_map = Some(LevelMapConfig {
+            added_energy: m.added_energy.unwrap_or(d.added_energy),
+            gain: m.gain.unwrap_or(d.gain),
+            offset: m.offset.unwrap_or(d.offset),
+            lower: m.lower,
+            upper: m.upper,
         });
     }
     if let Some(m) = file.mfcc {
@@ -446,6 +474,19 @@ pub fn describe(config: &FeatureConfig) -> Vec<(&'static str, String)> {
             "stages.range_floor",
             config.stages.range_floor.map_or("off".into(), |r| {
                 format!("{} dB below the peak", r.below_peak_db)
+            }),
+        ),
+        (
+            "stages.level_map",
+            config.stages.level_map.map_or("off".into(), |m| {
+                format!(
+                    "added energy {:e}, gain {}, offset {}, lower {}, upper {}",
+                    m.added_energy,
+                    m.gain,
+                    m.offset,
+                    m.lower.map_or("none".into(), |v| v.to_string()),
+                    m.upper.map_or("none".into(), |v| v.to_string())
+                )
             }),
         ),
         (
@@ -719,4 +760,59 @@ impl ConfigArgs {
             ..Default::default()
         }
     }
+}
+
+/// A configuration as a TOML file [`from_toml`] reads back to the same
+/// configuration: every key written, floats in their shortest round-trip
+/// form. The stages' statistics are not configuration and are not written.
+pub fn to_toml(config: &FeatureConfig) -> String {
+    let opt = |v: Option<f32>| v.map_or("\"off\"".to_string(), |x| format!("{x:?}"));
+    let mut s = String::new();
+    use std::fmt::Write;
+    let c = config;
+    let _ = writeln!(s, "sample_rate_hz = {}", c.sample_rate_hz);
+    let _ = writeln!(s, "window_samples = {}", c.window_samples);
+    let _ = writeln!(s, "fft_points = {}", c.fft_points);
+    let _ = writeln!(s, "hop_samples = {}", c.hop_samples);
+    let _ = writeln!(s, "window = \"{}\"", name_of(WINDOWS, c.window));
+    let _ = writeln!(s, "dc_removal_pole = {}", opt(c.dc_removal_pole));
+    let _ = writeln!(s, "pre_emphasis = {}", opt(c.pre_emphasis));
+    let _ = writeln!(s, "bands = {}", c.bands);
+    let _ = writeln!(s, "low_edge_hz = {:?}", c.low_edge_hz);
+    let _ = writeln!(s, "high_edge_hz = {:?}", c.high_edge_hz);
+    let _ = writeln!(s, "mel_scale = \"{}\"", name_of(SCALES, c.mel_scale));
+    let _ = writeln!(s, "triangles = \"{}\"", name_of(PLACEMENTS, c.triangles));
+    let _ = writeln!(s, "band_gain = \"{}\"", name_of(GAINS, c.band_gain));
+    let _ = writeln!(s, "spectrum = \"{}\"", name_of(SPECTRA, c.spectrum));
+    let _ = writeln!(s, "log = \"{}\"", name_of(LOGS, c.log));
+    let _ = writeln!(s, "floor_db = {:?}", c.floor_db);
+    let st = &c.stages;
+    if let Some(r) = st.range_floor {
+        let _ = writeln!(
+            s,
+            "\n[stages.range_floor]\nbelow_peak_db = {:?}",
+            r.below_peak_db
+        );
+    }
+    if let Some(m) = st.level_map {
+        let _ = writeln!(
+            s,
+            "\n[stages.level_map]\nadded_energy = {:?}\ngain = {:?}\noffset = {:?}",
+            m.added_energy, m.gain, m.offset
+        );
+        if let Some(v) = m.lower {
+            let _ = writeln!(s, "lower = {v:?}");
+        }
+        if let Some(v) = m.upper {
+            let _ = writeln!(s, "upper = {v:?}");
+        }
+    }
+    if let Some(m) = st.mfcc {
+        let _ = writeln!(s, "\n[stages.mfcc]\ncoefficients = {}", m.coefficients);
+        if let Some(l) = m.lifter {
+            let _ = writeln!(s, "lifter = {l}");
+        }
+        let _ = writeln!(s, "log_energy = {}", m.log_energy);
+    }
+    s
 }

@@ -41,6 +41,7 @@ pub mod generate;
 pub mod model_input;
 pub mod npy;
 pub mod output;
+pub mod pipeline_match;
 pub mod plots;
 pub mod predict;
 pub mod reference;

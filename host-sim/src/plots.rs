@@ -173,14 +173,27 @@ fn centre_label(v: f64, centres: &[f64]) -> String {
 
 /// Draws a frames × bands heat map to a PNG, written whole or not at all.
 pub fn heat_map(path: &Path, map: &HeatMap<'_>) -> Result<()> {
-    let f = font();
     let tmp = tempfile::Builder::new()
         .suffix(".png")
         .tempfile_in(path.parent().unwrap_or(Path::new(".")))?;
     {
         let root = BitMapBackend::new(tmp.path(), (1100, 520)).into_drawing_area();
         root.fill(&WHITE).map_err(err(path))?;
-        let (main, bar) = root.split_horizontally(960);
+        draw_heat_map(&root, path, map)?;
+        root.present().map_err(err(path))?;
+    }
+    finish_png(tmp, path)
+}
+
+/// A heat map drawn into `area` (its colour bar on the right).
+fn draw_heat_map(
+    area: &DrawingArea<BitMapBackend<'_>, plotters::coord::Shift>,
+    path: &Path,
+    map: &HeatMap<'_>,
+) -> Result<()> {
+    let f = font();
+    {
+        let (main, bar) = area.split_horizontally(960);
         let frames = map.values.len();
         let bands = map.centres_hz.len();
         let t_max = (frames.max(1) as f64) * map.hop_s;
@@ -242,9 +255,8 @@ pub fn heat_map(path: &Path, map: &HeatMap<'_>) -> Result<()> {
             .any(|v| v.is_nan())
             .then_some(map.grey_means);
         colour_bar(&bar, path, lo, hi, map.unit, grey.flatten())?;
-        root.present().map_err(err(path))?;
     }
-    finish_png(tmp, path)
+    Ok(())
 }
 
 /// Draws each band's weights against frequency.
@@ -414,6 +426,79 @@ pub fn band_level_map(
             }))
             .map_err(err(path))?;
         colour_bar(&bar, path, 0.0, hi, "dB", None)?;
+        root.present().map_err(err(path))?;
+    }
+    finish_png(tmp, path)
+}
+
+/// `stapes match`'s figure: the user's features, the board's and their
+/// difference (board − user) for one clip, stacked, each with its own
+/// colour scale; frames the board does not compute are grey.
+pub fn match_figure(
+    path: &Path,
+    user: &[Vec<f64>],
+    board: &[Vec<f64>],
+    difference: &[Vec<f64>],
+    hop_s: f64,
+    centres_hz: &[f64],
+    clip: &str,
+) -> Result<()> {
+    let finite = |v: &[Vec<f64>]| {
+        let it = || v.iter().flatten().copied().filter(|x| x.is_finite());
+        let lo = it().fold(f64::INFINITY, f64::min);
+        let hi = it().fold(f64::NEG_INFINITY, f64::max);
+        if lo.is_finite() && hi > lo {
+            (lo, hi)
+        } else {
+            (lo.min(0.0) - 1.0, hi.max(0.0) + 1.0)
+        }
+    };
+    let (ulo, uhi) = finite(user);
+    let d = {
+        let (lo, hi) = finite(difference);
+        lo.abs().max(hi.abs()).max(1e-9)
+    };
+    let t1 = format!("{clip}: the user's features (their unit)");
+    let t2 = format!("{clip}: the board's f32 core with the configuration found");
+    let t3 = format!("{clip}: board minus user (grey: a frame the board does not compute)");
+    let maps = [
+        HeatMap {
+            title: &t1,
+            values: user,
+            hop_s,
+            centres_hz,
+            range: (ulo, uhi),
+            unit: "features' unit",
+            grey_means: None,
+        },
+        HeatMap {
+            title: &t2,
+            values: board,
+            hop_s,
+            centres_hz,
+            range: (ulo, uhi),
+            unit: "features' unit",
+            grey_means: Some("not computed"),
+        },
+        HeatMap {
+            title: &t3,
+            values: difference,
+            hop_s,
+            centres_hz,
+            range: (-d, d),
+            unit: "difference",
+            grey_means: Some("not computed"),
+        },
+    ];
+    let tmp = tempfile::Builder::new()
+        .suffix(".png")
+        .tempfile_in(path.parent().unwrap_or(Path::new(".")))?;
+    {
+        let root = BitMapBackend::new(tmp.path(), (1100, 1560)).into_drawing_area();
+        root.fill(&WHITE).map_err(err(path))?;
+        for (area, m) in root.split_evenly((3, 1)).iter().zip(&maps) {
+            draw_heat_map(area, path, m)?;
+        }
         root.present().map_err(err(path))?;
     }
     finish_png(tmp, path)

@@ -117,6 +117,17 @@ pub fn tolerances(
     if st.range_floor.is_some() {
         out.push(("range_floor", tol));
     }
+    if let Some(m) = st.level_map {
+        // The gain scales the error (the log-add and the bounds only shrink
+        // it); the fixed paths round the mapped value to 1/256 once more.
+        tol = tol * m.gain as f64
+            + if arith == Arith::F32 {
+                0.0
+            } else {
+                1.0 / 512.0
+            };
+        out.push(("level_map", tol));
+    }
     if let Some(m) = st.mfcc {
         let lifter = tables
             .lifter_f32

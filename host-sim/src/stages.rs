@@ -217,6 +217,34 @@ pub fn reference_stages(
         }
         push(&mut run, "range_floor", &frames);
     }
+    if let Some(m) = st.level_map {
+        // Straight from the formula on the energies (not the stage's
+        // log-add): y = clamp(g·k·ln(max(E, floor) + a) + b, lower, upper).
+        let floor = 10f64.powf(config.floor_db as f64 / 10.0);
+        let k = match config.log {
+            LogKind::Decibel => 10.0 / std::f64::consts::LN_10,
+            LogKind::Natural => 1.0,
+        };
+        let map = |v: f64| {
+            let y = m.gain as f64 * k * (v + m.added_energy as f64).ln() + m.offset as f64;
+            y.max(m.lower.map_or(f64::NEG_INFINITY, |l| l as f64))
+                .min(m.upper.map_or(f64::INFINITY, |u| u as f64))
+        };
+        for (f, e) in frames.iter_mut().zip(energies) {
+            for (i, v) in f.iter_mut().enumerate() {
+                // Energy behind this value: the band's (raised by the range
+                // floor when it acted) or, after the bands, the frame's.
+                let floored = (*v / k).exp();
+                let energy = if range_floor_units(config).is_some() {
+                    floored
+                } else {
+                    e.get(i).copied().unwrap_or(floored).max(floor)
+                };
+                *v = map(energy);
+            }
+        }
+        push(&mut run, "level_map", &frames);
+    }
     if let Some(m) = st.mfcc {
         let dct =
             crate::dct::DctTables::new(config.bands as usize, m.coefficients as usize, m.lifter);

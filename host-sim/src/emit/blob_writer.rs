@@ -64,10 +64,8 @@ fn bytes_of<T: LeBytes>(items: &[T]) -> Vec<u8> {
 pub fn sections(tables: &GeneratedTables, contents: BlobContents) -> Vec<(SectionKind, Vec<u8>)> {
     let mut out = vec![(SectionKind::Config, tables.config.to_bytes().to_vec())];
     if tables.config.stages.any() {
-        out.push((
-            SectionKind::StageConfig,
-            tables.config.stages.to_bytes().to_vec(),
-        ));
+        let (bytes, len) = tables.config.stages.to_section();
+        out.push((SectionKind::StageConfig, bytes[..len].to_vec()));
         let v = tables.stages.view();
         let optional: [(SectionKind, Vec<u8>); 8] = [
             (SectionKind::DctF32, bytes_of(v.dct_f32)),

@@ -231,6 +231,25 @@ pub fn c_header(tables: &GeneratedTables, prefix: &str, command: &str) -> String
             "/* Stages after the filterbank: values per frame after them. */"
         );
         let _ = writeln!(s, "#define {upper}_STAGE_VALUES {}u", c.stage_values());
+        if let Some(m) = c.stages.level_map {
+            let _ = writeln!(
+                s,
+                "/* Level map: y = clamp(gain * log(max(E, floor) + added_energy) + offset, lower, upper). */"
+            );
+            let _ = writeln!(
+                s,
+                "#define {upper}_LEVEL_ADDED_ENERGY {}",
+                c_float(&m.added_energy)
+            );
+            let _ = writeln!(s, "#define {upper}_LEVEL_GAIN {}", c_float(&m.gain));
+            let _ = writeln!(s, "#define {upper}_LEVEL_OFFSET {}", c_float(&m.offset));
+            if let Some(v) = m.lower {
+                let _ = writeln!(s, "#define {upper}_LEVEL_LOWER {}", c_float(&v));
+            }
+            if let Some(v) = m.upper {
+                let _ = writeln!(s, "#define {upper}_LEVEL_UPPER {}", c_float(&v));
+            }
+        }
         if let Some(m) = c.stages.mfcc {
             let _ = writeln!(s, "#define {upper}_MFCC_COEFFICIENTS {}u", m.coefficients);
             let _ = writeln!(

@@ -60,6 +60,12 @@ fn stage_literal(st: &stapes_core::StageConfig) -> String {
             r.below_peak_db
         )
     });
+    let level_map = option(st.level_map, |x| {
+        format!(
+            "{m}::LevelMapConfig {{ added_energy: {:?}, gain: {:?}, offset: {:?}, lower: {:?}, upper: {:?} }}",
+            x.added_energy, x.gain, x.offset, x.lower, x.upper
+        )
+    });
     let mfcc = option(st.mfcc, |x| {
         format!(
             "{m}::MfccConfig {{ coefficients: {}, lifter: {:?}, log_energy: {} }}",
@@ -79,7 +85,7 @@ fn stage_literal(st: &stapes_core::StageConfig) -> String {
         )
     });
     format!(
-        "stapes_core::config::StageConfig {{\n        pcen: {pcen},\n        range_floor: {floor},\n        mfcc: {mfcc},\n        normalise: {},\n        quantise: {quantise},\n        model_window: {window},\n    }}",
+        "stapes_core::config::StageConfig {{\n        pcen: {pcen},\n        range_floor: {floor},\n        level_map: {level_map},\n        mfcc: {mfcc},\n        normalise: {},\n        quantise: {quantise},\n        model_window: {window},\n    }}",
         st.normalise
     )
 }
