@@ -4,7 +4,8 @@
 
 use stapes_core::blob::TableBlob;
 use stapes_core::config::{FeatureConfig, LogKind, StageConfig};
-use stapes_core::level_map::{LOG2_ONE_PLUS_TABLE, f32_bits_to_fixed, log2_one_plus_q16};
+use stapes_core::fixed_tables::f32_to_fixed;
+use stapes_core::level_map::{LOG2_ONE_PLUS_TABLE, log2_one_plus_q16};
 use stapes_core::presets::{KWS16K_MFCC10, SPEECH16K_40};
 use stapes_core::stage_config::LevelMapConfig;
 use stapes_sim::check::{Arith, CoreTables};
@@ -43,17 +44,13 @@ fn floats_are_read_from_their_bits_with_rounding_half_away() {
         let v: f32 = rng.random_range(-1e4f32..1e4) * 10f32.powi(rng.random_range(-6..2));
         for frac in [0u32, 8, 16] {
             let want = (v as f64 * 2f64.powi(frac as i32)).round(); // f64::round: ties away
-            assert_eq!(
-                f32_bits_to_fixed(v.to_bits(), frac),
-                Some(want as i64),
-                "{v} {frac}"
-            );
+            assert_eq!(f32_to_fixed(v, frac), Some(want as i64), "{v} {frac}");
         }
     }
-    assert_eq!(f32_bits_to_fixed(f32::NAN.to_bits(), 8), None);
-    assert_eq!(f32_bits_to_fixed(f32::INFINITY.to_bits(), 8), None);
-    assert_eq!(f32_bits_to_fixed(0.5f32.to_bits(), 0), Some(1));
-    assert_eq!(f32_bits_to_fixed((-0.5f32).to_bits(), 0), Some(-1));
+    assert_eq!(f32_to_fixed(f32::NAN, 8), None);
+    assert_eq!(f32_to_fixed(f32::INFINITY, 8), None);
+    assert_eq!(f32_to_fixed(0.5f32, 0), Some(1));
+    assert_eq!(f32_to_fixed((-0.5f32), 0), Some(-1));
 }
 
 #[test]
@@ -202,4 +199,20 @@ fn every_arithmetic_holds_its_tolerance() {
             );
         }
     }
+}
+
+/// A natural-log floor beyond ±256 dB (the floor `stapes match` writes when
+/// the user's pipeline has none) passes the fixed tables' check: the check
+/// once refused it for want of integer range.
+#[test]
+fn a_natural_log_floor_far_below_passes_the_fixed_check() {
+    let c = FeatureConfig {
+        log: LogKind::Natural,
+        floor_db: -300.0,
+        ..SPEECH16K_40
+    };
+    c.validate().unwrap();
+    let t = GeneratedTables::new(&c);
+    let fixed = t.fixed_tables(stapes_core::FilterbankForm::Sparse).unwrap();
+    fixed.check(&c).unwrap();
 }

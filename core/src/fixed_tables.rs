@@ -305,12 +305,21 @@ impl FixedTables<'_> {
         let found = p.floor.to_bits() as i32;
         let expected = match config.log {
             LogKind::Decibel => f32_to_fixed(config.floor_db, 8),
-            LogKind::Natural => f32_to_fixed(config.floor_db, 32).map(|x| {
-                let product = x as i128 * LN10_OVER_10_Q62;
-                // × 2^-86 (2^-32 · 2^-62 · 2^8), halves away from zero.
-                let magnitude = (product.abs() + (1i128 << 85)) >> 86;
-                (if product < 0 { -magnitude } else { magnitude }) as i64
-            }),
+            LogKind::Natural => {
+                // 32 fraction bits, or 24 for a floor beyond ±256 dB (whose
+                // f32 has no bits below 2^-15 to lose).
+                let (x, frac) = match f32_to_fixed(config.floor_db, 32) {
+                    Some(x) => (Some(x), 32),
+                    None => (f32_to_fixed(config.floor_db, 24), 24),
+                };
+                x.map(|x| {
+                    let product = x as i128 * LN10_OVER_10_Q62;
+                    // × 2^-(frac + 62 - 8), halves away from zero.
+                    let shift = frac + 62 - 8;
+                    let magnitude = (product.abs() + (1i128 << (shift - 1))) >> shift;
+                    (if product < 0 { -magnitude } else { magnitude }) as i64
+                })
+            }
         };
         match expected {
             Some(e) if e == found as i64 => Ok(()),
@@ -394,7 +403,7 @@ fn check_twiddles<T: Copy + Into<i64>>(
 
 /// `round(v · 2^frac)` (halves away from zero) from an `f32`'s bits,
 /// integer work only; `None` for a non-finite value or one beyond `2^40`.
-pub(crate) fn f32_to_fixed(v: f32, frac: u32) -> Option<i64> {
+pub fn f32_to_fixed(v: f32, frac: u32) -> Option<i64> {
     let bits = v.to_bits();
     let exp = ((bits >> 23) & 0xff) as i32;
     if exp == 0xff {

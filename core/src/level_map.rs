@@ -32,7 +32,7 @@
 use fixed::types::I8F8;
 
 use crate::config::{FeatureConfig, LogKind};
-use crate::fixed_tables::log2_to_output_q16;
+use crate::fixed_tables::{f32_to_fixed, log2_to_output_q16};
 use crate::int_log::log2_q16;
 use crate::log::LogCoefficients;
 
@@ -132,32 +132,6 @@ pub fn log2_one_plus_q16(t_q16: u32) -> u32 {
     a - (((a - b) * r + (1 << 12)) >> 13)
 }
 
-/// An `f32`'s value times `2^frac`, rounded half away from zero, from its
-/// bits alone; `None` for NaN, infinity or a result beyond `i64`'s reach.
-pub fn f32_bits_to_fixed(bits: u32, frac: u32) -> Option<i64> {
-    let exponent = ((bits >> 23) & 0xFF) as i32;
-    if exponent == 0xFF {
-        return None;
-    }
-    let mantissa = (bits & 0x7F_FFFF) as i64 | if exponent == 0 { 0 } else { 1 << 23 };
-    let shift = exponent.max(1) - 150 + frac as i32;
-    let magnitude = if shift >= 0 {
-        if shift > 38 {
-            return None;
-        }
-        mantissa << shift
-    } else if shift < -40 {
-        0
-    } else {
-        (mantissa + (1 << (-shift - 1))) >> -shift
-    };
-    Some(if bits >> 31 == 1 {
-        -magnitude
-    } else {
-        magnitude
-    })
-}
-
 /// The fixed paths' level map, on the log's `I8F8` values (1/256 units),
 /// in place; every result within `i16`.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -181,7 +155,7 @@ impl FixedLevelMap {
     pub fn for_config(config: &FeatureConfig) -> Option<Self> {
         let m = config.stages.level_map?;
         let per_octave_q16 = log2_to_output_q16(config.log);
-        let units = |v: f32| f32_bits_to_fixed(v.to_bits(), 8);
+        let units = |v: f32| f32_to_fixed(v, 8);
         let bound = |v: Option<f32>, none: i16| match v {
             Some(v) => units(v).map(|u| u.clamp(i16::MIN as i64, i16::MAX as i64) as i16),
             None => Some(none),
@@ -203,7 +177,7 @@ impl FixedLevelMap {
             added,
             per_octave_q16,
             octaves_per_unit: (1i64 << 40) / per_octave_q16 as i64,
-            gain_q16: f32_bits_to_fixed(m.gain.to_bits(), 16)?,
+            gain_q16: f32_to_fixed(m.gain, 16)?,
             offset: units(m.offset)?,
             lower: bound(m.lower, i16::MIN)?,
             upper: bound(m.upper, i16::MAX)?,

@@ -2,15 +2,19 @@
 //! user's own desktop pipeline computed for some clips, and name what a
 //! streaming board cannot reproduce.
 //!
-//! The search runs the f64 reference ([`crate::reference::Reference`]) on
-//! each candidate: discrete conventions (framing, window, pre-emphasis,
-//! spectrum, mel formula, triangle placement, band gain) by coordinate
-//! descent from every framing the frame counts allow; band edges by a grid
-//! then golden-section refinement; the log's conventions (log kind, gain,
-//! offset, added energy or floor, bounds) by least squares for each added
-//! energy tried. Clip-relative conventions (an offset per clip, a floor
-//! relative to the clip's maximum, per-clip mean removal) are allowed for
-//! while searching and then reported, with their measured effect. The
+//! The search models the front end in f64 from the formulas: each
+//! candidate's frame spectra (rustfft) times the reference's filterbank
+//! matrix ([`crate::reference::reference_matrix`]). From every framing the
+//! frame counts allow, it alternates a grid over the filterbank's
+//! conventions (mel formula, band gain, triangle placement, band edges)
+//! with the spectral ones one at a time (window, pre-emphasis, power or
+//! magnitude), ranking candidates by one least-squares fit on the loud half
+//! of the values; the best then gets the full fit of the log's conventions
+//! (log kind, gain, offset, added energy or floor, bounds: least squares
+//! for each added energy tried) and golden-section refinement of its edges.
+//! Clip-relative conventions (an offset per clip, a floor relative to the
+//! clip's maximum, per-clip mean removal) are allowed for while searching
+//! and then reported, with their measured effect. The
 //! verdict comes from the board's own `f32` core run on the clips with the
 //! configuration found, against the user's features.
 
@@ -26,7 +30,6 @@ use stapes_core::stage_config::{LevelMapConfig, StageConfig};
 use crate::check::{Arith, CoreTables};
 use crate::clip_runner::{ClipRunner, FlatValues, SampleSlice};
 use crate::generate::GeneratedTables;
-use crate::reference::Reference;
 use crate::run::Samples;
 
 /// How the features' array is laid out.
@@ -283,22 +286,99 @@ fn interior(f: &Framing, len: usize, frames: usize) -> std::ops::Range<usize> {
     first.min(frames)..last.min(frames).max(first.min(frames))
 }
 
-/// The reference's band energies at the user's frame positions (zero
-/// samples outside the clip), `[frame][band]`.
-fn energies(c: &Candidate, pair: &Pair, bands: u32) -> Result<Vec<Vec<f64>>> {
-    let config = config_of(c, pair.rate, bands);
-    config
-        .validate()
-        .map_err(|e| anyhow!("candidate refused: {e}"))?;
-    let reference = Reference::new(&config);
+/// The spectra of the user's frames for the candidate's spectral
+/// conventions (framing, window, pre-emphasis, power or magnitude): per
+/// clip, `[frame][bin]`, with zero samples outside the clip and the
+/// pre-emphasis run from zero state over that stream, as the board runs it.
+/// Straight from the formulas in f64 (rustfft); the filterbanks tried are
+/// then one sparse product each.
+struct Spectra {
+    per_clip: Vec<Vec<Vec<f64>>>,
+}
+
+fn spectra(pairs: &[Pair], c: &Candidate) -> Spectra {
+    use rustfft::num_complex::Complex64;
     let f = &c.framing;
-    let need = (pair.user.len() - 1) * f.hop as usize + f.window as usize;
-    let mut x = vec![0.0; f.lead];
-    x.extend_from_slice(&pair.unit);
-    x.resize(need.max(x.len()), 0.0);
-    let mut e = reference.energies(&x);
-    e.truncate(pair.user.len());
-    Ok(e)
+    let window = crate::reference::reference_window(c.shape, f.window as usize);
+    let n = f.fft as usize;
+    let fft = rustfft::FftPlanner::<f64>::new().plan_fft_forward(n);
+    let bins = n / 2 + 1;
+    let mut buf = vec![Complex64::new(0.0, 0.0); n];
+    let per_clip = pairs
+        .iter()
+        .map(|p| {
+            let need = (p.user.len() - 1) * f.hop as usize + f.window as usize;
+            let mut x = vec![0.0; f.lead];
+            x.extend_from_slice(&p.unit);
+            x.resize(need.max(x.len()), 0.0);
+            if let Some(a) = c.pre_emphasis {
+                let (a, mut last) = (a as f64, 0.0);
+                for v in x.iter_mut() {
+                    let out = *v - a * last;
+                    last = *v;
+                    *v = out;
+                }
+            }
+            (0..p.user.len())
+                .map(|t| {
+                    let s = t * f.hop as usize;
+                    for (i, z) in buf.iter_mut().enumerate() {
+                        let v = window.get(i).map_or(0.0, |w| x[s + i] * w);
+                        *z = Complex64::new(v, 0.0);
+                    }
+                    fft.process(&mut buf);
+                    buf[..bins]
+                        .iter()
+                        .map(|z| match c.spectrum {
+                            SpectrumKind::Power => z.norm_sqr(),
+                            SpectrumKind::Magnitude => z.norm(),
+                        })
+                        .collect()
+                })
+                .collect()
+        })
+        .collect();
+    Spectra { per_clip }
+}
+
+/// A candidate's filterbank (the reference's dense matrix), kept as each
+/// band's first bin and its weights up to its last nonzero one; `None` for
+/// a configuration the validator refuses.
+struct Bank {
+    rows: Vec<(usize, Vec<f64>)>,
+}
+
+fn bank(c: &Candidate, rate: u32, bands: u32) -> Option<Bank> {
+    let config = config_of(c, rate, bands);
+    config.validate().ok()?;
+    let m = crate::reference::reference_matrix(&config);
+    let bins = c.framing.fft as usize / 2 + 1;
+    let rows = m
+        .chunks(bins)
+        .map(|r| {
+            let first = r.iter().position(|&w| w != 0.0).unwrap_or(0);
+            let last = r.iter().rposition(|&w| w != 0.0).map_or(first, |l| l + 1);
+            (first, r[first..last].to_vec())
+        })
+        .collect();
+    Some(Bank { rows })
+}
+
+/// Band energies `[clip][frame][band]`.
+fn mel(s: &Spectra, b: &Bank) -> Vec<Vec<Vec<f64>>> {
+    s.per_clip
+        .iter()
+        .map(|clip| {
+            clip.iter()
+                .map(|row| {
+                    b.rows
+                        .iter()
+                        .map(|(first, w)| w.iter().zip(&row[*first..]).map(|(a, b)| a * b).sum())
+                        .collect()
+                })
+                .collect()
+        })
+        .collect()
 }
 
 /// Removes each band's clip mean (and scales by its deviation) in place.
@@ -512,42 +592,113 @@ struct Scored {
     fit: LogFit,
 }
 
-fn score(
-    pairs: &[Pair],
-    c: &Candidate,
+/// One framing's search: the clips, the cells compared, and the loud half
+/// of them (where an added energy or a floor does not act), on which
+/// candidates are ranked with one least-squares fit each.
+struct Search<'a> {
+    pairs: &'a [Pair],
     bands: u32,
     rel: ClipRelative,
-    cells: &Cells,
-) -> Option<Scored> {
-    let e: Vec<Vec<Vec<f64>>> = pairs
-        .iter()
-        .map(|p| energies(c, p, bands))
-        .collect::<Result<_>>()
-        .ok()?;
-    let fit = best_log_fit(pairs, &e, cells, rel)?;
-    Some(Scored { candidate: *c, fit })
+    cells: Cells,
+    loud: Cells,
 }
 
-/// One axis of the coordinate descent: its name and the candidates it
-/// offers from `c`.
+impl Search<'_> {
+    fn new<'p>(pairs: &'p [Pair], framing: &Framing, bands: u32, rel: ClipRelative) -> Search<'p> {
+        let cells = cells(pairs, framing);
+        let loud_cells = cells
+            .per_clip
+            .iter()
+            .zip(pairs)
+            .map(|(keep, p)| {
+                let mut v: Vec<f64> = keep.iter().map(|&(t, b)| p.user[t][b]).collect();
+                v.sort_by(f64::total_cmp);
+                let median = v.get(v.len() / 2).copied().unwrap_or(0.0);
+                keep.iter()
+                    .copied()
+                    .filter(|&(t, b)| p.user[t][b] >= median)
+                    .collect()
+            })
+            .collect();
+        let loud = Cells {
+            per_clip: loud_cells,
+            lower: cells.lower.clone(),
+            upper: cells.upper.clone(),
+        };
+        Search {
+            pairs,
+            bands,
+            rel,
+            cells,
+            loud,
+        }
+    }
+
+    /// The ranking score: RMS of one fit without an added energy, over the
+    /// loud cells.
+    fn quick(&self, sp: &Spectra, c: &Candidate) -> f64 {
+        bank(c, self.pairs[0].rate, self.bands)
+            .and_then(|b| fit_log(self.pairs, &mel(sp, &b), &self.loud, 0.0, self.rel))
+            .map_or(f64::INFINITY, |f| f.rms)
+    }
+
+    /// The full fit (added energy searched) over every compared cell.
+    fn full(&self, sp: &Spectra, c: &Candidate) -> Option<Scored> {
+        let b = bank(c, self.pairs[0].rate, self.bands)?;
+        let fit = best_log_fit(self.pairs, &mel(sp, &b), &self.cells, self.rel)?;
+        Some(Scored { candidate: *c, fit })
+    }
+
+    /// The full fit of a candidate whose spectral conventions may differ
+    /// from `sp`'s (`same`: they do not).
+    fn full_any(&self, sp: &Spectra, same: bool, c: &Candidate) -> Option<Scored> {
+        if same {
+            self.full(sp, c)
+        } else {
+            self.full(&spectra(self.pairs, c), c)
+        }
+    }
+}
+
+fn same_spectra(a: &Candidate, b: &Candidate) -> bool {
+    a.framing == b.framing
+        && a.shape == b.shape
+        && a.pre_emphasis == b.pre_emphasis
+        && a.spectrum == b.spectrum
+}
+
+const LOW_EDGES: [f32; 13] = [
+    0.0, 20.0, 25.0, 30.0, 40.0, 50.0, 60.0, 64.0, 80.0, 100.0, 125.0, 133.33, 300.0,
+];
+const HIGH_EDGES: [f32; 10] = [
+    3400.0, 3800.0, 4000.0, 5500.0, 7000.0, 7600.0, 7800.0, 8000.0, 11025.0, 22050.0,
+];
+
+const SHAPES: [WindowShape; 5] = [
+    WindowShape::Hann,
+    WindowShape::HannPeriodic,
+    WindowShape::Hamming,
+    WindowShape::HammingPeriodic,
+    WindowShape::Rectangular,
+];
+const PRE_EMPHASES: [Option<f32>; 3] = [None, Some(0.95), Some(0.97)];
+
+/// One axis of the search: its name and the candidates it offers from `c`.
 type Axis = (&'static str, fn(&Candidate, f32) -> Vec<Candidate>);
 
 fn axes() -> Vec<Axis> {
     vec![
         ("window shape", |c, _| {
-            [
-                WindowShape::Hann,
-                WindowShape::HannPeriodic,
-                WindowShape::Hamming,
-                WindowShape::HammingPeriodic,
-                WindowShape::Rectangular,
-            ]
-            .map(|shape| Candidate { shape, ..*c })
-            .to_vec()
+            SHAPES.map(|shape| Candidate { shape, ..*c }).to_vec()
         }),
         ("spectrum", |c, _| {
             [SpectrumKind::Power, SpectrumKind::Magnitude]
                 .map(|spectrum| Candidate { spectrum, ..*c })
+                .to_vec()
+        }),
+        ("pre-emphasis", |c, _| {
+            PRE_EMPHASES
+                .map(|pre_emphasis| Candidate { pre_emphasis, ..*c })
                 .to_vec()
         }),
         ("mel formula", |c, _| {
@@ -572,42 +723,58 @@ fn axes() -> Vec<Axis> {
             })
             .to_vec()
         }),
-        ("pre-emphasis", |c, _| {
-            [None, Some(0.95), Some(0.97)]
-                .map(|pre_emphasis| Candidate { pre_emphasis, ..*c })
-                .to_vec()
-        }),
         ("lower edge", |c, _| {
-            [
-                0.0, 20.0, 25.0, 30.0, 40.0, 50.0, 60.0, 64.0, 80.0, 100.0, 125.0, 133.33, 300.0,
-            ]
-            .map(|low| Candidate { low, ..*c })
-            .to_vec()
+            LOW_EDGES.map(|low| Candidate { low, ..*c }).to_vec()
         }),
         ("upper edge", |c, nyquist| {
-            [
-                3400.0, 3800.0, 4000.0, 5500.0, 7000.0, 7600.0, 7800.0, 8000.0, 11025.0, 22050.0,
-            ]
-            .into_iter()
-            .chain([nyquist])
-            .filter(|&h| h <= nyquist)
-            .map(|high| Candidate { high, ..*c })
-            .collect()
+            HIGH_EDGES
+                .into_iter()
+                .chain([nyquist])
+                .filter(|&h| h <= nyquist)
+                .map(|high| Candidate { high, ..*c })
+                .collect()
         }),
     ]
 }
 
+/// Every filterbank of the grid (mel formula × band gain × placement ×
+/// edges) on the spectra `sp`, ranked; the best.
+fn best_filterbank(search: &Search<'_>, sp: &Spectra, c: &Candidate, nyquist: f32) -> Candidate {
+    let mut best = (search.quick(sp, c), *c);
+    for scale in [MelScale::OShaughnessy, MelScale::Slaney] {
+        for (triangles, gain) in [
+            (TrianglePlacement::ExactFrequency, BandGain::PeakOne),
+            (TrianglePlacement::ExactFrequency, BandGain::EqualArea),
+            (TrianglePlacement::RoundedCentreBins, BandGain::PeakOne),
+        ] {
+            for low in LOW_EDGES {
+                for high in HIGH_EDGES.into_iter().chain([nyquist]) {
+                    if high > nyquist {
+                        continue;
+                    }
+                    let cand = Candidate {
+                        scale,
+                        triangles,
+                        gain,
+                        low,
+                        high,
+                        ..*c
+                    };
+                    let q = search.quick(sp, &cand);
+                    if q < best.0 * 0.999 {
+                        best = (q, cand);
+                    }
+                }
+            }
+        }
+    }
+    best.1
+}
+
 /// Golden-section refinement of one edge.
-fn refine_edge(
-    pairs: &[Pair],
-    best: &Scored,
-    bands: u32,
-    rel: ClipRelative,
-    cells: &Cells,
-    upper: bool,
-) -> Scored {
+fn refine_edge(search: &Search<'_>, sp: &Spectra, best: &Scored, upper: bool) -> Scored {
     let c0 = best.candidate;
-    let nyquist = pairs[0].rate as f32 / 2.0;
+    let nyquist = search.pairs[0].rate as f32 / 2.0;
     let at = |v: f64| {
         let mut c = c0;
         if upper {
@@ -619,10 +786,9 @@ fn refine_edge(
     };
     let v0 = if upper { c0.high } else { c0.low } as f64;
     let step = (v0 * 0.05).max(5.0);
-    let eval =
-        |v: f64| score(pairs, &at(v), bands, rel, cells).map_or(f64::INFINITY, |s| s.fit.rms);
+    let eval = |v: f64| search.full(sp, &at(v)).map_or(f64::INFINITY, |s| s.fit.rms);
     let x = golden_min(eval, v0 - step, v0 + step, 1e-3);
-    match score(pairs, &at(x), bands, rel, cells) {
+    match search.full(sp, &at(x)) {
         Some(s) if s.fit.rms < best.fit.rms * 0.999 => s,
         _ => best.clone(),
     }
@@ -652,7 +818,10 @@ fn describe(axis: &str, c: &Candidate) -> String {
     }
 }
 
-/// Coordinate descent over the axes from one framing.
+/// The search from one framing: the filterbank grid on the current spectra,
+/// then the spectral conventions one at a time with that filterbank,
+/// alternating until neither changes; then the full fit, the edges refined,
+/// and the runners-up.
 fn descend(
     pairs: &[Pair],
     framing: Framing,
@@ -660,8 +829,8 @@ fn descend(
     rel: ClipRelative,
 ) -> Option<(Scored, Vec<RunnerUp>)> {
     let nyquist = pairs[0].rate as f32 / 2.0;
-    let cells = cells(pairs, &framing);
-    let start = Candidate {
+    let search = Search::new(pairs, &framing, bands, rel);
+    let mut c = Candidate {
         framing,
         shape: WindowShape::HannPeriodic,
         pre_emphasis: None,
@@ -672,29 +841,42 @@ fn descend(
         low: 0.0,
         high: nyquist,
     };
-    let mut best = score(pairs, &start, bands, rel, &cells)?;
+    let mut sp = spectra(pairs, &c);
     for _round in 0..4 {
-        let before = best.candidate;
-        for (_, offer) in axes() {
-            for c in offer(&best.candidate, nyquist) {
-                if c == best.candidate {
-                    continue;
-                }
-                if let Some(s) = score(pairs, &c, bands, rel, &cells)
-                    && s.fit.rms < best.fit.rms * 0.999
-                {
-                    best = s;
+        let before = c;
+        c = best_filterbank(&search, &sp, &c, nyquist);
+        // Every spectral convention at once (window × pre-emphasis ×
+        // spectrum) with that filterbank.
+        let mut here = search.quick(&sp, &c);
+        for shape in SHAPES {
+            for pre_emphasis in PRE_EMPHASES {
+                for spectrum in [SpectrumKind::Power, SpectrumKind::Magnitude] {
+                    let alt = Candidate {
+                        shape,
+                        pre_emphasis,
+                        spectrum,
+                        ..c
+                    };
+                    if alt == c {
+                        continue;
+                    }
+                    let alt_sp = spectra(pairs, &alt);
+                    let q = search.quick(&alt_sp, &alt);
+                    if q < here * 0.999 {
+                        (c, sp, here) = (alt, alt_sp, q);
+                    }
                 }
             }
         }
-        if best.candidate == before {
+        if c == before {
             break;
         }
     }
+    let mut best = search.full(&sp, &c)?;
     // Continuous refinement of the edges that are not already exact.
     if best.fit.rms > 1e-6 {
         for upper in [false, true] {
-            best = refine_edge(pairs, &best, bands, rel, &cells, upper);
+            best = refine_edge(&search, &sp, &best, upper);
         }
     }
     // Runners-up: the best alternative along each axis.
@@ -702,8 +884,8 @@ fn descend(
     for (axis, offer) in axes() {
         let alt = offer(&best.candidate, nyquist)
             .into_iter()
-            .filter(|c| *c != best.candidate)
-            .filter_map(|c| score(pairs, &c, bands, rel, &cells))
+            .filter(|a| *a != best.candidate)
+            .filter_map(|a| search.full_any(&sp, same_spectra(&a, &best.candidate), &a))
             .min_by(|a, b| a.fit.rms.total_cmp(&b.fit.rms));
         if let Some(a) = alt {
             runners.push(RunnerUp {
@@ -812,16 +994,26 @@ fn board_config(
     config
 }
 
-/// The board's `f32` core on a clip with `config`, aligned with the user's
+/// The board's core in `arith` on a clip with `config`, aligned with the user's
 /// frames: `(frame index in the user's array, values)`.
 fn board_frames(
     config: &FeatureConfig,
+    arith: Arith,
     pair: &Pair,
     lead: usize,
 ) -> Result<Vec<(usize, Vec<f64>)>> {
     let t = GeneratedTables::new(config);
-    let core = CoreTables::Float(t.view_f32(stapes_core::FilterbankForm::Sparse));
-    let mut runner = ClipRunner::new(config, Arith::F32, core, &t.stages.view(), None, false)?;
+    let form = stapes_core::FilterbankForm::Sparse;
+    let core = match arith {
+        Arith::F32 => CoreTables::Float(t.view_f32(form)),
+        _ => CoreTables::Fixed(t.fixed_tables(form).ok_or_else(|| {
+            anyhow!(
+                "the fixed path cannot represent floor_db = {} (its output spans ±128 units)",
+                config.floor_db
+            )
+        })?),
+    };
+    let mut runner = ClipRunner::new(config, arith, core, &t.stages.view(), None, false)?;
     let hop = config.hop_samples as usize;
     // Frame t of the user's starts at t·hop − lead: feed lead mod hop zero
     // samples first, and board frame k is the user's k + lead / hop.
@@ -851,6 +1043,105 @@ fn board_frames(
         })
         .filter(|(t, _)| *t < pair.user.len())
         .collect())
+}
+
+/// The clip-relative steps found, applied to the board's values only to
+/// measure what else differs.
+struct ClipSteps {
+    rel: ClipRelative,
+    /// Per clip: its offset from the common one.
+    shifts: Vec<f64>,
+    /// Per clip: its floor relative to its maximum.
+    floors: Vec<Option<f64>>,
+}
+
+/// The board's residual against the user's features.
+struct Measured {
+    /// Per value over the interior frames: max, mean, p99.
+    band_stats: Vec<(f64, f64, f64)>,
+    /// Frames reading padding: clip, frame, largest difference (NaN: a
+    /// frame the board does not compute).
+    edge_frames: Vec<(String, usize, f64)>,
+    /// The first clip's board values at the user's frames (NaN where none).
+    board_first: Vec<Vec<f64>>,
+}
+
+impl Measured {
+    fn worst(&self) -> f64 {
+        self.band_stats.iter().map(|s| s.0).fold(0.0, f64::max)
+    }
+}
+
+fn measure(
+    config: &FeatureConfig,
+    arith: Arith,
+    pairs: &[Pair],
+    framing: &Framing,
+    steps: &ClipSteps,
+) -> Result<Measured> {
+    let bands = pairs[0].user[0].len();
+    let mut per_band: Vec<Vec<f64>> = vec![Vec::new(); bands];
+    let mut edge_frames = Vec::new();
+    let mut board_first = Vec::new();
+    for (i, p) in pairs.iter().enumerate() {
+        let frames = board_frames(config, arith, p, framing.lead)?;
+        let inner = interior(framing, p.unit.len(), p.user.len());
+        let mut rows: Vec<Vec<f64>> = frames.iter().map(|(_, v)| v.clone()).collect();
+        if steps.rel.mean_removed {
+            clip_normalise(&mut rows, steps.rel);
+        }
+        for r in rows.iter_mut() {
+            for v in r.iter_mut() {
+                *v += steps.shifts[i];
+                if let Some(l) = steps.floors[i] {
+                    *v = v.max(l);
+                }
+            }
+        }
+        if i == 0 {
+            let mut full = vec![vec![f64::NAN; bands]; p.user.len()];
+            for ((t, _), r) in frames.iter().zip(&rows) {
+                full[*t] = r.clone();
+            }
+            board_first = full;
+        }
+        for ((t, _), r) in frames.iter().zip(&rows) {
+            let worst = r
+                .iter()
+                .zip(&p.user[*t])
+                .map(|(b, u)| (b - u).abs())
+                .fold(0.0, f64::max);
+            if inner.contains(t) {
+                for (b, (bv, u)) in r.iter().zip(&p.user[*t]).enumerate() {
+                    per_band[b].push((bv - u).abs());
+                }
+            } else {
+                edge_frames.push((p.name.clone(), *t, worst));
+            }
+        }
+        // Frames the board never produces (their windows start before the clip).
+        for t in 0..(framing.lead / framing.hop as usize).min(p.user.len()) {
+            if !frames.iter().any(|(k, _)| *k == t) {
+                edge_frames.push((p.name.clone(), t, f64::NAN));
+            }
+        }
+    }
+    let stats = |v: &mut Vec<f64>| {
+        v.sort_by(f64::total_cmp);
+        let n = v.len().max(1);
+        let max = v.last().copied().unwrap_or(0.0);
+        let mean = v.iter().sum::<f64>() / n as f64;
+        let p99 = v
+            .get(((n as f64 * 0.99) as usize).min(n - 1))
+            .copied()
+            .unwrap_or(0.0);
+        (max, mean, p99)
+    };
+    Ok(Measured {
+        band_stats: per_band.iter_mut().map(stats).collect(),
+        edge_frames,
+        board_first,
+    })
 }
 
 /// Runs `stapes match`.
@@ -1064,10 +1355,12 @@ pub fn run(a: &MatchArgs) -> Result<crate::commands::Outcome> {
     // is taken from the clips that do.
     let lowers: Vec<f64> = cells_best.lower.iter().flatten().copied().collect();
     let mut lower = None;
+    let mut moving_floor = false;
     if !lowers.is_empty() {
         if spread(&lowers) <= 1e-6 * lowers[0].abs().max(1.0) {
             lower = Some(lowers[0]);
         } else {
+            moving_floor = true;
             let below: Vec<f64> = pairs
                 .iter()
                 .zip(&cells_best.lower)
@@ -1105,64 +1398,41 @@ pub fn run(a: &MatchArgs) -> Result<crate::commands::Outcome> {
     config.validate().map_err(|e| {
         anyhow!("the configuration found is refused by the validator ({e}): please report it")
     })?;
-    // The verdict: the board's f32 core against the user's features.
-    let mut per_band: Vec<Vec<f64>> = vec![Vec::new(); bands as usize];
-    let mut edge_frames: Vec<(String, usize, f64)> = Vec::new();
-    let mut board_first: Vec<Vec<f64>> = Vec::new();
-    for (i, p) in pairs.iter().enumerate() {
-        let frames = board_frames(&config, p, c.framing.lead)?;
-        let inner = interior(&c.framing, p.unit.len(), p.user.len());
-        // Per-clip offsets and clip normalisation, when found, are applied
-        // to the board's values here only to measure the rest.
-        let shift = if clip_offsets && !rel.mean_removed {
-            fit.per_clip_offsets[i] - fit.offset
-        } else {
-            0.0
-        };
-        let mut rows: Vec<Vec<f64>> = frames.iter().map(|(_, v)| v.clone()).collect();
-        if rel.mean_removed {
-            clip_normalise(&mut rows, rel);
-        }
-        if i == 0 {
-            let mut full = vec![vec![f64::NAN; bands as usize]; p.user.len()];
-            for ((t, _), r) in frames.iter().zip(&rows) {
-                full[*t] = r.iter().map(|v| v + shift).collect();
-            }
-            board_first = full;
-        }
-        for ((t, _), r) in frames.iter().zip(&rows) {
-            let worst = r
-                .iter()
-                .zip(&p.user[*t])
-                .map(|(b, u)| (b + shift - u).abs())
-                .fold(0.0, f64::max);
-            if inner.contains(t) {
-                for (b, (bv, u)) in r.iter().zip(&p.user[*t]).enumerate() {
-                    per_band[b].push((bv + shift - u).abs());
+    let steps = ClipSteps {
+        rel,
+        shifts: (0..pairs.len())
+            .map(|i| {
+                if clip_offsets && !rel.mean_removed {
+                    fit.per_clip_offsets[i] - fit.offset
+                } else {
+                    0.0
                 }
-            } else {
-                edge_frames.push((p.name.clone(), *t, worst));
-            }
-        }
-        // Frames the board never produces (their windows start before the clip).
-        for t in 0..(c.framing.lead / c.framing.hop as usize).min(p.user.len()) {
-            if !frames.iter().any(|(k, _)| *k == t) {
-                edge_frames.push((p.name.clone(), t, f64::NAN));
-            }
+            })
+            .collect(),
+        floors: (0..pairs.len())
+            .map(|i| moving_floor.then_some(cells_best.lower[i]).flatten())
+            .collect(),
+    };
+    // The verdict: the board's f32 core against the user's features. A
+    // floor 120 dB down is kept when it changes nothing (the fixed paths'
+    // levels reach ±128 units; -300 dB is beyond them).
+    let mut config = config;
+    let mut measured = measure(&config, Arith::F32, &pairs, &c.framing, &steps)?;
+    if config.floor_db == -300.0 {
+        let near = FeatureConfig {
+            floor_db: -120.0,
+            ..config
+        };
+        let m = measure(&near, Arith::F32, &pairs, &c.framing, &steps)?;
+        if m.worst() <= measured.worst() {
+            (config, measured) = (near, m);
         }
     }
-    let stats = |v: &mut Vec<f64>| {
-        v.sort_by(f64::total_cmp);
-        let n = v.len().max(1);
-        let max = v.last().copied().unwrap_or(0.0);
-        let mean = v.iter().sum::<f64>() / n as f64;
-        let p99 = v
-            .get(((n as f64 * 0.99) as usize).min(n - 1))
-            .copied()
-            .unwrap_or(0.0);
-        (max, mean, p99)
-    };
-    let band_stats: Vec<(f64, f64, f64)> = per_band.iter_mut().map(stats).collect();
+    let Measured {
+        band_stats,
+        edge_frames,
+        board_first,
+    } = measured;
     let worst = band_stats.iter().map(|s| s.0).fold(0.0, f64::max);
     let worst_db = worst / unit_per_db.abs().max(1e-12);
     if c.framing.lead > 0 {
@@ -1202,7 +1472,7 @@ pub fn run(a: &MatchArgs) -> Result<crate::commands::Outcome> {
                 .into(),
         });
     }
-    let reproduced = worst_db <= 0.01 && !rel.mean_removed && !clip_offsets;
+    let reproduced = worst_db <= 0.01 && !rel.mean_removed && !clip_offsets && !moving_floor;
     let verdict = if reproduced {
         format!(
             "REPRODUCED: the board's f32 core gives the user's features within {worst:.2e} \
@@ -1280,6 +1550,20 @@ pub fn run(a: &MatchArgs) -> Result<crate::commands::Outcome> {
     for (b, (max, mean, p99)) in band_stats.iter().enumerate() {
         let _ = writeln!(report, "  {b:>5} {max:>10.3e} {mean:>10.3e} {p99:>10.3e}");
     }
+    // The same configuration on the fixed-point cores, for boards without
+    // an FPU (their levels are i16 in 1/256 units, their errors the
+    // arithmetic's own).
+    for arith in [Arith::Fixed32, Arith::Fixed16] {
+        let line = match measure(&config, arith, &pairs, &c.framing, &steps) {
+            Ok(m) => format!(
+                "max residual {:.3e} ({:.3e} dB)",
+                m.worst(),
+                m.worst() / unit_per_db.abs().max(1e-12)
+            ),
+            Err(e) => format!("not run: {e:#}"),
+        };
+        let _ = writeln!(report, "the board's {} core: {line}", arith.name());
+    }
     let _ = writeln!(
         report,
         "runners-up (one convention changed; RMS residual of the f64 search, the best is {:.3e}):",
@@ -1335,6 +1619,11 @@ pub fn run(a: &MatchArgs) -> Result<crate::commands::Outcome> {
         config.hop_samples as f64 / rate as f64,
         &centres,
         &p.name,
+        if clip_offsets || rel.mean_removed || moving_floor {
+            " (and the per-clip step)"
+        } else {
+            ""
+        },
     )?;
     crate::output::write_atomic(&a.output_dir.join("match-report.txt"), report.as_bytes())?;
     crate::say_text!(report);

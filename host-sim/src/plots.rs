@@ -109,8 +109,18 @@ fn colour_bar(
         .disable_mesh()
         .disable_x_axis()
         .y_label_formatter(&|v: &f64| {
+            // Enough decimals to tell the labels (about ten of them) apart.
             if span < 0.1 {
                 format!("{v:.1e}")
+            } else if span < 10.0 {
+                let decimals = (1.0 - (span / 10.0).log10().floor()).max(1.0) as usize;
+                // No "-0.000" for a value that rounds to zero.
+                let v = if v.abs() < 0.5 * 10f64.powi(-(decimals as i32)) {
+                    0.0
+                } else {
+                    *v
+                };
+                format!("{v:.decimals$}")
             } else {
                 format!("{v:.0}")
             }
@@ -442,6 +452,7 @@ pub fn match_figure(
     hop_s: f64,
     centres_hz: &[f64],
     clip: &str,
+    board_note: &str,
 ) -> Result<()> {
     let finite = |v: &[Vec<f64>]| {
         let it = || v.iter().flatten().copied().filter(|x| x.is_finite());
@@ -459,7 +470,7 @@ pub fn match_figure(
         lo.abs().max(hi.abs()).max(1e-9)
     };
     let t1 = format!("{clip}: the user's features (their unit)");
-    let t2 = format!("{clip}: the board's f32 core with the configuration found");
+    let t2 = format!("{clip}: the board's f32 core with the configuration found{board_note}");
     let t3 = format!("{clip}: board minus user (grey: a frame the board does not compute)");
     let maps = [
         HeatMap {

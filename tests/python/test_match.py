@@ -134,29 +134,22 @@ def pipeline(x, rate, window=400, fft=512, hop=160, shape="hann-periodic", centr
 # expected: None for a reproducible pipeline, else a phrase the report must
 # contain (what a streaming board cannot reproduce).
 
-# Known gaps of the search (issue 11 is open): the coordinate descent from
-# one starting point settles in a local minimum when several filterbank
-# conventions differ from its start at once. Strict: a fix turns them into
-# failures until the mark is removed.
-GAP = pytest.mark.xfail(strict=True, reason="search settles in a local minimum (issue 11 open)")
-
 COMBINATIONS = [
     ("plain dB", 16000, {}, None),
-    pytest.param("hamming, magnitude, ln(E+1e-6), pre-emphasis, Slaney, equal area, 20-7600 Hz",
-                 16000, dict(shape="hamming", magnitude=True, log="ln", added=1e-6, pre=0.97,
-                             formula="slaney", area=True, low=20.0, high=7600.0), None,
-                 marks=GAP),
+    ("hamming, magnitude, ln(E+1e-6), pre-emphasis, Slaney, equal area, 20-7600 Hz", 16000,
+     dict(shape="hamming", magnitude=True, log="ln", added=1e-6, pre=0.97, formula="slaney",
+          area=True, low=20.0, high=7600.0), None),
     ("raw integer samples, dB, floor 1e-10", 16000, dict(input_scale=1.0), None),
     ("FFT scaled 1/N, log10(E + 1e-9), 32 bands", 16000,
      dict(fft_scale="n", log="log10", added=1e-9, bands=32), None),
-    pytest.param("FFT scaled 1/sqrt(N), ln with floor, symmetric Hann, 125-3800 Hz, 23 bands",
-                 16000, dict(fft_scale="sqrt", log="ln", floor=1e-7, shape="hann", low=125.0,
-                             high=3800.0, bands=23), None, marks=GAP),
+    ("FFT scaled 1/sqrt(N), ln with floor, symmetric Hann, 125-3800 Hz, 23 bands", 16000,
+     dict(fft_scale="sqrt", log="ln", floor=1e-7, shape="hann", low=125.0, high=3800.0,
+          bands=23), None),
     ("30 ms window, Slaney, equal area, dB clipped to a fixed [-70, -5]", 16000,
      dict(window=480, formula="slaney", area=True, lower=-70.0, upper=-5.0), None),
-    pytest.param("8 kHz, 25 ms Hamming, FFT 256, 23 bands 64-4000 Hz, dB against 1e-3", 8000,
-                 dict(window=200, fft=256, hop=80, shape="hamming", bands=23, low=64.0,
-                      high=4000.0, ref=1e-3), None, marks=GAP),
+    ("8 kHz, 25 ms Hamming, FFT 256, 23 bands 64-4000 Hz, dB against 1e-3", 8000,
+     dict(window=200, fft=256, hop=80, shape="hamming", bands=23, low=64.0, high=4000.0,
+          ref=1e-3), None),
     ("magnitude mel in 20·log10", 16000, dict(magnitude=True, log="db20"), None),
     ("centred frames, zero padding", 16000, dict(centred=True, pad="constant"),
      "centred with padding"),
@@ -194,12 +187,8 @@ def run_match(tmp, wavs, feats, extra=()):
     return r, report
 
 
-def _id(c):
-    return c.values[0] if hasattr(c, "values") else c[0]
-
-
 @pytest.mark.parametrize("name,rate,kwargs,expected", COMBINATIONS,
-                         ids=[_id(c) for c in COMBINATIONS])
+                         ids=[c[0] for c in COMBINATIONS])
 def test_match_recovers_or_names(tmp_path, clips, name, rate, kwargs, expected):
     feats = []
     for i, w in enumerate(clips[rate]):
