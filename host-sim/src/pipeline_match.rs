@@ -412,7 +412,9 @@ fn pile(values: impl Iterator<Item = f64>, lowest: bool) -> Option<f64> {
     };
     let tol = 1e-6 * ext.abs().max(1e-3);
     let count = v.iter().filter(|&&x| (x - ext).abs() <= tol).count();
-    (count * 200 >= v.len() && count >= 3).then_some(ext)
+    // Three values equal to the extreme are a bound: measured values do not
+    // repeat their extreme exactly by chance.
+    (count >= 3).then_some(ext)
 }
 
 /// Cells compared by the fit: interior frames, values off the bounds.
@@ -429,13 +431,35 @@ fn cells(pairs: &[Pair], f: &Framing) -> Cells {
         lower: Vec::new(),
         upper: Vec::new(),
     };
-    for p in pairs {
+    // Bounds from every frame of each clip (the edge frames reach them
+    // too); one that two or more clips agree on holds for every clip, even
+    // one with fewer than three values at it.
+    let piles = |lowest: bool| -> Vec<Option<f64>> {
+        let each: Vec<Option<f64>> = pairs
+            .iter()
+            .map(|p| pile(p.user.iter().flatten().copied(), lowest))
+            .collect();
+        let found: Vec<f64> = each.iter().flatten().copied().collect();
+        let agree = found
+            .iter()
+            .all(|v| (v - found[0]).abs() <= 1e-6 * found[0].abs().max(1.0));
+        match found.first() {
+            Some(&common) if agree && found.len() >= 2 => vec![Some(common); pairs.len()],
+            _ => each,
+        }
+    };
+    let (mut lows, highs) = (piles(true), piles(false));
+    // Without a bound, the lowest value of all may still be one floored
+    // value: it is left out of the fit, and the run decides on it.
+    if lows.iter().all(Option::is_none) {
+        let lowest = global_min(pairs);
+        lows = vec![Some(lowest); pairs.len()];
+    }
+    let tol = |b: f64| 1e-6 * b.abs().max(1e-3);
+    for ((p, lo), hi) in pairs.iter().zip(lows).zip(highs) {
         let range = interior(f, p.unit.len(), p.user.len());
-        let all = || p.user[range.clone()].iter().flatten().copied();
-        let (lo, hi) = (pile(all(), true), pile(all(), false));
-        let tol = |b: f64| 1e-6 * b.abs().max(1e-3);
         let mut keep = Vec::new();
-        for t in range.clone() {
+        for t in range {
             for (b, &y) in p.user[t].iter().enumerate() {
                 let off_lo = lo.is_none_or(|l| y > l + tol(l));
                 let off_hi = hi.is_none_or(|h| y < h - tol(h));
@@ -449,6 +473,15 @@ fn cells(pairs: &[Pair], f: &Framing) -> Cells {
         out.upper.push(hi);
     }
     out
+}
+
+/// The lowest value of every clip's features.
+fn global_min(pairs: &[Pair]) -> f64 {
+    pairs
+        .iter()
+        .flat_map(|p| p.user.iter().flatten())
+        .copied()
+        .fold(f64::INFINITY, f64::min)
 }
 
 /// Least squares of the user's values on `ln(E + added)` with one gain and
@@ -1353,7 +1386,22 @@ pub fn run(a: &MatchArgs) -> Result<crate::commands::Outcome> {
     // A lower bound that moves with the clip's maximum: clipping relative to it.
     // Clips whose values never reach a bound show no pile there: the bound
     // is taken from the clips that do.
-    let lowers: Vec<f64> = cells_best.lower.iter().flatten().copied().collect();
+    // A bound in the board's domain: with an offset per clip, each clip's
+    // bound less its shift (a floor set before a per-clip reference moves
+    // with it).
+    let shift_of = |i: usize| {
+        if clip_offsets && !rel.mean_removed {
+            fit.per_clip_offsets[i] - fit.offset
+        } else {
+            0.0
+        }
+    };
+    let lowers: Vec<f64> = cells_best
+        .lower
+        .iter()
+        .enumerate()
+        .filter_map(|(i, l)| l.map(|l| l - shift_of(i)))
+        .collect();
     let mut lower = None;
     let mut moving_floor = false;
     if !lowers.is_empty() {
@@ -1400,15 +1448,7 @@ pub fn run(a: &MatchArgs) -> Result<crate::commands::Outcome> {
     })?;
     let steps = ClipSteps {
         rel,
-        shifts: (0..pairs.len())
-            .map(|i| {
-                if clip_offsets && !rel.mean_removed {
-                    fit.per_clip_offsets[i] - fit.offset
-                } else {
-                    0.0
-                }
-            })
-            .collect(),
+        shifts: (0..pairs.len()).map(shift_of).collect(),
         floors: (0..pairs.len())
             .map(|i| moving_floor.then_some(cells_best.lower[i]).flatten())
             .collect(),
@@ -1418,6 +1458,19 @@ pub fn run(a: &MatchArgs) -> Result<crate::commands::Outcome> {
     // levels reach ±128 units; -300 dB is beyond them).
     let mut config = config;
     let mut measured = measure(&config, Arith::F32, &pairs, &c.framing, &steps)?;
+    // A lower bound at the lowest value alone (no value repeats there) is
+    // kept only when it brings the board closer.
+    let lowest_only = lower.is_some()
+        && !pairs
+            .iter()
+            .any(|p| pile(p.user.iter().flatten().copied(), true).is_some());
+    if lowest_only {
+        let without = board_config(c, fit, rate, bands, None, upper);
+        let m = measure(&without, Arith::F32, &pairs, &c.framing, &steps)?;
+        if m.worst() <= measured.worst() {
+            (config, measured) = (without, m);
+        }
+    }
     if config.floor_db == -300.0 {
         let near = FeatureConfig {
             floor_db: -120.0,

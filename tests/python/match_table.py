@@ -19,13 +19,7 @@ import test_match as tm  # noqa: E402  (the pipelines and clips of the test)
 
 def main():
     work = pathlib.Path(tempfile.mkdtemp(prefix="stapes-match-"))
-    clips = {}
-    for rate in (16000, 8000):
-        clips[rate] = []
-        for i, (seconds, level) in enumerate([(0.93, -6), (1.0, -20), (1.17, -32)]):
-            p = work / f"clip{rate}-{i}.wav"
-            tm.write_wav(p, tm.clip(rate, seconds, 100 + i, level), rate)
-            clips[rate].append(p)
+    clips = tm.make_clips(work)
     print("| pipeline | verdict | found | residual, max over values (dB) | named as not reproducible "
           "| fixed32 | fixed16 |")
     print("|---|---|---|---|---|---|---|")

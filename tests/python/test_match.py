@@ -11,6 +11,7 @@ import os
 import pathlib
 import re
 import subprocess
+import sys
 import wave
 
 import numpy as np
@@ -164,18 +165,41 @@ COMBINATIONS = [
 ]
 
 
-@pytest.fixture(scope="module")
-def clips(tmp_path_factory):
-    d = tmp_path_factory.mktemp("match-clips")
+# Speech from espeak-ng (resampled by sox, as the speech corpus makes it):
+# material not designed around the front end. Commands of the project's
+# scenario, three voices, three levels, a little noise so no band is empty.
+SPOKEN = [("en", "Open valve three."), ("en+f3", "Close the north valve."),
+          ("en-us", "Report pump status.")]
+LEVELS_DB = [-6, -20, -32]
+
+
+def speech(rate, i, workdir):
+    sys.path.insert(0, str(ROOT / "tests" / "corpus"))
+    import make_corpus
+    voice, text = SPOKEN[i]
+    x = np.array(make_corpus.speak(text, voice, 165, 50, (rate,), str(workdir), f"s{i}")[rate])
+    x = x + 10 ** (-80 / 20) * np.random.default_rng(7 + i).standard_normal(len(x))
+    x *= 10 ** (LEVELS_DB[i] / 20) / np.max(np.abs(x))
+    return np.round(x * 32767).astype(np.int16)
+
+
+def make_clips(d):
+    """Per rate: one synthetic speech-like clip and two spoken commands."""
     out = {}
     for rate in (16000, 8000):
         paths = []
-        for i, (seconds, level) in enumerate([(0.93, -6), (1.0, -20), (1.17, -32)]):
+        for i in range(3):
             p = d / f"clip{rate}-{i}.wav"
-            write_wav(p, clip(rate, seconds, 100 + i, level), rate)
+            x = clip(rate, 0.93, 100, LEVELS_DB[0]) if i == 0 else speech(rate, i, d)
+            write_wav(p, x, rate)
             paths.append(p)
         out[rate] = paths
     return out
+
+
+@pytest.fixture(scope="module")
+def clips(tmp_path_factory):
+    return make_clips(tmp_path_factory.mktemp("match-clips"))
 
 
 def run_match(tmp, wavs, feats, extra=()):
@@ -213,8 +237,9 @@ def test_match_recovers_or_names(tmp_path, clips, name, rate, kwargs, expected):
         assert chk.returncode == 0, chk.stdout + chk.stderr + toml
     else:
         assert expected in report, report
-        if "centred" in expected:
-            # The interior frames are still reproduced.
+        if "centred" in expected or "clip's maximum" in expected:
+            # The interior frames, or every frame once the per-clip step the
+            # report names is applied, are still reproduced.
             assert residual <= 0.01, report
 
 
