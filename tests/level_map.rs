@@ -50,7 +50,7 @@ fn floats_are_read_from_their_bits_with_rounding_half_away() {
     assert_eq!(f32_to_fixed(f32::NAN, 8), None);
     assert_eq!(f32_to_fixed(f32::INFINITY, 8), None);
     assert_eq!(f32_to_fixed(0.5f32, 0), Some(1));
-    assert_eq!(f32_to_fixed((-0.5f32), 0), Some(-1));
+    assert_eq!(f32_to_fixed(-0.5f32, 0), Some(-1));
 }
 
 #[test]
@@ -190,6 +190,12 @@ fn every_arithmetic_holds_its_tolerance() {
             )
             .unwrap();
             let m = cmp.iter().find(|s| s.name == "level_map").unwrap();
+            println!(
+                "level map {log:?} {map:?}, {}: max {:.2e} (tolerance {:.2e})",
+                arith.name(),
+                m.max_error,
+                m.tolerance
+            );
             assert!(m.frames > 90, "{arith:?}");
             assert!(
                 m.passed(),

@@ -31,6 +31,8 @@ compile_error!("enable exactly one preset feature");
     ))
 ))]
 compile_error!("model-input runs a preset's stages: use a preset-kws16k-* feature");
+#[cfg(all(feature = "level-map", not(feature = "preset-kws16k-mel40")))]
+compile_error!("level-map maps kws16k-mel40's log: use preset-kws16k-mel40");
 
 mod board;
 mod emulator;
@@ -126,8 +128,10 @@ mod chain {
     const V: usize = preset::STAGE_VALUES;
     const B: usize = preset::BANDS;
 
-    #[cfg(feature = "preset-kws16k-mel40")]
+    #[cfg(all(feature = "preset-kws16k-mel40", not(feature = "level-map")))]
     pub type FloatLevels = FloatLog;
+    #[cfg(feature = "level-map")]
+    pub type FloatLevels = Then<FloatLog, stapes_core::FloatLevelMap>;
     #[cfg(feature = "preset-kws16k-mfcc10")]
     pub type FloatLevels = Then<Then<FloatLog, RangeFloor<f32>>, FloatMfcc<'static, V>>;
     #[cfg(feature = "preset-kws16k-pcen40")]
@@ -135,8 +139,34 @@ mod chain {
     /// The f32 chain.
     pub type Float = Then<FloatLevels, QuantiseStage<i8, V>>;
 
-    #[cfg(feature = "preset-kws16k-mel40")]
+    #[cfg(all(feature = "preset-kws16k-mel40", not(feature = "level-map")))]
     pub type FixedLevels = FixedLog<'static, B>;
+    #[cfg(feature = "level-map")]
+    pub type FixedLevels = Then<FixedLog<'static, B>, stapes_core::FixedLevelMap>;
+
+    /// The level map of `level-map` builds (`tests/firmware_qemu.rs` runs
+    /// the host with the same): ln(E + 1e-6) in dB, halved, plus 20, at
+    /// least -10.
+    #[cfg(feature = "level-map")]
+    pub const LEVEL_MAP: stapes_core::stage_config::LevelMapConfig =
+        stapes_core::stage_config::LevelMapConfig {
+            added_energy: 1e-6,
+            gain: 0.5,
+            offset: 20.0,
+            lower: Some(-10.0),
+            upper: None,
+        };
+
+    /// The preset's configuration with this build's stages.
+    pub fn config() -> stapes_core::FeatureConfig {
+        #[allow(unused_mut)]
+        let mut c = preset::CONFIG;
+        #[cfg(feature = "level-map")]
+        {
+            c.stages.level_map = Some(LEVEL_MAP);
+        }
+        c
+    }
     #[cfg(feature = "preset-kws16k-mfcc10")]
     pub type FixedLevels = Then<
         Then<FixedLog<'static, B>, RangeFloor<stapes_core::fixed::types::I8F8>>,
@@ -149,13 +179,15 @@ mod chain {
 
     #[allow(dead_code)]
     pub fn float() -> Option<Float> {
-        let c = &preset::CONFIG;
-        preset::STAGE_TABLES.check(c).ok()?;
+        let c = &config();
+        preset::STAGE_TABLES.check(&preset::CONFIG).ok()?;
         let q = c.stages.quantise?;
         #[cfg(not(feature = "preset-kws16k-pcen40"))]
         let log = FloatLog::for_config(c);
-        #[cfg(feature = "preset-kws16k-mel40")]
+        #[cfg(all(feature = "preset-kws16k-mel40", not(feature = "level-map")))]
         let levels = log;
+        #[cfg(feature = "level-map")]
+        let levels = Then(log, stapes_core::FloatLevelMap::for_config(c)?);
         #[cfg(feature = "preset-kws16k-pcen40")]
         let levels = {
             // The smoother's coefficient from the time constant and the hop,
@@ -178,13 +210,15 @@ mod chain {
 
     #[allow(dead_code)]
     pub fn fixed(tables: &FixedTables<'static>) -> Option<Fixed> {
-        let c = &preset::CONFIG;
+        let c = &config();
         let st = &preset::STAGE_TABLES;
-        st.check(c).ok()?;
+        st.check(&preset::CONFIG).ok()?;
         #[cfg(not(feature = "preset-kws16k-pcen40"))]
         let log = FixedLog::for_tables(tables);
-        #[cfg(feature = "preset-kws16k-mel40")]
+        #[cfg(all(feature = "preset-kws16k-mel40", not(feature = "level-map")))]
         let levels = log;
+        #[cfg(feature = "level-map")]
+        let levels = Then(log, stapes_core::FixedLevelMap::for_config(c)?);
         #[cfg(feature = "preset-kws16k-pcen40")]
         let levels = {
             let _ = tables;
