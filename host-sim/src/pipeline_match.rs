@@ -1647,6 +1647,10 @@ pub fn run(a: &MatchArgs) -> Result<crate::commands::Outcome> {
             let _ = writeln!(report, "    instead: {}", f.instead);
         }
     }
+    let _ = writeln!(report, "the configuration (matched.toml):");
+    for line in toml.lines().skip(1) {
+        let _ = writeln!(report, "  {line}");
+    }
     let _ = writeln!(
         report,
         "wrote {}, {}, {}",
